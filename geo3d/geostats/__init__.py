@@ -1,0 +1,1 @@
+"""geo3d.geostats."""
