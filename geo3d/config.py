@@ -1,0 +1,693 @@
+"""The ``site.toml`` schema.
+
+:class:`SiteConfig` mirrors ``geo3d/templates/site.toml`` section by section; every setting is
+documented here and in the template, and every section but ``[site]`` has working defaults.
+Keys are strict: a misspelled key is an error that names the key, the file and the line.
+
+:func:`load_config` reads a site file, validates it, and converts every number that carries a
+unit to geo3d's internal units (m, kPa, m3/s): lengths declared in ``[units] length`` (probe
+screen, grid cell size and padding, depth to water, compositing interval, minimum facies
+thickness, spike-filter window, radius of influence, variogram ranges and tolerance, kriging
+search distance, grid base) become metres, pressures declared in ``[units] pressure`` (sensor
+noise and limit, atmospheric pressure, tool-loss pressures) become kPa and tool-loss flows
+become m3/s. ``"auto"`` stays the string ``"auto"``. The ``[units]`` section keeps the declared
+units: readers use it to convert the data files.
+"""
+
+from __future__ import annotations
+
+import difflib
+import re
+import tomllib
+from os import PathLike
+from pathlib import Path
+from typing import Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
+
+from geo3d.errors import SiteFileError, UnitError, where
+from geo3d.units import check_unit, to_internal
+
+__all__ = [
+    "SiteConfig",
+    "SiteSection",
+    "UnitsSection",
+    "FilesSection",
+    "LogsSection",
+    "ProbeSection",
+    "WaterSection",
+    "FlagsSection",
+    "CompositeSection",
+    "FaciesClassConfig",
+    "FaciesSection",
+    "GridSection",
+    "VariogramSection",
+    "KrigingSection",
+    "SimulationSection",
+    "TreatmentSection",
+    "OutputSection",
+    "load_config",
+    "config_from_dict",
+    "TEMPLATE",
+]
+
+#: The commented site-file template written by ``geo3d init``.
+TEMPLATE = Path(__file__).parent / "templates" / "site.toml"
+
+Auto = Literal["auto"]
+
+
+class _Section(BaseModel):
+    model_config = ConfigDict(extra="forbid", validate_default=True)
+
+
+class SiteSection(_Section):
+    """``[site]``: what the site is called and where it is."""
+
+    name: str = Field(description="Site name, free text, shown in the report.", min_length=1)
+    crs: str = Field(
+        description='Coordinate reference system: an EPSG code ("EPSG:nnnn") or a WKT string. '
+        "Must be a projected CRS.",
+        min_length=1,
+    )
+
+
+class UnitsSection(_Section):
+    """``[units]``: the units of the input files and of the tables written for people."""
+
+    length: str = Field(
+        "m", description="Coordinates, elevations and depths: m | ft | us_survey_ft."
+    )
+    pressure: str = Field("kPa", description="Logged and tested pressures: kPa | psi | Pa | bar.")
+    pressure_reference: Literal["absolute", "gauge"] = Field(
+        "absolute", description="What the pressure logger records: absolute | gauge."
+    )
+    flow: str = Field(
+        "mL/min", description="Injection flow: mL/min | L/min | gal/min | m3/s | L/s."
+    )
+    ec: str = Field("mS/m", description="Electrical conductivity: mS/m | uS/cm | S/m | mS/cm.")
+    k: str = Field("m/s", description="Slug-test hydraulic conductivity: m/s | cm/s | m/d | ft/d.")
+    output_length: str = Field("m", description="Length unit of tables written for people.")
+    output_volume: str = Field("m3", description="Volume unit of tables written for people.")
+
+    @field_validator("length", "output_length")
+    @classmethod
+    def _length(cls, value: str) -> str:
+        return _check(value, "length")
+
+    @field_validator("pressure")
+    @classmethod
+    def _pressure(cls, value: str) -> str:
+        return _check(value, "pressure")
+
+    @field_validator("flow")
+    @classmethod
+    def _flow(cls, value: str) -> str:
+        return _check(value, "flow")
+
+    @field_validator("ec")
+    @classmethod
+    def _ec(cls, value: str) -> str:
+        return _check(value, "ec")
+
+    @field_validator("k")
+    @classmethod
+    def _k(cls, value: str) -> str:
+        return _check(value, "k")
+
+    @field_validator("output_volume")
+    @classmethod
+    def _volume(cls, value: str) -> str:
+        return _check(value, "volume")
+
+
+def _check(value: str, quantity: str) -> str:
+    try:
+        return check_unit(value, quantity)
+    except UnitError as exc:
+        raise ValueError(str(exc)) from None
+
+
+class FilesSection(_Section):
+    """``[files]``: input files, relative to the folder of ``site.toml``."""
+
+    borings: str = Field(
+        "borings.csv",
+        description="Borings table (boring_id, x, y, ground_elev [, date]); CSV or GeoPackage.",
+        min_length=1,
+    )
+    logs: str | list[str] = Field(
+        "logs/*.csv",
+        description="Glob (or list of globs) of injection-log files, one per boring "
+        "(CSV, or LAS 2.0 for *.las).",
+    )
+    dissipation: str = Field(
+        "dissipation.csv",
+        description="Dissipation tests (boring_id, depth, time_s, pressure [, test_id]); "
+        '"" = none.',
+    )
+    slug_tests: str = Field(
+        "", description='Slug tests (boring_id, top_depth, bottom_depth, k); "" = none.'
+    )
+    sensor_checks: str = Field(
+        "",
+        description="Sensor checks (boring_id, sensor, stage, measured, expected, tolerance); "
+        '"" = none.',
+    )
+    boundary: str = Field(
+        "", description='Site boundary polygon (GeoJSON or GeoPackage); "" = hull of the borings.'
+    )
+    zones: str = Field(
+        "",
+        description="Treatment zones (GeoJSON or GeoPackage) with name, top, bottom [, reference, "
+        'design_fraction, radius_of_influence]; "" = none.',
+    )
+    dem: str = Field("", description='Ground-surface GeoTIFF; "" = from the boring collars.')
+
+    @field_validator("logs")
+    @classmethod
+    def _logs(cls, value: str | list[str]) -> str | list[str]:
+        patterns = [value] if isinstance(value, str) else value
+        if not patterns or not all(p.strip() for p in patterns):
+            msg = "expected a glob of log files (or a list of globs), not an empty value"
+            raise ValueError(msg)
+        return value
+
+
+class LogsSection(_Section):
+    """``[logs]``: how to read the injection-log files."""
+
+    depth: str = Field("depth", description="Column (or LAS curve) holding depth.", min_length=1)
+    pressure: str = Field(
+        "pressure", description="Column holding injection pressure.", min_length=1
+    )
+    flow: str = Field("flow", description="Column holding injection flow.", min_length=1)
+    ec: str = Field("ec", description="Column holding electrical conductivity.", min_length=1)
+    time: str = Field("", description='Column holding time in seconds; "" = none.')
+    header_rows: int = Field(
+        0, ge=0, description="Lines to skip before the column-name line (CSV only)."
+    )
+    boring_id: str = Field(
+        "filename",
+        description='"filename" (the boring id is the file stem) or the name of a column in the '
+        "file holding the boring id.",
+        min_length=1,
+    )
+    delimiter: str = Field(",", description="CSV field delimiter.", min_length=1, max_length=1)
+
+
+class ProbeSection(_Section):
+    """``[probe]``: the injection screen and the pressure sensor."""
+
+    shape: Literal["cylinder", "sphere"] = Field(
+        "cylinder", description="Screen shape for the Hvorslev (1951) shape factor."
+    )
+    screen_length: float = Field(
+        0.02, gt=0, description="Screen length (cylinder only), in [units] length."
+    )
+    screen_diameter: float = Field(
+        0.01,
+        gt=0,
+        description="Screen diameter (cylinder) or sphere diameter, in [units] length.",
+    )
+    sensor_noise: float = Field(0.5, gt=0, description="Pressure noise, in [units] pressure.")
+    pressure_limit: float = Field(
+        1500.0, gt=0, description="Pressure sensor full scale, in [units] pressure."
+    )
+    atmospheric_pressure: float | Auto = Field(
+        "auto",
+        description='"auto" = first reading above the water table; or a number in [units] '
+        "pressure.",
+    )
+    tool_loss: list[tuple[float, float]] = Field(
+        default_factory=list,
+        description="Optional [[flow, pressure], ...] pairs measured in open water, in [units] "
+        "flow and [units] pressure.",
+    )
+
+    @field_validator("atmospheric_pressure")
+    @classmethod
+    def _positive_atm(cls, value: float | str) -> float | str:
+        if not isinstance(value, str) and value <= 0:
+            msg = 'expected a positive pressure or "auto"'
+            raise ValueError(msg)
+        return value
+
+
+class WaterSection(_Section):
+    """``[water]``: how the water table is found."""
+
+    depth_to_water: float | Auto = Field(
+        "auto",
+        description='"auto" = from dissipation tests; or a site-wide depth to water in [units] '
+        "length.",
+    )
+    min_fraction_dissipated: float = Field(
+        0.5, ge=0, le=1, description="Dissipation records dissipating less than this are refused."
+    )
+    surface: Literal["plane", "kriging"] = Field(
+        "plane", description="Site-wide water-table surface: plane | kriging."
+    )
+
+    @field_validator("depth_to_water")
+    @classmethod
+    def _non_negative(cls, value: float | str) -> float | str:
+        if not isinstance(value, str) and value < 0:
+            msg = 'expected a depth to water >= 0 or "auto"'
+            raise ValueError(msg)
+        return value
+
+
+class FlagsSection(_Section):
+    """``[flags]``: limits of the quality flags."""
+
+    out_of_range_high_factor: float = Field(
+        3.0, gt=0, description="Flag P_net within this many times the sensor noise."
+    )
+    min_flow_fraction: float = Field(
+        0.1, ge=0, le=1, description="Flow below this fraction of the median flow is flagged."
+    )
+    pressure_limit_fraction: float = Field(
+        0.95, gt=0, le=1, description="Pressure above this fraction of the sensor limit is flagged."
+    )
+    hampel_window: float = Field(
+        0.15, gt=0, description="Half window of the EC spike filter, in [units] length."
+    )
+    hampel_k: float = Field(4.0, gt=0, description="Spike threshold in scaled MADs.")
+    ionic_sigma: float = Field(
+        2.5, gt=0, description="EC this many residual SDs above the EC-vs-log10 K trend is ionic."
+    )
+    min_slug_tests: int = Field(
+        3, ge=0, description="Fewer slug tests than this: physics-only K, with a warning."
+    )
+
+
+class CompositeSection(_Section):
+    """``[composite]``: compositing of samples into intervals."""
+
+    interval: float = Field(
+        0.15, gt=0, description="Length of composited intervals, in [units] length."
+    )
+
+
+class FaciesClassConfig(_Section):
+    """One ``[[facies.classes]]`` entry."""
+
+    name: str = Field(description="Class name.", min_length=1)
+    log10_k_max: float = Field(
+        description="Upper bound of log10 K (m/s); ignored for the last class."
+    )
+    porosity: float = Field(gt=0, lt=1, description="Total porosity (fraction).")
+    effective_porosity: float = Field(gt=0, lt=1, description="Effective porosity (fraction).")
+
+    @model_validator(mode="after")
+    def _porosities(self) -> FaciesClassConfig:
+        if self.effective_porosity > self.porosity:
+            msg = (
+                f"class {self.name!r}: effective_porosity {self.effective_porosity} exceeds "
+                f"porosity {self.porosity}; expected effective_porosity <= porosity"
+            )
+            raise ValueError(msg)
+        return self
+
+
+def _default_classes() -> list[FaciesClassConfig]:
+    # Thresholds: common practice; porosities after Freeze & Cherry (1979) Table 2.4 and
+    # Johnson (1967), as in the template.
+    return [
+        FaciesClassConfig(name="storage", log10_k_max=-7.0, porosity=0.45, effective_porosity=0.05),
+        FaciesClassConfig(
+            name="transitional", log10_k_max=-5.0, porosity=0.38, effective_porosity=0.15
+        ),
+        FaciesClassConfig(
+            name="transmissive", log10_k_max=0.0, porosity=0.32, effective_porosity=0.25
+        ),
+    ]
+
+
+class FaciesSection(_Section):
+    """``[facies]``: hydrofacies classification."""
+
+    method: Literal["thresholds", "mixture"] = Field(
+        "thresholds", description="thresholds | mixture (Gaussian mixture on log10 K and EC)."
+    )
+    min_thickness: float = Field(
+        0.3, ge=0, description="Thinner runs are merged into their neighbours, in [units] length."
+    )
+    classes: list[FaciesClassConfig] = Field(
+        default_factory=_default_classes,
+        description="Hydrofacies from the lowest K up.",
+        min_length=1,
+    )
+
+    @model_validator(mode="after")
+    def _ordered(self) -> FaciesSection:
+        names = [c.name for c in self.classes]
+        if len(set(names)) != len(names):
+            msg = f"facies class names must be unique; got {names}"
+            raise ValueError(msg)
+        bounds = [c.log10_k_max for c in self.classes[:-1]]
+        if any(upper <= lower for lower, upper in zip(bounds, bounds[1:], strict=False)):
+            msg = f"facies classes must go from the lowest K up; got log10_k_max {bounds}"
+            raise ValueError(msg)
+        return self
+
+
+class GridSection(_Section):
+    """``[grid]``: the voxel grid."""
+
+    cell_size: tuple[float, float, float] = Field(
+        (2.0, 2.0, 0.25), description="Cell size dx, dy, dz in [units] length."
+    )
+    base: float | Auto = Field(
+        "auto", description='"auto" = deepest data; or a base elevation in [units] length.'
+    )
+    padding: float = Field(
+        0.0, ge=0, description="Extend the grid beyond the boundary by this much, [units] length."
+    )
+
+    @field_validator("cell_size")
+    @classmethod
+    def _positive(cls, value: tuple[float, float, float]) -> tuple[float, float, float]:
+        if any(v <= 0 for v in value):
+            msg = f"expected three positive cell sizes [dx, dy, dz]; got {list(value)}"
+            raise ValueError(msg)
+        return value
+
+
+class VariogramSection(_Section):
+    """``[variogram]``: variogram model and anisotropy."""
+
+    model: Literal["auto", "exponential", "spherical", "gaussian", "matern"] = Field(
+        "auto", description="auto | exponential | spherical | gaussian | matern."
+    )
+    horizontal_range: float | Auto = Field(
+        "auto", description='"auto" = fitted; or the major horizontal range in [units] length.'
+    )
+    vertical_range: float | Auto = Field(
+        "auto", description='"auto" = fitted; or the vertical range in [units] length.'
+    )
+    azimuth: float = Field(
+        0.0, ge=-360, le=360, description="Degrees clockwise from north of the major axis."
+    )
+    anisotropy_minor: float = Field(
+        1.0, gt=0, le=1, description="Minor/major horizontal range ratio."
+    )
+    elevation_tolerance: float = Field(
+        0.5,
+        gt=0,
+        description="Pairs between borings must be this close in elevation, [units] length.",
+    )
+
+    @field_validator("horizontal_range", "vertical_range")
+    @classmethod
+    def _positive_range(cls, value: float | str) -> float | str:
+        if not isinstance(value, str) and value <= 0:
+            msg = 'expected a positive range or "auto"'
+            raise ValueError(msg)
+        return value
+
+
+class KrigingSection(_Section):
+    """``[kriging]``: ordinary kriging settings."""
+
+    neighbors: int = Field(32, gt=0, description="Samples per estimate.")
+    max_per_boring: int = Field(
+        8, ge=0, description="At most this many samples from one boring (0 = no limit)."
+    )
+    drift: Literal["none", "linear_z"] = Field("none", description="none | linear_z.")
+    max_distance: float | Auto = Field(
+        "auto",
+        description="Beyond this anisotropy-scaled distance, in [units] length, a cell is left "
+        'empty; "auto" = chosen from the variogram.',
+    )
+    chunk_size: int = Field(20000, gt=0, description="Cells per chunk.")
+    scheduler: str = Field(
+        "", description='"" = local threads; or a dask.distributed scheduler address.'
+    )
+
+
+class SimulationSection(_Section):
+    """``[simulation]``: conditional simulation."""
+
+    realizations: int = Field(20, ge=0, description="Number of realizations (0 = none).")
+    seed: int = Field(20261202, description="Random seed.")
+
+
+class TreatmentSection(_Section):
+    """``[treatment]``: injection design defaults for the treatment zones."""
+
+    design_fraction: float = Field(
+        0.2, gt=0, le=1, description="Fraction of the effective pore volume to inject."
+    )
+    radius_of_influence: float = Field(
+        3.0, gt=0, description="Radius of influence of an injection point, [units] length."
+    )
+    target: Literal["transmissive", "all"] = Field(
+        "transmissive", description="Material to treat inside each zone: transmissive | all."
+    )
+
+
+class OutputSection(_Section):
+    """``[output]``: which outputs to write."""
+
+    formats: list[Literal["vtk", "geotiff", "gpkg", "netcdf", "csv", "report"]] = Field(
+        default_factory=lambda: ["vtk", "geotiff", "gpkg", "netcdf", "csv", "report"],
+        description="Outputs to write: vtk, geotiff, gpkg, netcdf, csv, report.",
+    )
+
+
+class SiteConfig(_Section):
+    """The whole site file; each attribute is one ``[section]``.
+
+    Built by :func:`load_config`, numbers carrying units are in internal units (m, kPa, m3/s).
+    """
+
+    site: SiteSection = Field(description="Site name and CRS.")
+    units: UnitsSection = Field(default_factory=UnitsSection, description="Declared units.")
+    files: FilesSection = Field(default_factory=FilesSection, description="Input files.")
+    logs: LogsSection = Field(default_factory=LogsSection, description="Log file layout.")
+    probe: ProbeSection = Field(default_factory=ProbeSection, description="Probe and sensor.")
+    water: WaterSection = Field(default_factory=WaterSection, description="Water table.")
+    flags: FlagsSection = Field(default_factory=FlagsSection, description="Quality flags.")
+    composite: CompositeSection = Field(
+        default_factory=CompositeSection, description="Compositing."
+    )
+    facies: FaciesSection = Field(default_factory=FaciesSection, description="Hydrofacies.")
+    grid: GridSection = Field(default_factory=GridSection, description="Voxel grid.")
+    variogram: VariogramSection = Field(default_factory=VariogramSection, description="Variogram.")
+    kriging: KrigingSection = Field(default_factory=KrigingSection, description="Kriging.")
+    simulation: SimulationSection = Field(
+        default_factory=SimulationSection, description="Simulation."
+    )
+    treatment: TreatmentSection = Field(
+        default_factory=TreatmentSection, description="Treatment design."
+    )
+    output: OutputSection = Field(default_factory=OutputSection, description="Outputs.")
+
+
+_LENGTHS = {
+    "probe": ("screen_length", "screen_diameter"),
+    "water": ("depth_to_water",),
+    "flags": ("hampel_window",),
+    "composite": ("interval",),
+    "facies": ("min_thickness",),
+    "grid": ("cell_size", "base", "padding"),
+    "variogram": ("horizontal_range", "vertical_range", "elevation_tolerance"),
+    "kriging": ("max_distance",),
+    "treatment": ("radius_of_influence",),
+}
+_PRESSURES = {"probe": ("sensor_noise", "pressure_limit", "atmospheric_pressure")}
+
+
+def _convert(value: Any, unit: str, quantity: str) -> Any:
+    if isinstance(value, str):
+        return value
+    if isinstance(value, tuple | list):
+        return type(value)(to_internal(float(v), unit, quantity) for v in value)
+    return to_internal(float(value), unit, quantity)
+
+
+def _to_internal(config: SiteConfig) -> SiteConfig:
+    units = config.units
+    updates: dict[str, BaseModel] = {}
+    for quantity, table, unit in (
+        ("length", _LENGTHS, units.length),
+        ("pressure", _PRESSURES, units.pressure),
+    ):
+        for section, keys in table.items():
+            current = updates.get(section, getattr(config, section))
+            changes = {k: _convert(getattr(current, k), unit, quantity) for k in keys}
+            updates[section] = current.model_copy(update=changes)
+    probe = updates["probe"]
+    tool_loss = [
+        (
+            to_internal(flow, units.flow, "flow"),
+            to_internal(pressure, units.pressure, "pressure"),
+        )
+        for flow, pressure in config.probe.tool_loss
+    ]
+    updates["probe"] = probe.model_copy(update={"tool_loss": tool_loss})
+    return config.model_copy(update=updates)
+
+
+def _line_of(text: str, loc: tuple[Any, ...]) -> int | None:
+    """Find the line of a key given a pydantic error location (best effort)."""
+    keys = [str(k) for k in loc if not isinstance(k, int)]
+    if not keys:
+        return None
+    table = ""
+    header_line = None
+    wanted_table = ".".join(keys[:-1])
+    for number, raw in enumerate(text.splitlines(), start=1):
+        line = raw.strip()
+        header = re.match(r"^\[\[?\s*([^\]]+?)\s*\]\]?", line)
+        if header:
+            table = header.group(1)
+            if table == ".".join(keys):
+                header_line = header_line or number
+            continue
+        if table == wanted_table and re.match(rf"^['\"]?{re.escape(keys[-1])}['\"]?\s*=", line):
+            return number
+    return header_line
+
+
+def _describe(error: dict[str, Any], path: str | PathLike | None, text: str) -> str:
+    loc = tuple(error["loc"])
+    # Drop the union-member tags pydantic appends ('float', "literal['auto']").
+    keys = tuple(k for k in loc if isinstance(k, int) or not re.match(r"^(float|literal\[)", k))
+    dotted = ".".join(str(k) if not isinstance(k, int) else f"[{k}]" for k in keys)
+    dotted = dotted.replace(".[", "[")
+    line = _line_of(text, keys) if text else None
+    place = where(path, line=line)
+    kind = error["type"]
+    if kind == "extra_forbidden":
+        section = _model_at(keys[:-1])
+        hint = ""
+        if section is not None:
+            close = difflib.get_close_matches(str(keys[-1]), list(section.model_fields), n=1)
+            if close:
+                hint = f"; did you mean {close[0]!r}?"
+            known = ", ".join(section.model_fields)
+            hint += f" (expected one of: {known})"
+        return f"{place}: unknown setting {dotted!r}{hint}"
+    if kind == "missing":
+        return f"{place}: missing setting {dotted!r}"
+    message = error["msg"].removeprefix("Value error, ")
+    value = error.get("input")
+    shown = "" if isinstance(value, dict) else f" (got {value!r})"
+    return f"{place}: setting {dotted!r}: {message}{shown}"
+
+
+def _model_at(keys: tuple[Any, ...]) -> type[BaseModel] | None:
+    model: type[BaseModel] = SiteConfig
+    for key in keys:
+        if isinstance(key, int):
+            continue
+        field = model.model_fields.get(str(key))
+        if field is None:
+            return None
+        annotation = field.annotation
+        args = getattr(annotation, "__args__", ())
+        candidates = [annotation, *args]
+        found = [c for c in candidates if isinstance(c, type) and issubclass(c, BaseModel)]
+        if not found:
+            return None
+        model = found[0]
+    return model
+
+
+def _raise(problems: list[tuple[type[Exception], str]]) -> None:
+    if len(problems) == 1:
+        cls, message = problems[0]
+        raise cls(message)
+    from geo3d.site import SiteValidationError
+
+    raise SiteValidationError([m for _, m in problems])
+
+
+def config_from_dict(
+    data: dict[str, Any], *, path: str | PathLike | None = None, text: str = ""
+) -> SiteConfig:
+    """Validate a parsed site file and convert its numbers to internal units.
+
+    Parameters
+    ----------
+    data
+        The parsed TOML document.
+    path
+        The file it came from, for messages.
+    text
+        The file's text, to find line numbers for messages.
+
+    Returns
+    -------
+    SiteConfig
+        Lengths in m, pressures in kPa, flows in m3/s.
+
+    Raises
+    ------
+    SiteFileError
+        A setting is missing, misspelled or invalid.
+    UnitError
+        The only problem is an unknown unit.
+    SiteValidationError
+        Several problems at once (``.problems`` lists them).
+    """
+    try:
+        config = SiteConfig.model_validate(data)
+    except ValidationError as exc:
+        problems: list[tuple[type[Exception], str]] = []
+        for error in exc.errors():
+            message = _describe(error, path, text)
+            is_unit = error["loc"][:1] == ("units",) and "unit" in error["msg"]
+            problems.append((UnitError if is_unit else SiteFileError, message))
+        _raise(problems)
+    return _to_internal(config)
+
+
+def load_config(path: str | PathLike) -> SiteConfig:
+    """Read, validate and convert a ``site.toml``.
+
+    Parameters
+    ----------
+    path
+        The site file, or the site folder holding ``site.toml``.
+
+    Returns
+    -------
+    SiteConfig
+        The validated settings, lengths in m, pressures in kPa, flows in m3/s.
+
+    Raises
+    ------
+    SiteFileError
+        The file is missing, not valid TOML, or breaks the schema; the message names the file,
+        the line and the setting.
+    UnitError
+        The only problem is an unknown unit.
+    SiteValidationError
+        Several problems at once.
+    """
+    file = Path(path)
+    if file.is_dir():
+        file = file / "site.toml"
+    if not file.is_file():
+        msg = f"{file}: site file not found; expected a site.toml (make one with `geo3d init`)"
+        raise SiteFileError(msg)
+    try:
+        text = file.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        msg = f"{file}: cannot read the site file ({exc}); expected UTF-8 TOML text"
+        raise SiteFileError(msg) from None
+    if not text.strip():
+        msg = f"{file}: the site file is empty; expected at least [site] name and crs"
+        raise SiteFileError(msg)
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        match = re.search(r"line (\d+)", str(exc))
+        line = int(match.group(1)) if match else None
+        msg = f"{where(file, line=line)}: not valid TOML ({exc})"
+        raise SiteFileError(msg) from None
+    return config_from_dict(data, path=file, text=text)

@@ -1,0 +1,135 @@
+"""Write outputs so that nothing half-written is ever left behind.
+
+A file is written under a temporary name in the same folder and renamed onto its final name
+only when the writer finished without error (a rename within one file system is atomic on
+POSIX and Windows). A folder of outputs is built in a staging folder next to it and swapped in
+only on success.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import logging
+import os
+import shutil
+import tempfile
+from collections.abc import Iterator
+from pathlib import Path
+
+from geo3d.errors import OutputExistsError
+
+__all__ = ["atomic_file", "output_folder"]
+
+logger = logging.getLogger(__name__)
+
+
+@contextlib.contextmanager
+def atomic_file(path: str | os.PathLike) -> Iterator[Path]:
+    """Yield a temporary path that is renamed onto ``path`` when the block succeeds.
+
+    Parameters
+    ----------
+    path
+        Final file name. Its folder is created if needed.
+
+    Yields
+    ------
+    pathlib.Path
+        A path in the same folder with the same suffix; write the whole file there.
+
+    Notes
+    -----
+    If the block raises, the temporary file is removed and ``path`` is left as it was.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> with atomic_file(folder / "a.txt") as tmp:
+    ...     _ = tmp.write_text("done")
+    >>> (folder / "a.txt").read_text()
+    'done'
+    """
+    final = Path(path)
+    final.parent.mkdir(parents=True, exist_ok=True)
+    fd, name = tempfile.mkstemp(
+        prefix=f".{final.stem}.", suffix=f".tmp{final.suffix}", dir=final.parent
+    )
+    os.close(fd)
+    tmp = Path(name)
+    try:
+        yield tmp
+        if not tmp.exists():
+            msg = f"nothing was written to the temporary file for {final}"
+            raise FileNotFoundError(msg)
+        os.replace(tmp, final)
+        logger.debug("wrote %s", final)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            if tmp.is_dir():
+                shutil.rmtree(tmp)
+            else:
+                tmp.unlink()
+        raise
+
+
+@contextlib.contextmanager
+def output_folder(path: str | os.PathLike, *, overwrite: bool = False) -> Iterator[Path]:
+    """Yield a staging folder that replaces ``path`` only when the block succeeds.
+
+    Parameters
+    ----------
+    path
+        Final output folder.
+    overwrite
+        Replace ``path`` if it exists and is not empty. Without it such a folder is an error.
+
+    Yields
+    ------
+    pathlib.Path
+        An empty staging folder beside ``path``; write every output there.
+
+    Raises
+    ------
+    OutputExistsError
+        If ``path`` exists, is not empty (or is a file) and ``overwrite`` is false.
+
+    Notes
+    -----
+    On error the staging folder is removed and ``path`` is untouched. On success the old
+    folder (if any) is moved aside, the staging folder renamed onto ``path``, and the old one
+    removed.
+    """
+    final = Path(path)
+    if final.exists() and not overwrite:
+        if final.is_file() or any(final.iterdir()):
+            msg = (
+                f"{final}: output folder exists and is not empty; expected a new or empty "
+                "folder (use overwrite to replace it)"
+            )
+            raise OutputExistsError(msg)
+    final.parent.mkdir(parents=True, exist_ok=True)
+    staging = Path(tempfile.mkdtemp(prefix=f".{final.name}.staging.", dir=final.parent))
+    try:
+        yield staging
+    except BaseException:
+        shutil.rmtree(staging, ignore_errors=True)
+        raise
+    old = None
+    if final.exists():
+        old = Path(tempfile.mkdtemp(prefix=f".{final.name}.old.", dir=final.parent))
+        old.rmdir()
+        os.replace(final, old)
+    try:
+        os.replace(staging, final)
+    except BaseException:
+        if old is not None:
+            os.replace(old, final)
+        shutil.rmtree(staging, ignore_errors=True)
+        raise
+    if old is not None:
+        if old.is_dir():
+            shutil.rmtree(old, ignore_errors=True)
+        else:
+            old.unlink(missing_ok=True)
+    logger.debug("wrote folder %s", final)
