@@ -1,0 +1,131 @@
+"""Neighbourhood search in anisotropy-scaled space.
+
+Samples and targets are first mapped by :meth:`CovarianceModel.scaled`, so Euclidean distance
+there is the anisotropic distance in ranges. The k nearest samples are found with a k-d tree;
+an optional cap keeps at most ``max_per_group`` samples from one group (one boring), so that
+the dense samples of the nearest boring cannot fill the whole neighbourhood.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.spatial import cKDTree
+
+__all__ = ["NeighbourSearch"]
+
+
+class NeighbourSearch:
+    """k-nearest search with an optional per-group cap.
+
+    Parameters
+    ----------
+    points
+        Sample coordinates ``(n, 3)``, already anisotropy-scaled.
+    groups
+        Integer group code per sample (``(n,)``), or None.
+    workers
+        Threads used by the k-d tree query (-1 = all cores).
+
+    Notes
+    -----
+    Missing neighbours (fewer than k samples within ``max_distance``, or not enough groups
+    under the cap) are returned as index ``n`` and distance ``inf``.
+    """
+
+    def __init__(
+        self, points: np.ndarray, groups: np.ndarray | None = None, *, workers: int = -1
+    ) -> None:
+        self.points = np.ascontiguousarray(points, dtype=float)
+        self.n = len(self.points)
+        self.tree = cKDTree(self.points)
+        self.workers = workers
+        if groups is not None:
+            _, codes = np.unique(np.asarray(groups), return_inverse=True)
+            # Sentinel group -1 for the missing index n.
+            self.groups = np.append(codes.astype(np.int64), -1)
+        else:
+            self.groups = None
+
+    def query(
+        self,
+        targets: np.ndarray,
+        k: int,
+        *,
+        max_per_group: int = 0,
+        max_distance: float | None = None,
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """Return distances and indices ``(m, k)`` of the neighbours of each target.
+
+        Parameters
+        ----------
+        targets
+            Scaled target coordinates ``(m, 3)``.
+        k
+            Number of neighbours (at most the number of samples).
+        max_per_group
+            At most this many neighbours from one group; 0 = no cap.
+        max_distance
+            Neighbours farther than this (scaled distance) are dropped.
+
+        Returns
+        -------
+        dist, idx
+            Sorted by distance per row; missing entries have ``inf`` and ``n``.
+        """
+        k = int(min(k, self.n))
+        ub = np.inf if max_distance is None else float(max_distance)
+        targets = np.ascontiguousarray(targets, dtype=float)
+        if max_per_group <= 0 or self.groups is None:
+            dist, idx = self.tree.query(targets, k=k, distance_upper_bound=ub, workers=self.workers)
+            return _as_2d(dist, idx)
+        kc = min(self.n, max(2 * k, 4 * k if max_per_group < k else k))
+        dist, idx = _as_2d(
+            *self.tree.query(targets, k=kc, distance_upper_bound=ub, workers=self.workers)
+        )
+        out_d, out_i, short = self._cap(dist, idx, k, max_per_group)
+        # Rows that did not find k admissible neighbours although their candidate list was full:
+        # search again with more candidates.
+        redo = short & np.isfinite(dist[:, -1])
+        while redo.any() and kc < self.n:
+            kc = min(self.n, kc * 4)
+            rows = np.flatnonzero(redo)
+            d2, i2 = _as_2d(
+                *self.tree.query(targets[rows], k=kc, distance_upper_bound=ub, workers=self.workers)
+            )
+            rd, ri, rshort = self._cap(d2, i2, k, max_per_group)
+            out_d[rows] = rd
+            out_i[rows] = ri
+            redo = np.zeros_like(redo)
+            redo[rows] = rshort & np.isfinite(d2[:, -1])
+        return out_d, out_i
+
+    def _cap(
+        self, dist: np.ndarray, idx: np.ndarray, k: int, cap: int
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Keep, per row, the first k candidates with at most ``cap`` from each group."""
+        m, kc = idx.shape
+        g = self.groups[idx]
+        order = np.argsort(g, axis=1, kind="stable")
+        gs = np.take_along_axis(g, order, axis=1)
+        cols = np.broadcast_to(np.arange(kc), (m, kc))
+        start = np.ones((m, kc), dtype=bool)
+        start[:, 1:] = gs[:, 1:] != gs[:, :-1]
+        run_start = np.maximum.accumulate(np.where(start, cols, 0), axis=1)
+        rank_sorted = cols - run_start
+        rank = np.empty_like(rank_sorted)
+        np.put_along_axis(rank, order, rank_sorted, axis=1)
+        keep = (rank < cap) & (idx < self.n)
+        pos = np.argsort(~keep, axis=1, kind="stable")[:, :k]
+        sel_keep = np.take_along_axis(keep, pos, axis=1)
+        out_i = np.where(sel_keep, np.take_along_axis(idx, pos, axis=1), self.n)
+        out_d = np.where(sel_keep, np.take_along_axis(dist, pos, axis=1), np.inf)
+        short = sel_keep.sum(axis=1) < k
+        return out_d, out_i, short
+
+
+def _as_2d(dist: np.ndarray, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Make the 1-D arrays a k-d tree returns for k = 1 into (m, 1) arrays."""
+    if dist.ndim == 1:
+        dist = dist[:, None]
+        idx = idx[:, None]
+    return dist, idx
