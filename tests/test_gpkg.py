@@ -1,0 +1,154 @@
+"""GeoPackage layers read back with geopandas in the site CRS, with their attributes."""
+
+from types import SimpleNamespace
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pyogrio
+import pyproj
+import pytest
+import shapely
+import xarray as xr
+
+from geo3d.io.gpkg import (
+    boring_summary,
+    contour_levels,
+    contour_lines,
+    injection_points_layer,
+    write_geopackage,
+    zones_layer,
+)
+
+CRS = "EPSG:32631"
+
+
+def borings():
+    return pd.DataFrame(
+        {
+            "boring_id": ["B1", "B2"],
+            "x": [100.0, 110.0],
+            "y": [200.0, 205.0],
+            "ground_elev": [12.0, 11.0],
+        }
+    )
+
+
+def samples():
+    return pd.DataFrame(
+        {
+            "boring_id": ["B1"] * 4 + ["B2"] * 3,
+            "depth": [0.0, 1.0, 2.0, 3.0, 0.0, 1.0, 2.5],
+            "depth_to_water": [1.5] * 4 + [1.2] * 3,
+            "log10_k": [-4.0, -5.0, -6.0, -7.0, -4.0, -4.0, -4.0],
+            "spike": [False, True, False, True, False, False, False],
+            "ionic": [False] * 7,
+        }
+    )
+
+
+def intervals():
+    return pd.DataFrame(
+        {
+            "boring_id": ["B1", "B1", "B2"],
+            "top": [0.0, 1.5, 0.0],
+            "bottom": [1.5, 3.0, 2.5],
+            "facies": ["transmissive", "storage", "transmissive"],
+        }
+    )
+
+
+def test_boring_summary():
+    water = pd.DataFrame({"boring_id": ["B2"], "depth_to_water": [1.3]})
+    gdf = boring_summary(
+        borings(), crs=CRS, samples=samples(), intervals=intervals(), water_levels=water
+    )
+    b1, b2 = gdf.iloc[0], gdf.iloc[1]
+    # Hand-counted from the tables above.
+    assert (b1.total_depth, b2.total_depth) == (3.0, 2.5)
+    assert (b1.transmissive_thickness, b2.transmissive_thickness) == (1.5, 2.5)
+    assert (b1.n_spike, b2.n_spike) == (2, 0)
+    assert (b1.n_samples, b2.n_samples) == (4, 3)
+    assert b1.mean_log10_k == pytest.approx(-5.5)
+    # Measured water level wins over the interpolated surface where a test exists.
+    assert (b1.depth_to_water, b1.water_level_source) == (1.5, "surface")
+    assert (b2.depth_to_water, b2.water_level_source) == (1.3, "dissipation")
+    assert gdf.geometry.iloc[1].equals(shapely.Point(110, 205))
+
+
+def test_contours_of_a_plane():
+    # f(x, y) = x on a regular grid: the contour at level L is the vertical line x = L.
+    x = np.arange(0.0, 10.0)
+    y = np.arange(0.0, 5.0)
+    da = xr.DataArray(
+        np.broadcast_to(x, (5, 10)).copy(),
+        dims=("y", "x"),
+        coords={"y": y, "x": x},
+        attrs={"units": "m"},
+    )
+    da[0, :] = np.nan  # outside the site
+    lines = contour_lines({"plane": da}, crs=CRS, levels={"plane": [2.5, 7.0]})
+    assert sorted(set(lines["level"])) == [2.5, 7.0]
+    for geom, level in zip(lines.geometry, lines["level"], strict=True):
+        xs, ys = np.asarray(geom.coords).T
+        np.testing.assert_allclose(xs, level)
+        # NaN row masked: the line runs from y = 1 to y = 4 only.
+        assert ys.min() == pytest.approx(1.0) and ys.max() == pytest.approx(4.0)
+    assert set(lines["units"]) == {"m"}
+    auto = contour_lines({"plane": da}, crs=CRS)
+    # MaxNLocator picks round steps of 1 inside (0, 9) (matplotlib ticker documentation).
+    assert sorted(set(auto["level"])) == [1.0, 2, 3, 4, 5, 6, 7, 8]
+
+
+def test_contour_levels_constant_map():
+    assert contour_levels(np.full(4, 3.0)).size == 0
+    assert contour_levels(np.full(4, np.nan)).size == 0
+
+
+def test_geopackage_round_trip(tmp_path):
+    zones = gpd.GeoDataFrame(
+        {"name": ["Z1", "Z2"], "top": [1.0, 2.0], "bottom": [3.0, 4.0], "reference": ["depth"] * 2},
+        geometry=[shapely.box(0, 0, 10, 10), shapely.box(20, 0, 30, 10)],
+        crs=CRS,
+    )
+    volumes = pd.DataFrame(
+        {
+            "zone": ["Z1", "Z1", "Z2", "Z2"],
+            "facies": ["storage", "transmissive"] * 2,
+            "volume_m3": [10.0, 20.0, 30.0, 40.0],
+            "pore_volume_m3": [4.5, 6.4, 13.5, 12.8],
+        }
+    )
+    zl = zones_layer(zones, crs=CRS, volumes=volumes)
+    assert zl.loc[zl.name == "Z2", "transmissive_volume_m3"].item() == 40.0
+    assert zl.loc[zl.name == "Z1", "storage_pore_volume_m3"].item() == 4.5
+    plan = SimpleNamespace(
+        points=gpd.GeoDataFrame(
+            {"volume_m3": [1.0, 2.0]}, geometry=gpd.points_from_xy([1, 2], [1, 2]), crs=CRS
+        )
+    )
+    pts = injection_points_layer({"Z1": plan, "Z2": SimpleNamespace(points=None)}, crs=CRS)
+    assert pts["zone"].tolist() == ["Z1", "Z1"]
+    x = np.arange(5.0)
+    da = xr.DataArray(np.add.outer(x, x), dims=("y", "x"), coords={"y": x, "x": x})
+    layers = {
+        "borings": boring_summary(borings(), crs=CRS, samples=samples()),
+        "zones": zl,
+        "injection_points": pts,
+        "contours": contour_lines({"sum": da}, crs=CRS),
+        "empty": gpd.GeoDataFrame({"a": []}, geometry=gpd.GeoSeries([], crs=CRS), crs=CRS),
+    }
+    path = write_geopackage(tmp_path / "site.gpkg", layers)
+    names = [name for name, _ in pyogrio.list_layers(path)]
+    assert sorted(names) == ["borings", "contours", "injection_points", "zones"]
+    for name in names:
+        back = gpd.read_file(path, layer=name)
+        assert pyproj.CRS(back.crs).equals(pyproj.CRS(CRS))
+        assert len(back) == len(layers[name])
+    back = gpd.read_file(path, layer="zones")
+    assert back.loc[back.name == "Z1", "transmissive_volume_m3"].item() == 20.0
+    back = gpd.read_file(path, layer="borings")
+    assert back["n_spike"].tolist() == [2, 0]
+    # Writing again replaces the file instead of appending duplicate layers.
+    write_geopackage(path, {"borings": layers["borings"]})
+    assert [n for n, _ in pyogrio.list_layers(path)] == ["borings"]
