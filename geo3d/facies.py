@@ -1,0 +1,289 @@
+"""Hydrofacies: classes of similar hydraulic behaviour from log10 K (and EC).
+
+Two ways to classify composited intervals:
+
+* thresholds on log10 K (defaults: storage < 1e-7 m/s <= transitional < 1e-5 m/s <=
+  transmissive; common practice), optionally with EC cut-offs that move an interval into a
+  lower-K class when its EC says it is finer than its K alone suggests;
+* a Gaussian mixture on standardized ``(log10 K, log10 EC)``, the number of classes chosen by
+  the Bayesian information criterion, classes ordered and named by their mean log10 K.
+
+Codes are integers from 0 (lowest-K class) up; -1 means unclassified (no log10 K).  A minimum
+layer thickness merges runs thinner than it into their neighbours.
+
+References
+----------
+.. [1] Freeze, R.A., Cherry, J.A. (1979) Groundwater, Table 2.2 (K ranges) and Table 2.4
+   (porosity).
+.. [2] Dempster, A.P., Laird, N.M., Rubin, D.B. (1977) Maximum likelihood from incomplete
+   data via the EM algorithm. J. R. Stat. Soc. B 39: 1-38.
+.. [3] Schwarz, G. (1978) Estimating the dimension of a model. Ann. Stat. 6: 461-464 (BIC).
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from sklearn.mixture import GaussianMixture
+
+from geo3d.errors import ModelError
+
+__all__ = [
+    "FaciesClass",
+    "DEFAULT_CLASSES",
+    "classify_thresholds",
+    "classify_mixture",
+    "apply_min_thickness",
+]
+
+logger = logging.getLogger(__name__)
+
+
+@dataclass(frozen=True)
+class FaciesClass:
+    """One hydrofacies class.
+
+    Attributes
+    ----------
+    name
+        Class name, e.g. ``"transmissive"``.
+    log10_k_max
+        Upper bound of log10 K (m/s) of the class (exclusive); ignored for the last class.
+    porosity
+        Total porosity, 0..1.
+    effective_porosity
+        Effective (drainable, flowing) porosity, 0..1.
+    """
+
+    name: str
+    log10_k_max: float
+    porosity: float
+    effective_porosity: float
+
+
+#: Default classes (common practice thresholds; porosities after Freeze & Cherry (1979)
+#: Table 2.4 and Johnson (1967), as in the site-file template).
+DEFAULT_CLASSES: tuple[FaciesClass, ...] = (
+    FaciesClass("storage", -7.0, 0.45, 0.05),
+    FaciesClass("transitional", -5.0, 0.38, 0.15),
+    FaciesClass("transmissive", 0.0, 0.32, 0.25),
+)
+
+
+def _check_classes(classes: Sequence) -> None:
+    if len(classes) == 0:
+        msg = "[facies] classes: expected at least one class"
+        raise ModelError(msg)
+    bounds = [float(c.log10_k_max) for c in classes[:-1]]
+    if any(b2 <= b1 for b1, b2 in zip(bounds, bounds[1:], strict=False)):
+        msg = f"[facies] classes: log10_k_max must increase from the first class up, got {bounds}"
+        raise ModelError(msg)
+
+
+def classify_thresholds(
+    log10_k,
+    classes: Sequence[FaciesClass] = DEFAULT_CLASSES,
+    *,
+    ec=None,
+    ec_cutoffs: Sequence[float | None] | None = None,
+) -> np.ndarray:
+    """Classify by thresholds on log10 K, optionally corrected by EC.
+
+    A value ``v`` belongs to the first class with ``v < log10_k_max``; the last class takes
+    everything above.
+
+    Parameters
+    ----------
+    log10_k
+        log10 K (m/s); NaN gives code -1.
+    classes
+        Classes from the lowest K up (objects with ``name`` and ``log10_k_max``).
+    ec
+        Bulk EC (mS/m) of each value, needed with ``ec_cutoffs``.
+    ec_cutoffs
+        One EC limit per class (None for no limit): an interval whose EC exceeds the limit of
+        its class moves down one class, repeatedly (high EC means finer grains).
+
+    Returns
+    -------
+    ndarray of int
+        0 for the lowest-K class, -1 for NaN input.
+
+    Examples
+    --------
+    >>> classify_thresholds([-8.0, -7.0, -5.0001, -5.0]).tolist()
+    [0, 1, 1, 2]
+    """
+    _check_classes(classes)
+    lk = np.asarray(log10_k, dtype=float)
+    bounds = np.array([float(c.log10_k_max) for c in classes[:-1]])
+    codes = np.searchsorted(bounds, lk, side="right").astype(int)
+    if ec_cutoffs is not None:
+        if ec is None:
+            msg = "EC cut-offs need the EC of each interval"
+            raise ModelError(msg)
+        if len(ec_cutoffs) != len(classes):
+            msg = (
+                f"[facies] EC cut-offs: expected {len(classes)} values (one per class), "
+                f"got {len(ec_cutoffs)}"
+            )
+            raise ModelError(msg)
+        ec = np.asarray(ec, dtype=float)
+        limits = np.array([np.inf if c is None else float(c) for c in ec_cutoffs])
+        for _ in range(len(classes)):
+            demote = (codes > 0) & np.isfinite(ec) & (ec > limits[codes])
+            if not demote.any():
+                break
+            codes = np.where(demote, codes - 1, codes)
+    codes[~np.isfinite(lk)] = -1
+    return codes
+
+
+def classify_mixture(
+    log10_k,
+    ec,
+    *,
+    max_classes: int = 5,
+    seed: int = 0,
+    classes: Sequence[FaciesClass] = DEFAULT_CLASSES,
+) -> tuple[np.ndarray, list[str]]:
+    """Classify by a Gaussian mixture on standardized ``(log10 K, log10 EC)``.
+
+    Mixtures of 1 to ``max_classes`` full-covariance components are fitted by EM; the count
+    with the lowest BIC is kept.  Components are ordered by their mean log10 K (code 0 = the
+    lowest) and named after the threshold class in which their mean log10 K falls; when the
+    count equals the number of threshold classes the names are taken in order.  Repeated names
+    get a suffix (``"transitional_2"``).
+
+    Parameters
+    ----------
+    log10_k
+        log10 K (m/s).
+    ec
+        Bulk EC, mS/m (> 0).
+    max_classes
+        Largest number of components tried.
+    seed
+        Random state of the EM initialisation.
+    classes
+        Threshold classes used to name the components.
+
+    Returns
+    -------
+    codes : ndarray of int
+        -1 where log10 K or EC is missing.
+    names : list of str
+        Name of each code.
+
+    Raises
+    ------
+    ModelError
+        With fewer valid intervals than ``3 * max_classes``.
+
+    References
+    ----------
+    .. [1] Dempster et al. (1977) EM; Schwarz (1978) BIC.
+    """
+    lk = np.asarray(log10_k, dtype=float)
+    ec = np.asarray(ec, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lec = np.where(ec > 0, np.log10(ec), np.nan)
+    ok = np.isfinite(lk) & np.isfinite(lec)
+    if ok.sum() < 3 * max_classes:
+        msg = (
+            f"Gaussian-mixture hydrofacies need at least {3 * max_classes} intervals with K "
+            f"and EC, got {int(ok.sum())}; use [facies] method = 'thresholds'"
+        )
+        raise ModelError(msg)
+    data = np.column_stack([lk[ok], lec[ok]])
+    data = (data - data.mean(axis=0)) / data.std(axis=0)
+    best, best_bic = None, np.inf
+    for n in range(1, max_classes + 1):
+        gm = GaussianMixture(n_components=n, covariance_type="full", random_state=seed, n_init=2)
+        gm.fit(data)
+        bic = gm.bic(data)
+        logger.debug("mixture with %d classes: BIC %.1f", n, bic)
+        if bic < best_bic:
+            best, best_bic = gm, bic
+    labels = best.predict(data)
+    order = np.argsort(best.means_[:, 0])
+    rank = np.empty_like(order)
+    rank[order] = np.arange(order.size)
+    codes = np.full(lk.size, -1, dtype=int)
+    codes[ok] = rank[labels]
+    means_k = np.array([lk[ok][rank[labels] == c].mean() for c in range(order.size)])
+    if order.size == len(classes):
+        names = [c.name for c in classes]
+    else:
+        base = classify_thresholds(means_k, classes)
+        names = []
+        for code in base:
+            name = classes[int(code)].name
+            count = sum(1 for n in names if n == name or n.startswith(name + "_"))
+            names.append(name if count == 0 else f"{name}_{count + 1}")
+    logger.info("mixture hydrofacies: %d classes by BIC (%s)", order.size, ", ".join(names))
+    return codes, names
+
+
+def apply_min_thickness(codes, top, bottom, groups, *, min_thickness: float) -> np.ndarray:
+    """Merge runs of one class thinner than ``min_thickness`` into their neighbours.
+
+    Within each group (boring), consecutive intervals of the same code form a run.  The
+    thinnest run below the minimum takes the code of its thicker neighbour (the only one at
+    either end) and runs are rebuilt, until every run is thick enough or the group is a single
+    run.  Unclassified intervals (-1) are never changed nor used as neighbours.
+
+    Parameters
+    ----------
+    codes
+        Class code per interval, sorted by depth within each group.
+    top, bottom
+        Interval depths, m.
+    groups
+        Boring id per interval.
+    min_thickness
+        m; 0 leaves the codes unchanged.
+
+    Returns
+    -------
+    ndarray of int
+
+    Examples
+    --------
+    >>> apply_min_thickness([2, 2, 0, 2, 2], [0, 1, 2, 2.1, 3], [1, 2, 2.1, 3, 4],
+    ...                     ["B"] * 5, min_thickness=0.3).tolist()
+    [2, 2, 2, 2, 2]
+    """
+    codes = np.asarray(codes, dtype=int).copy()
+    top = np.asarray(top, dtype=float)
+    bottom = np.asarray(bottom, dtype=float)
+    groups = np.asarray(groups)
+    if min_thickness <= 0:
+        return codes
+    for gid in np.unique(groups):
+        idx = np.flatnonzero(groups == gid)
+        idx = idx[codes[idx] >= 0]
+        while idx.size:
+            c = codes[idx]
+            starts = np.flatnonzero(np.r_[True, c[1:] != c[:-1]])
+            ends = np.r_[starts[1:], c.size]
+            if starts.size <= 1:
+                break
+            thick = np.array(
+                [bottom[idx[e - 1]] - top[idx[s]] for s, e in zip(starts, ends, strict=True)]
+            )
+            thin = np.flatnonzero(thick < min_thickness - 1e-9)
+            if thin.size == 0:
+                break
+            r = thin[np.argmin(thick[thin])]
+            if r == 0:
+                target = 1
+            elif r == starts.size - 1:
+                target = r - 1
+            else:
+                target = r - 1 if thick[r - 1] >= thick[r + 1] else r + 1
+            codes[idx[starts[r] : ends[r]]] = c[starts[target]]
+    return codes

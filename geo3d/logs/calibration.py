@@ -1,0 +1,291 @@
+"""Log-derived hydraulic conductivity and its calibration against slug tests.
+
+Steady injection through a probe screen of Hvorslev shape factor ``F`` gives
+``K = Q * gamma_w / (F * P_net)``, that is ``log10 K = a + b * log10(Q/P_net)`` with
+``a = log10(gamma_w / F)`` and ``b = 1``.  In practice ``F`` is an effective factor (skin,
+anisotropy, partial saturation), so where slug tests exist ``a`` and ``b`` are fitted to them:
+each slug test, which measures K over its screen, is compared with the arithmetic mean of the
+predicted K of the log samples over that screen (flow through parallel layers), and the misfit
+``log10 K_slug - log10 mean(K_pred)`` is minimised by nonlinear least squares.
+
+References
+----------
+.. [1] Hvorslev, M.J. (1951) Time lag and soil permeability in ground-water observations.
+   US Army Corps of Engineers, Waterways Experiment Station, Bulletin 36.
+.. [2] Dietrich, P., Butler, J.J., Faiss, K. (2008) A rapid method for hydraulic profiling in
+   unconsolidated formations. Ground Water 46(2): 323-328 (injection ratio calibrated to
+   slug tests).
+"""
+
+from __future__ import annotations
+
+import logging
+import warnings
+from dataclasses import asdict, dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy.optimize import curve_fit
+from scipy.special import logsumexp
+
+from geo3d.errors import Geo3dWarning
+from geo3d.logs.hydraulic import GAMMA_W
+
+__all__ = ["Calibration", "physics_coefficients", "calibrate", "screen_samples"]
+
+logger = logging.getLogger(__name__)
+
+_LN10 = np.log(10.0)
+
+
+def physics_coefficients(shape_factor_m: float) -> tuple[float, float]:
+    """Coefficients ``(a, b)`` of ``log10 K = a + b*log10(Q/P_net)`` from physics alone.
+
+    ``a = log10(gamma_w / F)``, ``b = 1`` (Q in m3/s, P_net in kPa, F in m, K in m/s).
+
+    References
+    ----------
+    .. [1] Hvorslev (1951), steady injection.
+
+    Examples
+    --------
+    >>> a, b = physics_coefficients(9.80665)
+    >>> round(a, 12), b
+    (0.0, 1.0)
+    """
+    return float(np.log10(GAMMA_W / shape_factor_m)), 1.0
+
+
+@dataclass
+class Calibration:
+    """Coefficients of ``log10 K = a + b*log10(Q/P_net)`` and how they were found.
+
+    Attributes
+    ----------
+    method
+        ``"slug_tests"`` (fitted) or ``"physics"`` (Hvorslev shape factor, ``b = 1``).
+    a, b
+        Coefficients.
+    se_a, se_b
+        Standard errors from the fit's covariance (NaN for physics).
+    n_tests
+        Number of slug tests the fit rests on.
+    r2
+        Coefficient of determination in log10 K over the slug tests (NaN when undefined).
+    residuals
+        One dict per slug test: ``boring_id, top_depth, bottom_depth, k_slug, k_predicted,
+        log10_residual`` (slug minus predicted), ``n_samples``.
+    """
+
+    method: str
+    a: float
+    b: float
+    se_a: float = float("nan")
+    se_b: float = float("nan")
+    n_tests: int = 0
+    r2: float = float("nan")
+    residuals: list[dict] = field(default_factory=list)
+
+    def log10_k(self, q_over_p) -> np.ndarray:
+        """Log10 K (m/s) from the injection ratio Q/P_net (m3/s/kPa); NaN where it is <= 0."""
+        ratio = np.asarray(q_over_p, dtype=float)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out = np.where(ratio > 0, self.a + self.b * np.log10(ratio), np.nan)
+        return out
+
+    def as_dict(self) -> dict:
+        """Plain dict for JSON output."""
+        return asdict(self)
+
+
+def screen_samples(
+    samples: pd.DataFrame, slug_tests: pd.DataFrame, *, usable: np.ndarray | None = None
+) -> list[np.ndarray]:
+    """Log10 of the injection ratio of the usable samples inside each slug-test screen.
+
+    Parameters
+    ----------
+    samples
+        Columns ``boring_id, depth, q_over_p``.
+    slug_tests
+        Columns ``boring_id, top_depth, bottom_depth, k``.
+    usable
+        Boolean mask of samples fit for K (not flagged); all when None.
+
+    Returns
+    -------
+    list of ndarray
+        One array per slug test (possibly empty).
+    """
+    ok = np.ones(len(samples), bool) if usable is None else np.asarray(usable, bool)
+    ratio = samples["q_over_p"].to_numpy(dtype=float)
+    ok = ok & np.isfinite(ratio) & (ratio > 0)
+    boring = samples["boring_id"].to_numpy()
+    depth = samples["depth"].to_numpy(dtype=float)
+    out = []
+    for test in slug_tests.itertuples(index=False):
+        inside = (
+            ok
+            & (boring == test.boring_id)
+            & (depth >= test.top_depth)
+            & (depth <= test.bottom_depth)
+        )
+        out.append(np.log10(ratio[inside]))
+    return out
+
+
+def _screen_prediction(groups: list[np.ndarray], a: float, b: float) -> np.ndarray:
+    # log10 of the arithmetic mean of 10**(a + b*x) over each screen, computed stably
+    return np.array(
+        [a + (logsumexp(b * x * _LN10) - np.log(x.size)) / _LN10 for x in groups], dtype=float
+    )
+
+
+def _residual_table(slug_tests, groups, predicted) -> list[dict]:
+    rows = []
+    for test, x, pred in zip(slug_tests.itertuples(index=False), groups, predicted, strict=True):
+        rows.append(
+            {
+                "boring_id": str(test.boring_id),
+                "top_depth": float(test.top_depth),
+                "bottom_depth": float(test.bottom_depth),
+                "k_slug": float(test.k),
+                "k_predicted": float(10.0**pred),
+                "log10_residual": float(np.log10(test.k) - pred),
+                "n_samples": int(x.size),
+            }
+        )
+    return rows
+
+
+def _r2(observed: np.ndarray, predicted: np.ndarray) -> float:
+    if observed.size < 2:
+        return float("nan")
+    total = np.sum((observed - observed.mean()) ** 2)
+    if total == 0:
+        return float("nan")
+    return float(1.0 - np.sum((observed - predicted) ** 2) / total)
+
+
+def calibrate(
+    samples: pd.DataFrame,
+    slug_tests: pd.DataFrame | None,
+    *,
+    shape_factor_m: float,
+    min_slug_tests: int = 3,
+    usable: np.ndarray | None = None,
+    min_samples_per_test: int = 3,
+) -> Calibration:
+    """Fit ``log10 K = a + b*log10(Q/P_net)`` to slug tests, or fall back to physics.
+
+    Parameters
+    ----------
+    samples
+        Per-sample table with ``boring_id, depth, q_over_p`` (m3/s/kPa).
+    slug_tests
+        ``boring_id, top_depth, bottom_depth, k`` (m, m/s); may be None or empty.
+    shape_factor_m
+        Hvorslev shape factor of the screen, m (start point and physics fallback).
+    min_slug_tests
+        With fewer usable slug tests than this (and never fewer than 2), physics is used, with
+        a :class:`Geo3dWarning`.
+    usable
+        Boolean mask of samples fit for K (e.g. not above water, not out of range).
+    min_samples_per_test
+        Slug tests whose screen holds fewer usable samples are left out (with a warning).
+
+    Returns
+    -------
+    Calibration
+
+    References
+    ----------
+    .. [1] Hvorslev (1951); Dietrich et al. (2008).
+    """
+    a0, b0 = physics_coefficients(shape_factor_m)
+    if slug_tests is None or len(slug_tests) == 0:
+        warnings.warn(
+            "no slug tests: log-derived K rests on the probe's shape factor alone (physics)",
+            Geo3dWarning,
+            stacklevel=2,
+        )
+        return Calibration("physics", a0, b0)
+    tests = slug_tests.reset_index(drop=True)
+    groups = screen_samples(samples, tests, usable=usable)
+    keep = np.array([g.size >= min_samples_per_test for g in groups], dtype=bool)
+    for test, kept in zip(tests.itertuples(index=False), keep, strict=True):
+        if not kept:
+            warnings.warn(
+                f"slug test in boring {test.boring_id} "
+                f"({test.top_depth:g}-{test.bottom_depth:g} m): "
+                f"fewer than {min_samples_per_test} usable log samples over its screen; left out",
+                Geo3dWarning,
+                stacklevel=2,
+            )
+    tests = tests[keep].reset_index(drop=True)
+    groups = [g for g, kept in zip(groups, keep, strict=True) if kept]
+    observed = np.log10(tests["k"].to_numpy(dtype=float))
+    needed = max(int(min_slug_tests), 2)
+    if len(groups) < needed:
+        warnings.warn(
+            f"{len(groups)} usable slug test(s), fewer than {needed}: log-derived K rests on "
+            "the probe's shape factor alone (physics)",
+            Geo3dWarning,
+            stacklevel=2,
+        )
+        predicted = _screen_prediction(groups, a0, b0) if groups else np.array([])
+        return Calibration(
+            "physics",
+            a0,
+            b0,
+            n_tests=len(groups),
+            r2=_r2(observed, predicted),
+            residuals=_residual_table(tests, groups, predicted),
+        )
+
+    index = np.arange(len(groups), dtype=float)
+
+    def model(idx, a, b):
+        return _screen_prediction([groups[int(i)] for i in idx], a, b)
+
+    params, cov = curve_fit(model, index, observed, p0=(a0, b0), maxfev=10000)
+    a, b = (float(v) for v in params)
+    with np.errstate(invalid="ignore"):
+        se = np.sqrt(np.diag(cov)) if np.all(np.isfinite(cov)) else np.array([np.nan, np.nan])
+    if not b > 0:
+        warnings.warn(
+            f"slug-test calibration gave slope b = {b:.3f} <= 0 (K falling as Q/P rises); "
+            "using physics instead",
+            Geo3dWarning,
+            stacklevel=2,
+        )
+        predicted = _screen_prediction(groups, a0, b0)
+        return Calibration(
+            "physics",
+            a0,
+            b0,
+            n_tests=len(groups),
+            r2=_r2(observed, predicted),
+            residuals=_residual_table(tests, groups, predicted),
+        )
+    predicted = _screen_prediction(groups, a, b)
+    result = Calibration(
+        "slug_tests",
+        a,
+        b,
+        float(se[0]),
+        float(se[1]),
+        len(groups),
+        _r2(observed, predicted),
+        _residual_table(tests, groups, predicted),
+    )
+    logger.info(
+        "calibration on %d slug tests: a=%.3f+-%.3f b=%.3f+-%.3f r2=%.3f",
+        result.n_tests,
+        a,
+        result.se_a,
+        b,
+        result.se_b,
+        result.r2,
+    )
+    return result
