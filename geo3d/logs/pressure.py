@@ -48,13 +48,14 @@ def atmospheric_pressure(
     pressure: np.ndarray,
     *,
     window: float = 0.05,
+    plausible: tuple[float, float] = (60.0, 110.0),
     boring_id: str | None = None,
 ) -> float:
     """Atmospheric pressure read by the logger at the collar, before the probe enters soil.
 
     The readings taken within ``window`` metres of the first recorded depth (the probe at or
     near the surface, above the water table) are averaged with a median, which ignores a stray
-    reading.
+    reading.  The standard atmosphere is 101.325 kPa (ISO 2533; NIST SP 811).
 
     Parameters
     ----------
@@ -64,6 +65,10 @@ def atmospheric_pressure(
         Recorded absolute pressure, kPa.
     window
         Depth span, m, from the first reading, over which readings are taken as atmospheric.
+    plausible
+        Range of atmospheric pressure, kPa (sea level to about 4000 m of altitude).  A reading
+        outside it is not atmospheric (flow already on, or the log starts below the collar):
+        the standard atmosphere is used instead, with a :class:`Geo3dWarning`.
     boring_id
         Used in messages only.
 
@@ -89,14 +94,16 @@ def atmospheric_pressure(
     top = depth[ok].min()
     near = ok & (depth <= top + window)
     value = float(np.median(pressure[near]))
-    if not 80.0 <= value <= 110.0:
+    if not plausible[0] <= value <= plausible[1]:
         warnings.warn(
-            f"boring {boring_id!r}: atmospheric pressure read at the collar is {value:.2f} kPa, "
-            "outside 80-110 kPa; check that pressure is absolute, or give "
-            "[probe] atmospheric_pressure",
+            f"boring {boring_id!r}: the pressure read at the top of the log is {value:.2f} kPa, "
+            f"outside {plausible[0]:g}-{plausible[1]:g} kPa, so it is not atmospheric (the log "
+            f"starts below the collar or with flow on); using the standard atmosphere "
+            f"{STANDARD_ATMOSPHERE} kPa. Give [probe] atmospheric_pressure to override",
             Geo3dWarning,
             stacklevel=2,
         )
+        return STANDARD_ATMOSPHERE
     return value
 
 

@@ -233,7 +233,7 @@ def process_logs(site: Any) -> LogResults:
     samples["y"] = collar["y"].reindex(ids).to_numpy(dtype=float)
     ground = collar["ground_elev"].reindex(ids).to_numpy(dtype=float)
     own = per_boring.set_index(per_boring["boring_id"].astype(str))["wt_elev"]
-    wt = own.reindex(ids).to_numpy(dtype=float)
+    wt = np.array(own.reindex(ids).to_numpy(dtype=float))
     missing = ~np.isfinite(wt)
     if missing.any():
         wt[missing] = surface.elevation(

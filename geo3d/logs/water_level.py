@@ -55,7 +55,7 @@ __all__ = [
 
 logger = logging.getLogger(__name__)
 
-_MIN_POINTS = 6
+_MIN_POINTS = 5
 
 
 @dataclass(frozen=True)
@@ -143,10 +143,10 @@ def static_pressure(
     """Find the static pressure of one dissipation record.
 
     The record is fitted with ``P(t) = P_inf + dP * exp(-t/T)`` by nonlinear least squares
-    (:func:`scipy.optimize.curve_fit`).  When the fitted excess left at the record's tail is
-    within ``tail_tolerance`` the record has reached equilibrium and its tail (last tenth of
-    the record) is averaged; otherwise ``P_inf`` of the fit is used.  Aitken's formula on the
-    smoothed record at the start, middle and end is computed as a cross-check.
+    (:func:`scipy.optimize.curve_fit`).  When the fitted excess is within ``tail_tolerance`` at
+    three readings or more, the record has reached equilibrium and those settled readings are
+    averaged; otherwise ``P_inf`` of the fit is used.  Aitken's formula on the smoothed record
+    at the start, middle and end is computed as a cross-check.
 
     Parameters
     ----------
@@ -237,9 +237,9 @@ def static_pressure(
         )
         raise WaterLevelError(msg)
 
-    remaining = abs(excess) * float(np.exp(-0.95 * duration / time_constant))
-    if remaining <= tail_tolerance:
-        method, value = "tail", tail_mean
+    settled = abs(excess) * np.exp(-t / time_constant) <= tail_tolerance
+    if settled.sum() >= 3:
+        method, value = "tail", float(p[settled].mean())
     else:
         method, value = "exponential", p_inf
         if fraction < warn_fraction_dissipated:
