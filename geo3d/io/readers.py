@@ -49,6 +49,11 @@ def _lines(rows: Sequence[int], first_line: int) -> str:
     return f"{label} {', '.join(shown)}{more}"
 
 
+def _place(path: str | PathLike, rows: Sequence[int], first_line: int, column: str) -> str:
+    """Name the file, the lines of the bad rows and the column."""
+    return f"{path}, {_lines(rows, first_line)}, column '{column}'"
+
+
 def read_table(
     path: str | PathLike,
     *,
@@ -186,17 +191,14 @@ def numeric_column(
         bad = np.flatnonzero(np.isnan(values) & ~empty)
         if bad.size:
             sample = ", ".join(repr(str(raw.iloc[i])) for i in bad[:3])
-            msg = (
-                f"{where(path, column=column)}, {_lines(bad, first)}: not a number ({sample}); "
-                "expected a number"
-            )
+            msg = f"{_place(path, bad, first, column)}: not a number ({sample}); expected a number"
             raise error(msg)
     else:
         values = pd.to_numeric(raw, errors="coerce").to_numpy(float)
         empty = np.isnan(values)
     if not allow_empty and np.any(np.isnan(values)):
         bad = np.flatnonzero(np.isnan(values))
-        msg = f"{where(path, column=column)}, {_lines(bad, first)}: empty cell; expected a number"
+        msg = f"{_place(path, bad, first, column)}: empty cell; expected a number"
         raise error(msg)
     if minimum is not None:
         low = values <= minimum if exclusive_minimum else values < minimum
@@ -204,7 +206,7 @@ def numeric_column(
         if bad.size:
             sign = ">" if exclusive_minimum else ">="
             msg = (
-                f"{where(path, column=column)}, {_lines(bad, first)}: value "
+                f"{_place(path, bad, first, column)}: value "
                 f"{values[bad[0]]:g} out of range; expected a number {sign} {minimum:g}"
             )
             raise error(msg)
@@ -216,7 +218,7 @@ def _id_column(frame: pd.DataFrame, column: str, *, path: str | PathLike) -> pd.
     ids = frame[column].astype(str).str.strip()
     empty = np.flatnonzero((ids == "").to_numpy() | frame[column].isna().to_numpy())
     if empty.size:
-        msg = f"{where(path, column=column)}, {_lines(empty, first)}: empty cell; expected an id"
+        msg = f"{_place(path, empty, first, column)}: empty cell; expected an id"
         raise TableFormatError(msg)
     return ids
 
@@ -280,7 +282,7 @@ def read_borings(path: str | PathLike, *, length_unit: str = "m") -> pd.DataFram
         rows = np.flatnonzero(duplicated)
         names = sorted(set(ids[duplicated]))
         msg = (
-            f"{where(file, column='boring_id')}, {_lines(rows, first)}: duplicate boring id "
+            f"{_place(file, rows, first, 'boring_id')}: duplicate boring id "
             f"{', '.join(map(repr, names))}; expected each boring once"
         )
         raise TableFormatError(msg)
@@ -292,7 +294,7 @@ def read_borings(path: str | PathLike, *, length_unit: str = "m") -> pd.DataFram
         bad = np.flatnonzero(dates.isna().to_numpy() & (frame["date"].astype(str) != ""))
         if bad.size:
             msg = (
-                f"{where(file, column='date')}, {_lines(bad, first)}: not a date "
+                f"{_place(file, bad, first, 'date')}: not a date "
                 f"({frame['date'].iloc[bad[0]]!r}); expected an ISO date such as 2026-05-31"
             )
             raise TableFormatError(msg)
@@ -408,7 +410,7 @@ def read_slug_tests(
     bad = np.flatnonzero(out["bottom_depth"].to_numpy() <= out["top_depth"].to_numpy())
     if bad.size:
         msg = (
-            f"{where(file, column='bottom_depth')}, {_lines(bad, first)}: bottom_depth not "
+            f"{_place(file, bad, first, 'bottom_depth')}: bottom_depth not "
             "below top_depth; expected top_depth < bottom_depth"
         )
         raise TableFormatError(msg)
@@ -453,7 +455,7 @@ def read_sensor_checks(
         bad = np.flatnonzero(~values.isin(allowed).to_numpy())
         if bad.size:
             msg = (
-                f"{where(file, column=column)}, {_lines(bad, first)}: "
+                f"{_place(file, bad, first, column)}: "
                 f"{frame[column].iloc[bad[0]]!r} is not a {column}; expected one of "
                 f"{', '.join(allowed)}"
             )

@@ -1,0 +1,266 @@
+"""The ``geo3d`` command line: a thin layer over the library.
+
+One click group, one function per command. Every command is wrapped in :func:`handle_errors`,
+so bad input prints a one-line (or one-line-per-problem) message and exits with code 2, never
+a traceback; ``-v`` shows the traceback of unexpected failures. Heavy imports stay inside the
+commands so that ``geo3d --help`` is fast.
+
+To add a command::
+
+    @main.command()
+    @click.argument("site", type=SITE_PATH)
+    @handle_errors
+    def mycommand(site):
+        from geo3d.something import work
+
+        work(site)
+"""
+
+from __future__ import annotations
+
+import functools
+import logging
+import sys
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any, TypeVar
+
+import click
+
+from geo3d import __version__
+from geo3d.errors import Geo3dError
+
+__all__ = ["main", "handle_errors", "console", "error_console", "SITE_PATH", "EXIT_INPUT"]
+
+#: Exit code for bad input (a Geo3dError).
+EXIT_INPUT = 2
+#: Exit code for an unexpected failure.
+EXIT_FAILURE = 1
+
+#: A site folder argument.
+SITE_PATH = click.Path(exists=True, file_okay=True, dir_okay=True, path_type=Path)
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+_console = None
+_error_console = None
+
+
+def console():
+    """Return the rich console for normal output (stdout)."""
+    global _console
+    if _console is None:
+        from rich.console import Console
+
+        _console = Console(highlight=False)
+    return _console
+
+
+def error_console():
+    """Return the rich console for messages (stderr)."""
+    global _error_console
+    if _error_console is None:
+        from rich.console import Console
+
+        _error_console = Console(stderr=True, highlight=False, soft_wrap=True)
+    return _error_console
+
+
+def _verbosity() -> int:
+    ctx = click.get_current_context(silent=True)
+    while ctx is not None:
+        if isinstance(ctx.obj, dict) and "verbosity" in ctx.obj:
+            return int(ctx.obj["verbosity"])
+        ctx = ctx.parent
+    return 0
+
+
+def _print_error(text: str) -> None:
+    from rich.markup import escape
+
+    error_console().print(f"[bold red]Error:[/bold red] [red]{escape(text)}[/red]")
+
+
+def handle_errors(function: F) -> F:
+    """Turn errors into clean messages and exit codes for a command.
+
+    A :class:`~geo3d.errors.Geo3dError` prints its message (every problem, when there are
+    several) in red on stderr and exits with code 2. Any other exception prints a short
+    message and a hint to run with ``-v``; with ``-v`` the traceback is shown too; exit code 1.
+    """
+
+    @functools.wraps(function)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        try:
+            return function(*args, **kwargs)
+        except (click.exceptions.Exit, click.ClickException, click.Abort):
+            raise
+        except Geo3dError as exc:
+            problems = getattr(exc, "problems", None)
+            if problems:
+                _print_error(f"{len(problems)} problems found:")
+                from rich.markup import escape
+
+                for problem in problems:
+                    error_console().print(f"[red]  - {escape(problem)}[/red]")
+            else:
+                _print_error(str(exc))
+            sys.exit(EXIT_INPUT)
+        except KeyboardInterrupt:
+            _print_error("interrupted")
+            sys.exit(130)
+        except Exception as exc:
+            if _verbosity() > 0:
+                import traceback
+
+                error_console().print(traceback.format_exc(), markup=False)
+            _print_error(
+                f"unexpected {type(exc).__name__}: {exc}"
+                + ("" if _verbosity() > 0 else " (run with -v for details)")
+            )
+            sys.exit(EXIT_FAILURE)
+
+    return wrapper  # type: ignore[return-value]
+
+
+def _configure_logging(verbosity: int) -> None:
+    level = {-1: logging.ERROR, 0: logging.WARNING, 1: logging.INFO}.get(
+        max(-1, min(verbosity, 2)), logging.DEBUG
+    )
+    root = logging.getLogger("geo3d")
+    root.setLevel(level)
+    if not any(getattr(h, "_geo3d_cli", False) for h in root.handlers):
+        from rich.logging import RichHandler
+
+        handler = RichHandler(console=error_console(), show_path=False, show_time=False)
+        handler._geo3d_cli = True  # type: ignore[attr-defined]
+        root.addHandler(handler)
+    for handler in root.handlers:
+        handler.setLevel(level)
+
+
+def _show_warnings(quiet: bool) -> None:
+    """Print geo3d warnings as yellow one-liners (hidden with -q)."""
+    import warnings
+
+    from geo3d.errors import Geo3dWarning
+
+    def show(message, category, filename, lineno, file=None, line=None):  # noqa: ANN001
+        if quiet and issubclass(category, Geo3dWarning):
+            return
+        from rich.markup import escape
+
+        label = "Warning" if issubclass(category, Geo3dWarning) else category.__name__
+        error_console().print(f"[yellow]{label}:[/yellow] {escape(str(message))}")
+
+    warnings.showwarning = show
+    warnings.simplefilter("default", Geo3dWarning)
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.option("-v", "--verbose", count=True, help="More messages (-vv for debug).")
+@click.option("-q", "--quiet", count=True, help="Fewer messages (errors only).")
+@click.version_option(__version__, "--version", prog_name="geo3d")
+@click.pass_context
+def main(ctx: click.Context, verbose: int, quiet: int) -> None:
+    """geo3d: from direct-push injection logs to a 3D hydrogeological site model."""
+    ctx.ensure_object(dict)
+    ctx.obj["verbosity"] = verbose - quiet
+    _configure_logging(verbose - quiet)
+    _show_warnings(quiet > 0)
+
+
+@main.command()
+@click.argument("folder", type=click.Path(file_okay=False, path_type=Path))
+@click.option("--force", is_flag=True, help="Overwrite an existing site.toml.")
+@handle_errors
+def init(folder: Path, force: bool) -> None:
+    """Write a commented site.toml template into FOLDER."""
+    from geo3d.config import TEMPLATE
+    from geo3d.errors import OutputExistsError
+    from geo3d.io.atomic import atomic_file
+
+    target = folder / "site.toml"
+    if target.exists() and not force:
+        msg = f"{target} exists; expected a folder without site.toml (use --force to overwrite)"
+        raise OutputExistsError(msg)
+    folder.mkdir(parents=True, exist_ok=True)
+    with atomic_file(target) as tmp:
+        tmp.write_text(TEMPLATE.read_text(encoding="utf-8"), encoding="utf-8")
+    out = console()
+    out.print(f"Wrote {target}. Edit [site] name and crs, then add:", markup=False)
+    for line in (
+        "borings.csv        boring_id, x, y, ground_elev [, date]",
+        "logs/<boring>.csv  one injection log per boring (or LAS 2.0 *.las)",
+        "dissipation.csv    boring_id, depth, time_s, pressure",
+        "optional: slug_tests.csv, sensor_checks.csv, boundary and zones (GeoJSON/GeoPackage)",
+    ):
+        out.print(f"  {line}", markup=False)
+    out.print(f"Then run: geo3d check {folder}", markup=False)
+
+
+def _range(values) -> str:
+    import numpy as np
+
+    values = np.asarray(values, dtype=float)
+    values = values[np.isfinite(values)]
+    if values.size == 0:
+        return "-"
+    return f"{values.min():.2f} to {values.max():.2f}"
+
+
+def site_summary(site) -> Any:
+    """Build a rich table summarising a :class:`~geo3d.site.Site`."""
+    from rich.table import Table
+
+    table = Table(title=f"Site: {site.name}", show_header=False, title_justify="left")
+    table.add_column("item", style="bold")
+    table.add_column("value")
+    samples = site.samples
+    per_boring = samples.groupby("boring_id").size() if len(samples) else None
+    units = site.config.units
+    table.add_row("folder", str(site.root))
+    table.add_row("CRS", f"{site.crs.name}")
+    table.add_row(
+        "input units",
+        f"{units.length}, {units.pressure} ({units.pressure_reference}), {units.flow}, {units.ec}",
+    )
+    table.add_row("borings", str(len(site.borings)))
+    table.add_row(
+        "samples",
+        f"{len(samples)}"
+        + (
+            f" ({per_boring.min()} to {per_boring.max()} per boring)"
+            if per_boring is not None
+            else ""
+        ),
+    )
+    table.add_row("depth range (m)", _range(samples["depth"]))
+    table.add_row("elevation range (m)", _range(samples["elev"]))
+    table.add_row("ground elevation (m)", _range(site.borings["ground_elev"]))
+    n_tests = site.dissipation["test_id"].nunique() if len(site.dissipation) else 0
+    dtw = site.config.water.depth_to_water
+    water = f"{n_tests}" + ("" if isinstance(dtw, str) else f" (depth to water set: {dtw:g} m)")
+    table.add_row("dissipation tests", water)
+    table.add_row("slug tests", str(len(site.slug_tests)))
+    table.add_row("sensor checks", str(len(site.sensor_checks)))
+    zones = ", ".join(map(str, site.zones["name"])) if len(site.zones) else "none"
+    table.add_row("treatment zones", f"{len(site.zones)} ({zones})" if len(site.zones) else zones)
+    source = site.config.files.boundary or "hull of the borings"
+    table.add_row("boundary area (m2)", f"{site.boundary.area:,.0f} ({source})")
+    if site.dem is not None:
+        table.add_row("DEM", f"{site.dem[0].shape[1]} x {site.dem[0].shape[0]} cells")
+    return table
+
+
+@main.command()
+@click.argument("site", type=SITE_PATH)
+@handle_errors
+def check(site: Path) -> None:
+    """Read and validate the site folder SITE, and summarise it (or list every problem)."""
+    from geo3d.site import read_site
+
+    result = read_site(site)
+    out = console()
+    out.print(site_summary(result))
+    out.print("[green]Site is valid.[/green]")
