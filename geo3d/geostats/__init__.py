@@ -6,5 +6,24 @@ arrays.
 
 from geo3d.geostats.covariance import KINDS, CovarianceModel, correlation
 from geo3d.geostats.kriging import OrdinaryKriging
+from geo3d.geostats.variogram import (
+    VariogramFit,
+    experimental_horizontal,
+    experimental_isotropic,
+    experimental_vertical,
+    fit_anisotropic,
+    fit_model,
+)
 
-__all__ = ["KINDS", "CovarianceModel", "OrdinaryKriging", "correlation"]
+__all__ = [
+    "KINDS",
+    "CovarianceModel",
+    "OrdinaryKriging",
+    "VariogramFit",
+    "correlation",
+    "experimental_horizontal",
+    "experimental_isotropic",
+    "experimental_vertical",
+    "fit_anisotropic",
+    "fit_model",
+]
