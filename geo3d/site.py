@@ -409,5 +409,5 @@ def _read_dem(path: Path, *, config: SiteConfig) -> tuple[np.ndarray, Any]:
         )
         raise CRSError(msg)
     scale = declared.axis_info[0].unit_conversion_factor
-    transform = Affine.scale(scale) * transform
+    transform = Affine.scale(scale) @ transform
     return to_internal(elevation, config.units.length, "length"), transform
