@@ -1,0 +1,802 @@
+"""The whole job as a sequence of library calls: site -> logs -> model -> volumes -> outputs.
+
+Each stage is a plain function usable from a notebook; :func:`run` chains them and writes every
+output into one folder.  This is the only module that reads the :class:`~geo3d.config.SiteConfig`
+to choose options for the library functions.
+
+Outputs are built in a staging folder (:func:`geo3d.io.atomic.output_folder`) that replaces the
+output folder only when the whole run succeeded, so a failed run leaves nothing half-written.
+The folder holds a ``run.log`` (every log record and warning of the run) and ``run.json``
+(timings per stage, the files written, the headline figures).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import logging
+import platform
+import time
+import warnings
+from collections.abc import Callable, Iterator, Sequence
+from dataclasses import dataclass, field
+from datetime import UTC, datetime
+from os import PathLike
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import xarray as xr
+
+from geo3d import __version__
+from geo3d.errors import Geo3dError, Geo3dWarning, ModelError
+
+__all__ = [
+    "STAGES",
+    "RunResults",
+    "run",
+    "run_check",
+    "run_logs",
+    "run_model",
+    "run_volumes",
+    "run_export",
+    "run_report",
+    "headline_volumes",
+    "planned_stages",
+    "model_options",
+]
+
+logger = logging.getLogger(__name__)
+
+#: Stages of a run, in order.
+STAGES: tuple[str, ...] = ("check", "logs", "model", "volumes", "export", "report")
+
+#: Called as ``progress(stage, fraction_done, message)``; fraction in [0, 1].
+ProgressCallback = Callable[[str, float, str], None]
+
+
+@dataclass
+class RunResults:
+    """Everything a run computed.
+
+    Attributes
+    ----------
+    site
+        The validated input (:class:`geo3d.site.Site`).
+    logs
+        Result of the logs stage (:class:`geo3d.logs.process.LogResults`).
+    model
+        Result of the model stage (:class:`geo3d.model.ModelResult`).
+    maps
+        2D maps on the model's ``(y, x)`` grid: thickness maps, water table, depth to water.
+    volumes
+        Volumes per zone, depth band and facies (:func:`geo3d.analysis.volumes.zone_volumes`).
+    injection
+        Zone name -> :class:`geo3d.analysis.injection.InjectionPlan`.
+    timings
+        Stage -> wall-clock seconds.
+    outputs
+        Files written, relative to the output folder.
+    out_dir
+        The output folder (None when nothing was written).
+    """
+
+    site: Any
+    logs: Any = None
+    model: Any = None
+    maps: dict[str, xr.DataArray] = field(default_factory=dict)
+    volumes: pd.DataFrame | None = None
+    injection: dict[str, Any] = field(default_factory=dict)
+    timings: dict[str, float] = field(default_factory=dict)
+    outputs: list[Path] = field(default_factory=list)
+    out_dir: Path | None = None
+
+    @property
+    def dataset(self) -> xr.Dataset | None:
+        """The voxel model Dataset (None before the model stage)."""
+        return None if self.model is None else getattr(self.model, "dataset", self.model)
+
+
+# --------------------------------------------------------------------------- stages
+
+
+def run_check(site_path: str | PathLike) -> Any:
+    """Read and validate a site folder.
+
+    Parameters
+    ----------
+    site_path
+        Site folder (or its ``site.toml``).
+
+    Returns
+    -------
+    geo3d.site.Site
+    """
+    from geo3d.site import read_site
+
+    return read_site(site_path)
+
+
+def run_logs(site: Any) -> Any:
+    """Process every injection log: water level, K, flags, intervals, hydrofacies.
+
+    Parameters
+    ----------
+    site
+        A :class:`geo3d.site.Site`.
+
+    Returns
+    -------
+    geo3d.logs.process.LogResults
+    """
+    from geo3d.logs.process import process_logs
+
+    return process_logs(site)
+
+
+def _facies_classes(site: Any, logs: Any = None) -> list[Any]:
+    classes = list(getattr(logs, "facies_classes", None) or [])
+    if classes:
+        return classes
+    from geo3d.facies import FaciesClass
+
+    return [
+        FaciesClass(
+            name=c.name,
+            log10_k_max=c.log10_k_max,
+            porosity=c.porosity,
+            effective_porosity=c.effective_porosity,
+        )
+        for c in site.config.facies.classes
+    ]
+
+
+def _auto(value: Any) -> Any:
+    return None if isinstance(value, str) and value == "auto" else value
+
+
+def model_options(site: Any, *, n_realizations: int | None = None) -> dict[str, Any]:
+    """Keyword options of :func:`geo3d.model.build_voxel_model` from the site file.
+
+    Parameters
+    ----------
+    site
+        A :class:`geo3d.site.Site`.
+    n_realizations
+        Overrides ``[simulation] realizations``.
+
+    Returns
+    -------
+    dict
+        ``cell_size``, ``base``, ``padding``, ``variogram``, ``kriging``, ``n_realizations``,
+        ``seed``.
+    """
+    cfg = site.config
+    variogram = {
+        "model": cfg.variogram.model,
+        "horizontal_range": _auto(cfg.variogram.horizontal_range),
+        "vertical_range": _auto(cfg.variogram.vertical_range),
+        "azimuth": cfg.variogram.azimuth,
+        "minor_ratio": cfg.variogram.anisotropy_minor,
+        "elevation_tolerance": cfg.variogram.elevation_tolerance,
+    }
+    kriging = {
+        "neighbors": cfg.kriging.neighbors,
+        "max_per_group": cfg.kriging.max_per_boring,
+        "drift": cfg.kriging.drift,
+        "max_distance": _auto(cfg.kriging.max_distance),
+        "chunk_size": cfg.kriging.chunk_size,
+    }
+    if cfg.kriging.scheduler:
+        kriging["scheduler"] = cfg.kriging.scheduler
+    realizations = cfg.simulation.realizations if n_realizations is None else n_realizations
+    return {
+        "cell_size": tuple(cfg.grid.cell_size),
+        "base": cfg.grid.base,
+        "padding": cfg.grid.padding,
+        "variogram": variogram,
+        "kriging": kriging,
+        "n_realizations": int(realizations),
+        "seed": int(cfg.simulation.seed),
+    }
+
+
+def run_model(
+    site: Any,
+    logs: Any,
+    *,
+    n_realizations: int | None = None,
+    progress: ProgressCallback | None = None,
+) -> Any:
+    """Build the voxel model (kriging, cross-validation, simulations) from the intervals.
+
+    Parameters
+    ----------
+    site
+        A :class:`geo3d.site.Site`.
+    logs
+        Result of :func:`run_logs`.
+    n_realizations
+        Overrides ``[simulation] realizations`` (0 = no simulation).
+    progress
+        Progress callback (see :data:`ProgressCallback`).
+
+    Returns
+    -------
+    geo3d.model.ModelResult
+    """
+    from geo3d.model import build_voxel_model
+
+    options = model_options(site, n_realizations=n_realizations)
+    callback = None
+    if progress is not None:
+
+        def callback(fraction: float, message: str = "") -> None:
+            progress("model", float(fraction), str(message))
+
+    return build_voxel_model(
+        logs.intervals,
+        boundary=site.boundary,
+        borings=site.borings,
+        crs=site.crs,
+        facies_classes=_facies_classes(site, logs),
+        water_table=getattr(logs, "water_table", None),
+        dem=getattr(site, "dem", None),
+        progress=callback,
+        **options,
+    )
+
+
+def run_volumes(
+    site: Any, logs: Any, model: Any
+) -> tuple[dict[str, xr.DataArray], pd.DataFrame, dict[str, Any]]:
+    """Compute the maps, the volumes and the injection plans.
+
+    Parameters
+    ----------
+    site
+        A :class:`geo3d.site.Site`.
+    logs
+        Result of :func:`run_logs` (its water table gives the water-table maps).
+    model
+        Result of :func:`run_model`.
+
+    Returns
+    -------
+    maps : dict of str to xarray.DataArray
+        Thickness maps (with percentiles when simulated), ``wt_elev`` and ``depth_to_water``.
+    volumes : pandas.DataFrame
+        Volumes per zone, depth band and facies (the whole site as zone ``site``).
+    injection : dict
+        Zone name -> injection plan, for every treatment zone.
+    """
+    from geo3d.analysis.injection import injection_plan
+    from geo3d.analysis.thickness import thickness_maps
+    from geo3d.analysis.volumes import zone_volumes
+    from geo3d.analysis.water_table import depth_to_water_map, water_table_map
+
+    ds = model.dataset
+    classes = _facies_classes(site, logs)
+    maps = dict(thickness_maps(ds, facies_classes=classes))
+    water_table = getattr(logs, "water_table", None)
+    if water_table is not None:
+        maps["wt_elev"] = water_table_map(ds, water_table)
+        maps["depth_to_water"] = depth_to_water_map(ds, water_table)
+    crs_wkt = ds.attrs.get("crs")
+    for name, da in maps.items():
+        da.name = name
+        if crs_wkt and "crs" not in da.attrs:
+            da.attrs["crs"] = crs_wkt
+    zones = site.zones if site.zones is not None and len(site.zones) else None
+    volumes = zone_volumes(ds, zones, facies_classes=classes)
+    treatment = site.config.treatment
+    plans: dict[str, Any] = {}
+    for zone in [] if zones is None else zones.itertuples(index=False):
+        fraction = _zone_value(zone, "design_fraction", treatment.design_fraction)
+        radius = _zone_value(zone, "radius_of_influence", treatment.radius_of_influence)
+        plans[str(zone.name)] = injection_plan(
+            ds,
+            zone,
+            facies_classes=classes,
+            design_fraction=fraction,
+            radius_of_influence=radius,
+            target=treatment.target,
+        )
+    return maps, volumes, plans
+
+
+def _zone_value(zone: Any, name: str, default: float) -> float:
+    value = getattr(zone, name, None)
+    if value is None or (isinstance(value, float) and np.isnan(value)):
+        return float(default)
+    return float(value)
+
+
+def _schedule(plans: dict[str, Any]) -> pd.DataFrame | None:
+    frames = []
+    for zone, plan in plans.items():
+        schedule = getattr(plan, "schedule", None)
+        if schedule is None or len(schedule) == 0:
+            continue
+        frame = pd.DataFrame(schedule).copy()
+        if "zone" not in frame.columns:
+            frame.insert(0, "zone", zone)
+        frames.append(frame)
+    return pd.concat(frames, ignore_index=True) if frames else None
+
+
+def _relative(paths: Sequence[Path], root: Path) -> list[Path]:
+    return [Path(p).relative_to(root) if Path(p).is_absolute() else Path(p) for p in paths]
+
+
+def run_export(
+    results: RunResults,
+    out_dir: str | PathLike,
+    *,
+    formats: Sequence[str] | None = None,
+) -> list[Path]:
+    """Write the tables and the exchange files (VTK, GeoTIFF, GeoPackage, NetCDF).
+
+    Parameters
+    ----------
+    results
+        Results of the stages run so far; what is missing is skipped.
+    out_dir
+        Folder to write into (created when missing).
+    formats
+        Subset of ``csv``, ``vtk``, ``geotiff``, ``gpkg``, ``netcdf``; default the site
+        file's ``[output] formats``.
+
+    Returns
+    -------
+    list of Path
+        The files written.
+    """
+    from geo3d.io import geotiff, netcdf, tables, vtk
+
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    site, logs = results.site, results.logs
+    formats = set(site.config.output.formats if formats is None else formats)
+    units = site.config.units
+    written: list[Path] = []
+    ds = results.dataset
+    crs = site.crs
+    facies_names = None
+    if logs is not None and getattr(logs, "facies_names", None):
+        facies_names = list(logs.facies_names)
+    if "csv" in formats:
+        schedule = _schedule(results.injection)
+        summaries = {zone: getattr(p, "summary", {}) for zone, p in results.injection.items()}
+        model = results.model
+        written += tables.write_tables(
+            out,
+            length_unit=units.output_length,
+            volume_unit=units.output_volume,
+            intervals=None if logs is None else logs.intervals,
+            volumes=results.volumes,
+            injection_schedule=schedule,
+            injection_summary=summaries or None,
+            crossval=None if model is None else getattr(model, "crossval", None),
+            water_levels=None if logs is None else logs.water_levels,
+            calibration=None if logs is None else _calibration(logs),
+        )
+        if logs is not None:
+            written.append(
+                tables.write_csv(
+                    logs.samples,
+                    out / "samples.csv",
+                    length_unit=units.output_length,
+                    volume_unit=units.output_volume,
+                )
+            )
+        if model is not None and getattr(model, "variograms", None):
+            written.append(
+                tables.write_json(_variograms(model.variograms), out / "variograms.json")
+            )
+    if "vtk" in formats and ds is not None:
+        written.append(vtk.write_model_vti(ds, out / "model.vti"))
+        if logs is not None:
+            written.append(
+                vtk.write_borings_vtp(logs.samples, out / "borings.vtp", intervals=logs.intervals)
+            )
+        written.append(
+            vtk.write_site_vtm(
+                ds,
+                out / "site.vtm",
+                samples=None if logs is None else logs.samples,
+                intervals=None if logs is None else logs.intervals,
+                zones=site.zones if site.zones is not None and len(site.zones) else None,
+                water_table=results.maps.get("wt_elev"),
+            )
+        )
+    if "geotiff" in formats and results.maps:
+        written += geotiff.write_maps(results.maps, out / "maps", crs=crs)
+    if "gpkg" in formats:
+        written.append(_write_gpkg(results, out / "site.gpkg"))
+    if "netcdf" in formats and ds is not None:
+        written.append(
+            netcdf.write_netcdf(
+                ds,
+                out / "model.nc",
+                crs=crs,
+                facies_names=facies_names,
+                title=f"geo3d voxel model of {site.name}",
+            )
+        )
+    return written
+
+
+def _calibration(logs: Any) -> dict[str, Any]:
+    calibration = dict(getattr(logs, "calibration", {}) or {})
+    calibration["shape_factor_m"] = getattr(logs, "shape_factor", None)
+    water_table = getattr(logs, "water_table", None)
+    if water_table is not None:
+        calibration["water_table"] = {
+            "method": getattr(water_table, "method", None),
+            "gradient": getattr(water_table, "gradient", None),
+            "flow_direction_deg": getattr(water_table, "flow_direction_deg", None),
+        }
+    return calibration
+
+
+def _variograms(variograms: dict[str, Any]) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for name, fit in variograms.items():
+        model = getattr(fit, "model", None)
+        entry: dict[str, Any] = {
+            "kind": getattr(fit, "kind", None),
+            "rmse": getattr(fit, "rmse", None),
+        }
+        if model is not None:
+            entry["model"] = {
+                key: getattr(model, key, None)
+                for key in (
+                    "kind",
+                    "sill",
+                    "nugget",
+                    "range_h",
+                    "range_v",
+                    "azimuth",
+                    "minor_ratio",
+                )
+            }
+        for part in ("vertical", "horizontal"):
+            table = getattr(fit, part, None)
+            if isinstance(table, pd.DataFrame):
+                entry[f"{part}_experimental"] = table
+        out[name] = entry
+    return out
+
+
+def _write_gpkg(results: RunResults, path: Path) -> Path:
+    from geo3d.io import gpkg
+
+    site, logs = results.site, results.logs
+    names = list(getattr(logs, "facies_names", None) or [])
+    transmissive = "transmissive" if "transmissive" in names or not names else names[-1]
+    layers = {
+        "borings": gpkg.boring_summary(
+            site.borings,
+            crs=site.crs,
+            samples=None if logs is None else logs.samples,
+            intervals=None if logs is None else logs.intervals,
+            water_levels=None if logs is None else logs.water_levels,
+            transmissive=transmissive,
+        )
+    }
+    if site.zones is not None and len(site.zones):
+        layers["zones"] = gpkg.zones_layer(site.zones, crs=site.crs, volumes=results.volumes)
+    if results.injection:
+        layers["injection_points"] = gpkg.injection_points_layer(results.injection, crs=site.crs)
+    main = {k: v for k, v in results.maps.items() if k in _CONTOURED}
+    if main:
+        layers["contours"] = gpkg.contour_lines(main, crs=site.crs)
+    return gpkg.write_geopackage(path, layers)
+
+
+#: Maps traced as contour lines in the GeoPackage.
+_CONTOURED = (
+    "transmissive_thickness",
+    "storage_thickness",
+    "transmissive_top_depth",
+    "wt_elev",
+    "depth_to_water",
+)
+
+
+def run_report(results: RunResults, out_dir: str | PathLike) -> Path:
+    """Write ``report.html`` (see :func:`geo3d.report.write_report`).
+
+    Returns
+    -------
+    Path
+        The report file.
+    """
+    from geo3d.report import write_report
+
+    return write_report(results, Path(out_dir) / "report.html")
+
+
+# --------------------------------------------------------------------------- whole run
+
+
+def headline_volumes(results: RunResults) -> pd.DataFrame:
+    """Per-zone headline figures: storage and effective pore volumes, design volume, points.
+
+    Parameters
+    ----------
+    results
+        A run's results (needs the volumes stage).
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per zone (``site`` included): ``zone``, ``storage_volume_m3``,
+        ``effective_pore_volume_m3`` (all material), ``design_volume_m3``, ``n_points`` (NaN
+        where there is no injection plan).
+    """
+    volumes = results.volumes
+    if volumes is None or volumes.empty or "zone" not in volumes.columns:
+        return pd.DataFrame(
+            columns=["zone", "storage_volume_m3", "effective_pore_volume_m3", "design_volume_m3"]
+        )
+    table = volumes
+    if "band" in table.columns:
+        whole = table["band"].isna() | table["band"].astype(str).isin(["", "all", "zone", "None"])
+        if whole.any():
+            table = table[whole]
+    rows = []
+    for zone, part in table.groupby("zone", sort=False):
+        facies = part["facies"].astype(str) if "facies" in part else pd.Series(dtype=str)
+        storage = part[facies == "storage"]
+        everything = part[facies == "all"]
+        plan = results.injection.get(str(zone))
+        summary = getattr(plan, "summary", {}) or {}
+        rows.append(
+            {
+                "zone": str(zone),
+                "storage_volume_m3": _first_value(storage, "bulk_volume_m3"),
+                "effective_pore_volume_m3": _first_value(everything, "effective_pore_volume_m3"),
+                "design_volume_m3": _summary_value(summary, "design_volume_m3"),
+                "n_points": _summary_value(summary, "n_points"),
+            }
+        )
+    return pd.DataFrame(rows)
+
+
+def _first_value(frame: pd.DataFrame, column: str) -> float:
+    if frame.empty or column not in frame.columns:
+        return float("nan")
+    return float(frame[column].iloc[0])
+
+
+def _summary_value(summary: dict[str, Any], key: str) -> float:
+    value = summary.get(key)
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        return float("nan")
+
+
+@contextlib.contextmanager
+def _run_log(path: Path) -> Iterator[None]:
+    """Send geo3d's log records and Python warnings to ``path`` for the duration."""
+    handler = logging.FileHandler(path, encoding="utf-8")
+    handler.setLevel(logging.INFO)
+    handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)-7s %(name)s: %(message)s"))
+    package = logging.getLogger("geo3d")
+    warn_logger = logging.getLogger("py.warnings")
+    old_level = package.level
+    if package.getEffectiveLevel() > logging.INFO:
+        package.setLevel(logging.INFO)
+    package.addHandler(handler)
+    warn_logger.addHandler(handler)
+    logging.captureWarnings(True)
+    try:
+        yield
+    finally:
+        logging.captureWarnings(False)
+        warn_logger.removeHandler(handler)
+        package.removeHandler(handler)
+        package.setLevel(old_level)
+        handler.close()
+
+
+class _Timer:
+    def __init__(self, timings: dict[str, float], progress: ProgressCallback | None):
+        self.timings = timings
+        self.progress = progress
+
+    @contextlib.contextmanager
+    def stage(self, name: str) -> Iterator[None]:
+        if self.progress is not None:
+            self.progress(name, 0.0, "started")
+        logger.info("stage %s: started", name)
+        start = time.perf_counter()
+        try:
+            yield
+        except Geo3dError as exc:
+            logger.error("stage %s failed: %s", name, exc)
+            raise
+        self.timings[name] = time.perf_counter() - start
+        logger.info("stage %s: done in %.2f s", name, self.timings[name])
+        if self.progress is not None:
+            self.progress(name, 1.0, f"done in {self.timings[name]:.1f} s")
+
+
+def run(
+    site_path: str | PathLike,
+    out_dir: str | PathLike,
+    *,
+    overwrite: bool = False,
+    progress: bool | ProgressCallback = False,
+    n_realizations: int | None = None,
+    stages: Sequence[str] = STAGES,
+    formats: Sequence[str] | None = None,
+) -> RunResults:
+    """Run the whole job on a site folder and write every output into ``out_dir``.
+
+    Parameters
+    ----------
+    site_path
+        Site folder (or its ``site.toml``).
+    out_dir
+        Output folder; must be new or empty unless ``overwrite``.
+    overwrite
+        Replace an existing output folder (only once the run succeeded).
+    progress
+        A callback ``progress(stage, fraction, message)``; ``True`` logs stage progress.
+    n_realizations
+        Overrides ``[simulation] realizations``.
+    stages
+        Stages to run, a subset of :data:`STAGES` (the stages a chosen stage needs are run
+        too; only the chosen stages write their outputs).
+    formats
+        Output formats; default the site file's ``[output] formats``.
+
+    Returns
+    -------
+    RunResults
+        With ``timings`` per stage and ``outputs`` relative to ``out_dir``.
+
+    Raises
+    ------
+    OutputExistsError
+        If ``out_dir`` exists, is not empty and ``overwrite`` is false (checked first).
+    Geo3dError
+        Any input or modelling problem; the output folder is then left untouched.
+    """
+    from geo3d.io.atomic import output_folder
+    from geo3d.io.tables import write_json
+
+    planned = planned_stages(stages)
+    callback: ProgressCallback | None
+    if progress is True:
+
+        def callback(stage: str, fraction: float, message: str) -> None:
+            logger.info("%s: %3.0f%% %s", stage, 100 * fraction, message)
+
+    else:
+        callback = progress or None
+    final = Path(out_dir)
+    timings: dict[str, float] = {}
+    timer = _Timer(timings, callback)
+    started = datetime.now(UTC)
+    total_start = time.perf_counter()
+    with output_folder(final, overwrite=overwrite) as staging, _run_log(staging / "run.log"):
+        logger.info("geo3d %s: run of %s into %s", __version__, site_path, final)
+        with timer.stage("check"):
+            site = run_check(site_path)
+        results = RunResults(site=site, timings=timings)
+        chosen_formats = list(site.config.output.formats if formats is None else formats)
+        written: list[Path] = []
+        if "logs" in planned:
+            with timer.stage("logs"):
+                results.logs = run_logs(site)
+        if "model" in planned:
+            with timer.stage("model"):
+                results.model = run_model(
+                    site, results.logs, n_realizations=n_realizations, progress=callback
+                )
+            _check_model(results.model)
+        if "volumes" in planned:
+            with timer.stage("volumes"):
+                results.maps, results.volumes, results.injection = run_volumes(
+                    site, results.logs, results.model
+                )
+        export_formats = [f for f in chosen_formats if f != "report"]
+        if "export" in planned:
+            with timer.stage("export"):
+                if "export" in stages:
+                    written += run_export(results, staging, formats=export_formats)
+                else:
+                    written += run_export(results, staging, formats=_stage_formats(stages))
+        if "report" in planned and "report" in chosen_formats:
+            with timer.stage("report"):
+                written.append(run_report(results, staging))
+        timings["total"] = time.perf_counter() - total_start
+        results.outputs = sorted(set(_relative(written, staging)))
+        summary = {
+            "geo3d_version": __version__,
+            "python": platform.python_version(),
+            "site": str(site.name),
+            "site_path": str(Path(site_path).resolve()),
+            "started_utc": started.isoformat(timespec="seconds"),
+            "stages": [s for s in STAGES if s in timings],
+            "timings_s": {k: round(v, 3) for k, v in timings.items()},
+            "outputs": [str(p) for p in results.outputs],
+            "headline": headline_volumes(results) if results.volumes is not None else [],
+        }
+        write_json(summary, staging / "run.json")
+        logger.info("run finished in %.1f s", timings["total"])
+    results.out_dir = final
+    results.outputs = [*results.outputs, Path("run.json"), Path("run.log")]
+    return results
+
+
+def planned_stages(stages: Sequence[str] = STAGES) -> list[str]:
+    """Return the stages :func:`run` goes through to produce the chosen stages' outputs.
+
+    Every stage before the last one chosen is run (each needs its predecessors); ``export``
+    is run when it is chosen or when ``logs``, ``model`` or ``volumes`` is (they write their
+    tables through it); ``report`` only when chosen.
+
+    Parameters
+    ----------
+    stages
+        A non-empty subset of :data:`STAGES`.
+
+    Returns
+    -------
+    list of str
+        In :data:`STAGES` order.
+
+    Raises
+    ------
+    ValueError
+        If a stage is unknown or none is given.
+
+    Examples
+    --------
+    >>> planned_stages(["model"])
+    ['check', 'logs', 'model', 'export']
+    >>> planned_stages(["report"])
+    ['check', 'logs', 'model', 'volumes', 'report']
+    """
+    chosen = set(stages)
+    unknown = chosen - set(STAGES)
+    if unknown or not chosen:
+        msg = f"unknown or no stage(s) {sorted(unknown)}; expected some of {list(STAGES)}"
+        raise ValueError(msg)
+    last = max(STAGES.index(s) for s in chosen)
+    planned = [s for s in STAGES[: last + 1] if s not in ("export", "report")]
+    if "export" in chosen or chosen & {"logs", "model", "volumes"}:
+        planned.append("export")
+    if "report" in chosen:
+        planned.append("report")
+    return planned
+
+
+def _stage_formats(stages: Sequence[str]) -> list[str]:
+    """Return the formats a stage command writes when ``export`` is not asked for."""
+    if "volumes" in stages:
+        return ["csv", "geotiff", "gpkg"]
+    if "model" in stages:
+        return ["csv", "netcdf", "vtk"]
+    return ["csv"]
+
+
+def _check_model(model: Any) -> None:
+    ds = getattr(model, "dataset", None)
+    if ds is None or "log10_k" not in ds:
+        msg = "the model stage produced no voxel model with log10_k"
+        raise ModelError(msg)
+    inside = np.asarray(ds["mask"].values, bool) if "mask" in ds else None
+    if inside is not None and not np.isfinite(ds["log10_k"].values[inside]).any():
+        warnings.warn(
+            "the voxel model has no estimated cell inside the site; check the kriging "
+            "neighbourhood ([kriging] max_distance)",
+            Geo3dWarning,
+            stacklevel=2,
+        )
