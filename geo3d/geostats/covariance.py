@@ -44,7 +44,8 @@ def _matern_unit(u: np.ndarray, nu: float) -> np.ndarray:
     """Matern correlation ``2^(1-nu)/Gamma(nu) u^nu K_nu(u)`` (1 at ``u = 0``)."""
     u = np.asarray(u, dtype=float)
     out = np.ones_like(u)
-    pos = u > 0
+    # Below 1e-12 the correlation is 1 to double precision (and u^nu K_nu(u) under/overflows).
+    pos = u > 1e-12
     up = u[pos]
     with np.errstate(over="ignore", invalid="ignore", under="ignore"):
         val = 2.0 ** (1.0 - nu) / special.gamma(nu) * up**nu * special.kv(nu, up)
