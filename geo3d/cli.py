@@ -264,3 +264,274 @@ def check(site: Path) -> None:
     out = console()
     out.print(site_summary(result))
     out.print("[green]Site is valid.[/green]")
+
+
+# --------------------------------------------------------------------------- run and stages
+
+
+def _out_options(function: F) -> F:
+    """Add the options shared by the run and stage commands."""
+    function = click.option("--no-progress", is_flag=True, help="Do not show progress bars.")(
+        function
+    )
+    function = click.option(
+        "--realizations",
+        type=click.IntRange(min=0),
+        default=None,
+        help="Number of conditional simulations (overrides [simulation] realizations).",
+    )(function)
+    function = click.option(
+        "--overwrite", is_flag=True, help="Replace OUT if it exists (only once the run succeeded)."
+    )(function)
+    function = click.option(
+        "-o",
+        "--out",
+        "out_dir",
+        type=click.Path(file_okay=False, path_type=Path),
+        required=True,
+        help="Output folder (must be new or empty unless --overwrite).",
+    )(function)
+    return function
+
+
+class _StageProgress:
+    """Rich progress bars: one per stage, advanced by the pipeline's progress callback."""
+
+    def __init__(self, stages, *, enabled: bool):
+        self.stages = list(stages)
+        self.enabled = enabled
+        self.progress = None
+        self.tasks: dict[str, Any] = {}
+
+    def __enter__(self) -> _StageProgress:
+        return self
+
+    def _start(self) -> None:
+        from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+        self.progress = Progress(
+            TextColumn("{task.description:<8}"),
+            BarColumn(),
+            TextColumn("{task.percentage:>3.0f}%"),
+            TimeElapsedColumn(),
+            TextColumn("{task.fields[message]}"),
+            console=error_console(),
+        )
+        self.progress.start()
+        for stage in self.stages:
+            self.tasks[stage] = self.progress.add_task(stage, total=1.0, start=False, message="")
+
+    def __exit__(self, *exc_info: Any) -> None:
+        if self.progress is not None:
+            self.progress.stop()
+
+    def __call__(self, stage: str, fraction: float, message: str) -> None:
+        if not self.enabled:
+            return
+        if self.progress is None:
+            self._start()
+        task = self.tasks.get(stage)
+        if task is None:
+            task = self.tasks[stage] = self.progress.add_task(
+                stage, total=1.0, start=False, message=""
+            )
+        self.progress.start_task(task)
+        self.progress.update(task, completed=max(0.0, min(1.0, fraction)), message=message[:60])
+
+
+def _summary(results, *, title: str) -> None:
+    """Print where the outputs are, the time per stage and the headline volumes."""
+    from rich.table import Table
+
+    from geo3d.pipeline import headline_volumes
+    from geo3d.units import from_internal
+
+    out = console()
+    out.print(f"[bold green]{title}[/bold green]")
+    out.print(f"Outputs in [bold]{results.out_dir.resolve()}[/bold]", highlight=False)
+    files = [str(p) for p in results.outputs]
+    shown = ", ".join(files[:12]) + (f" and {len(files) - 12} more" if len(files) > 12 else "")
+    out.print(f"  {shown}", markup=False)
+    timings = Table(title="Time per stage", title_justify="left")
+    timings.add_column("stage")
+    timings.add_column("seconds", justify="right")
+    for stage, seconds in results.timings.items():
+        timings.add_row(stage, f"{seconds:.1f}")
+    out.print(timings)
+    if results.volumes is None:
+        return
+    headline = headline_volumes(results)
+    if headline.empty:
+        return
+    unit = results.site.config.units.output_volume
+    table = Table(title=f"Headline volumes ({unit})", title_justify="left")
+    for column in ("zone", "storage material", "effective pore volume", "design volume", "points"):
+        table.add_column(column, justify="left" if column == "zone" else "right")
+
+    def volume(value: float) -> str:
+        return "-" if value != value else f"{from_internal(value, unit, 'volume'):,.1f}"
+
+    for row in headline.itertuples(index=False):
+        points = "-" if row.n_points != row.n_points else f"{int(row.n_points)}"
+        table.add_row(
+            str(row.zone),
+            volume(row.storage_volume_m3),
+            volume(row.effective_pore_volume_m3),
+            volume(row.design_volume_m3),
+            points,
+        )
+    out.print(table)
+
+
+def _run_stages(
+    site: Path,
+    out_dir: Path,
+    *,
+    stages,
+    overwrite: bool,
+    realizations: int | None,
+    no_progress: bool,
+    title: str,
+) -> None:
+    from geo3d.pipeline import planned_stages, run
+
+    with _StageProgress(planned_stages(stages), enabled=not no_progress) as progress:
+        results = run(
+            site,
+            out_dir,
+            overwrite=overwrite,
+            progress=progress,
+            n_realizations=realizations,
+            stages=stages,
+        )
+    _summary(results, title=title)
+
+
+@main.command("run")
+@click.argument("site", type=SITE_PATH)
+@_out_options
+@handle_errors
+def run_command(
+    site: Path, out_dir: Path, overwrite: bool, realizations: int | None, no_progress: bool
+) -> None:
+    """Run the whole job on SITE and write every output into OUT.
+
+    Reads and checks the site, processes the logs, builds the voxel model with its simulations,
+    computes maps, volumes and injection plans, and writes the tables, VTK, GeoTIFF,
+    GeoPackage and NetCDF files, the report and run.log.
+    """
+    _run_stages(
+        site,
+        out_dir,
+        stages=("check", "logs", "model", "volumes", "export", "report"),
+        overwrite=overwrite,
+        realizations=realizations,
+        no_progress=no_progress,
+        title="Run complete.",
+    )
+
+
+def _stage_command(name: str, doc: str):
+    @main.command(name, help=doc)
+    @click.argument("site", type=SITE_PATH)
+    @_out_options
+    @handle_errors
+    def command(
+        site: Path, out_dir: Path, overwrite: bool, realizations: int | None, no_progress: bool
+    ) -> None:
+        _run_stages(
+            site,
+            out_dir,
+            stages=(name,),
+            overwrite=overwrite,
+            realizations=realizations,
+            no_progress=no_progress,
+            title=f"Stage '{name}' complete.",
+        )
+
+    command.__name__ = f"{name}_command"
+    return command
+
+
+logs_command = _stage_command(
+    "logs",
+    "Process the injection logs of SITE (water level, K, flags, intervals, hydrofacies) and "
+    "write the tables into OUT.",
+)
+model_command = _stage_command(
+    "model",
+    "Build the voxel model of SITE (runs the logs stage first) and write model.nc, the VTK "
+    "files and the cross-validation tables into OUT.",
+)
+volumes_command = _stage_command(
+    "volumes",
+    "Compute maps, volumes and injection plans of SITE (runs logs and model first) and write "
+    "the tables, GeoTIFF maps and the GeoPackage into OUT.",
+)
+export_command = _stage_command(
+    "export",
+    "Run SITE up to the volumes and write every table and exchange file (VTK, GeoTIFF, "
+    "GeoPackage, NetCDF) into OUT, without the report.",
+)
+report_command = _stage_command(
+    "report", "Run SITE up to the volumes and write only report.html (and run.log) into OUT."
+)
+
+
+def demo_site_path() -> Path:
+    """Locate the bundled demo site (a ``demo_site`` folder beside the package).
+
+    Raises
+    ------
+    SiteFileError
+        If the demo site is not there (it ships with a source checkout installed with
+        ``pip install -e .``).
+    """
+    import geo3d
+    from geo3d.errors import SiteFileError
+
+    package = Path(geo3d.__file__).resolve().parent
+    candidates = [package.parent / "demo_site", package / "demo_site"]
+    for candidate in candidates:
+        if (candidate / "site.toml").is_file():
+            return candidate
+    msg = (
+        f"the demo site was not found (looked for site.toml in {candidates[0]}); it ships with "
+        "the source checkout: install geo3d from it with 'pip install -e .', or run "
+        "'geo3d run <site folder> -o <out>' on a site of your own"
+    )
+    raise SiteFileError(msg)
+
+
+@main.command()
+@click.option(
+    "-o",
+    "--out",
+    "out_dir",
+    type=click.Path(file_okay=False, path_type=Path),
+    default=Path("geo3d-demo"),
+    show_default=True,
+    help="Output folder.",
+)
+@click.option("--overwrite", is_flag=True, help="Replace the output folder if it exists.")
+@click.option(
+    "--realizations",
+    type=click.IntRange(min=0),
+    default=None,
+    help="Number of conditional simulations (default from the demo site file).",
+)
+@click.option("--no-progress", is_flag=True, help="Do not show progress bars.")
+@handle_errors
+def demo(out_dir: Path, overwrite: bool, realizations: int | None, no_progress: bool) -> None:
+    """Run the whole job on the bundled demo site into a folder (default ./geo3d-demo)."""
+    site = demo_site_path()
+    console().print(f"Demo site: {site}", markup=False)
+    _run_stages(
+        site,
+        out_dir,
+        stages=("check", "logs", "model", "volumes", "export", "report"),
+        overwrite=overwrite,
+        realizations=realizations,
+        no_progress=no_progress,
+        title="Demo run complete.",
+    )

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import contextlib
 import logging
+import os
 import platform
 import time
 import warnings
@@ -326,7 +327,7 @@ def _schedule(plans: dict[str, Any]) -> pd.DataFrame | None:
 
 
 def _relative(paths: Sequence[Path], root: Path) -> list[Path]:
-    return [Path(p).relative_to(root) if Path(p).is_absolute() else Path(p) for p in paths]
+    return [Path(os.path.relpath(Path(p).resolve(), Path(root).resolve())) for p in paths]
 
 
 def run_export(
