@@ -163,9 +163,18 @@ def _hull_boundary(borings: pd.DataFrame) -> Polygon:
 
 
 def _check_pressure_floor(
-    table: pd.DataFrame, *, path: Path | str, config: SiteConfig, problems: _Problems
+    table: pd.DataFrame,
+    *,
+    path: Path | str | dict[str, Path],
+    config: SiteConfig,
+    problems: _Problems,
+    first_line: int | None = None,
 ) -> None:
-    """Refuse absolute pressures below atmospheric (named in the message)."""
+    """Refuse absolute pressures below atmospheric, one message per file.
+
+    ``path`` is one file, or a mapping boring id -> log file; ``first_line`` is the line of the
+    first data row of each log (CSV logs), to name the line of the first low reading.
+    """
     if config.units.pressure_reference != "absolute" or table.empty:
         return
     atm = config.probe.atmospheric_pressure
@@ -182,19 +191,35 @@ def _check_pressure_floor(
             "sensor noise"
         )
     low = table["pressure"].to_numpy() < floor
-    if low.any():
-        first = table[low].iloc[0]
-        count = int(low.sum())
-        declared = config.units.pressure
+    if not low.any():
+        return
+    declared = config.units.pressure
+    by_file = (
+        {file: table["boring_id"] == b for b, file in path.items()}
+        if isinstance(path, dict)
+        else {path: pd.Series(True, index=table.index)}
+    )
+    error = LogFormatError if isinstance(path, dict) else TableFormatError
+    for file, rows in by_file.items():
+        selected = rows.to_numpy() & low
+        if not selected.any():
+            continue
+        position = int(np.flatnonzero(selected)[0])
+        first = table.iloc[position]
+        line = None
+        if first_line is not None and Path(file).suffix.lower() != ".las":
+            line = position - int(np.flatnonzero(rows.to_numpy())[0]) + first_line
+        count = int(selected.sum())
         value = from_internal(float(first["pressure"]), declared, "pressure")
         msg = (
-            f"{where(path, column='pressure')}: {count} reading{'s' if count > 1 else ''} below "
-            f"atmospheric, first in boring {first['boring_id']!r} at depth "
-            f"{first['depth']:g} m ({value:g} {declared}); pressures are declared absolute "
-            f"([units] pressure_reference), so expected at least {source}. If the logger "
-            'records gauge pressure, set pressure_reference = "gauge"'
+            f"{where(file, line=line, column='pressure')}: {count} reading"
+            f"{'s' if count > 1 else ''} below atmospheric, first in boring "
+            f"{first['boring_id']!r} at depth {first['depth']:g} m ({value:g} {declared}); "
+            "pressures are declared absolute ([units] pressure_reference), so expected at "
+            f"least {source}. If the logger records gauge pressure, set "
+            'pressure_reference = "gauge"'
         )
-        problems.add(TableFormatError(msg))
+        problems.add(error(msg))
 
 
 def read_site(path: str | PathLike) -> Site:
@@ -271,7 +296,11 @@ def read_site(path: str | PathLike) -> Site:
             2, "elev", collars.reindex(samples["boring_id"]).to_numpy() - samples["depth"]
         )
         _check_pressure_floor(
-            samples, path=f"logs ({files.logs})", config=config, problems=problems
+            samples,
+            path={b: f for b, f in sources.items() if b in known},
+            config=config,
+            problems=problems,
+            first_line=config.logs.header_rows + 2,
         )
 
     dissipation = _empty(["boring_id", "test_id", "depth", "time_s", "pressure"])

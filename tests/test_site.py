@@ -100,16 +100,23 @@ def test_pressure_below_atmospheric_when_absolute(mini_site: Path):
     fields[1] = "60"  # kPa: below any atmospheric pressure at a land site
     lines[3] = ",".join(fields)
     log.write_text("\n".join(lines) + "\n")
-    with pytest.raises(TableFormatError) as info:
+    with pytest.raises(LogFormatError) as info:
         read_site(mini_site)
     message = str(info.value)
+    assert "B1.csv, line 4, column 'pressure'" in message
     assert "below atmospheric" in message and "'B1'" in message
     assert f"{ABSOLUTE_PRESSURE_FLOOR:g} kPa, a plausibility floor" in message
     # With a declared atmospheric pressure, the message names it instead.
     (mini_site / "site.toml").write_text(
         (mini_site / "site.toml").read_text() + "\n[probe]\natmospheric_pressure = 101.3\n"
     )
-    with pytest.raises(TableFormatError, match=r"atmospheric_pressure 101.3 kPa"):
+    with pytest.raises(LogFormatError, match=r"atmospheric_pressure 101.3 kPa"):
+        read_site(mini_site)
+    # Dissipation records are checked too.
+    log.write_text(log.read_text().replace("\n1,60,", "\n1,150,"))
+    dissipation = mini_site / "dissipation.csv"
+    dissipation.write_text(dissipation.read_text() + "B2,3.0,300.0,50.0\n")
+    with pytest.raises(TableFormatError, match=r"dissipation.csv, column 'pressure'.*'B2'"):
         read_site(mini_site)
     # Gauge pressure is not checked against atmospheric.
     edit(mini_site / "site.toml", 'pressure_reference = "absolute"', 'pressure_reference = "gauge"')
