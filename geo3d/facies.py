@@ -28,6 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from sklearn.mixture import GaussianMixture
+from threadpoolctl import threadpool_limits
 
 from geo3d.errors import ModelError
 
@@ -201,13 +202,17 @@ def classify_mixture(
     data = np.column_stack([lk[ok], lec[ok]])
     data = (data - data.mean(axis=0)) / data.std(axis=0)
     best, best_bic = None, np.inf
-    for n in range(1, max_classes + 1):
-        gm = GaussianMixture(n_components=n, covariance_type="full", random_state=seed, n_init=2)
-        gm.fit(data)
-        bic = gm.bic(data)
-        logger.debug("mixture with %d classes: BIC %.1f", n, bic)
-        if bic < best_bic:
-            best, best_bic = gm, bic
+    # a few thousand points in 2D: one thread is fastest (no OpenMP oversubscription)
+    with threadpool_limits(limits=1):
+        for n in range(1, max_classes + 1):
+            gm = GaussianMixture(
+                n_components=n, covariance_type="full", random_state=seed, n_init=2
+            )
+            gm.fit(data)
+            bic = gm.bic(data)
+            logger.debug("mixture with %d classes: BIC %.1f", n, bic)
+            if bic < best_bic:
+                best, best_bic = gm, bic
     labels = best.predict(data)
     order = np.argsort(best.means_[:, 0])
     rank = np.empty_like(order)
