@@ -25,7 +25,7 @@ from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
 
-from geo3d.errors import SiteFileError, UnitError, where
+from geo3d.errors import CRSError, SiteFileError, UnitError, where
 from geo3d.units import check_unit, to_internal
 
 __all__ = [
@@ -68,7 +68,6 @@ class SiteSection(_Section):
     crs: str = Field(
         description='Coordinate reference system: an EPSG code ("EPSG:nnnn") or a WKT string. '
         "Must be a projected CRS.",
-        min_length=1,
     )
 
 
@@ -538,6 +537,7 @@ def _line_of(text: str, loc: tuple[Any, ...]) -> int | None:
         return None
     table = ""
     header_line = None
+    parent_line = None
     wanted_table = ".".join(keys[:-1])
     for number, raw in enumerate(text.splitlines(), start=1):
         line = raw.strip()
@@ -546,10 +546,12 @@ def _line_of(text: str, loc: tuple[Any, ...]) -> int | None:
             table = header.group(1)
             if table == ".".join(keys):
                 header_line = header_line or number
+            if table == wanted_table and wanted_table:
+                parent_line = parent_line or number
             continue
         if table == wanted_table and re.match(rf"^['\"]?{re.escape(keys[-1])}['\"]?\s*=", line):
             return number
-    return header_line
+    return header_line or parent_line
 
 
 def _describe(error: dict[str, Any], path: str | PathLike | None, text: str) -> str:
@@ -631,6 +633,8 @@ def config_from_dict(
         A setting is missing, misspelled or invalid.
     UnitError
         The only problem is an unknown unit.
+    CRSError
+        The only problem is a missing ``[site] crs``.
     SiteValidationError
         Several problems at once (``.problems`` lists them).
     """
@@ -641,7 +645,11 @@ def config_from_dict(
         for error in exc.errors():
             message = _describe(error, path, text)
             is_unit = error["loc"][:1] == ("units",) and "unit" in error["msg"]
-            problems.append((UnitError if is_unit else SiteFileError, message))
+            is_crs = tuple(error["loc"][:2]) == ("site", "crs")
+            cls = UnitError if is_unit else CRSError if is_crs else SiteFileError
+            if is_crs and error["type"] == "missing":
+                message += '; expected an EPSG code ("EPSG:nnnn") or a WKT string'
+            problems.append((cls, message))
         _raise(problems)
     return _to_internal(config)
 

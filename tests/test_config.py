@@ -6,7 +6,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from geo3d.config import TEMPLATE, SiteConfig, config_from_dict, load_config
-from geo3d.errors import SiteFileError, UnitError
+from geo3d.errors import CRSError, SiteFileError, UnitError
 from geo3d.site import SiteValidationError
 
 FT = 0.3048  # m, international foot (NIST SP 811)
@@ -125,7 +125,7 @@ def test_unit_of_wrong_quantity(tmp_path: Path):
 
 
 def test_missing_crs(tmp_path: Path):
-    with pytest.raises(SiteFileError, match=r"missing setting 'site.crs'"):
+    with pytest.raises(CRSError, match=r"line 1: missing setting 'site.crs'.*EPSG"):
         load_config(write(tmp_path, '[site]\nname = "S"\n'))
 
 

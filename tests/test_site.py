@@ -146,6 +146,12 @@ def test_tables_referring_to_unknown_borings(mini_site: Path):
         read_site(mini_site)
 
 
+def test_empty_crs_refused(mini_site: Path):
+    edit(mini_site / "site.toml", '"EPSG:32631"', '""')
+    with pytest.raises(CRSError, match=r"site.toml, column '\[site\] crs': no CRS given"):
+        read_site(mini_site)
+
+
 def test_geographic_crs_refused(mini_site: Path):
     edit(mini_site / "site.toml", "EPSG:32631", "EPSG:4326")
     with pytest.raises(CRSError, match=r"site.toml.*not a projected CRS"):
