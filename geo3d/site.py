@@ -256,14 +256,14 @@ def read_site(path: str | PathLike) -> Site:
     problems = _Problems()
     toml = root / "site.toml" if not given.is_file() else given
 
-    crs = None
+    crs = declared_crs = None
     with problems.catch():
-        _, crs = parse_crs(config.site.crs, length_unit=units.length, source=toml)
+        declared_crs, crs = parse_crs(config.site.crs, length_unit=units.length, source=toml)
 
     borings = None
     borings_path = _path(root, files.borings)
     with problems.catch():
-        borings = read_borings(borings_path, length_unit=units.length)
+        borings = read_borings(borings_path, length_unit=units.length, crs=declared_crs)
 
     samples = None
     sources: dict[str, Path] = {}

@@ -123,3 +123,19 @@ def test_read_logs_sorted_and_globs(tmp_path: Path):
     assert (np.diff(samples[samples.boring_id == "B1"]["depth"]) > 0).all()
     with pytest.raises(LogFormatError, match="no log file matches"):
         read_logs("nothing/*.csv", root=tmp_path)
+
+
+def test_negative_flow_refused(tmp_path: Path):
+    path = tmp_path / "B1.csv"
+    path.write_text("depth,pressure,flow,ec\n1.0,150,300,20\n1.5,150,-3,20\n")
+    with pytest.raises(LogFormatError, match=r"line 3, column 'flow'.*>= 0"):
+        read_log(path)
+
+
+def test_las_null_ec_becomes_nan(tmp_path: Path):
+    values = mini_log("B1")
+    values["ec"] = values["ec"].copy()
+    values["ec"][2] = np.nan  # written as the LAS NULL value
+    write_las(tmp_path / "B1.las", values)
+    table = read_log(tmp_path / "B1.las")
+    assert np.isnan(table["ec"].iloc[2]) and np.isfinite(table["ec"]).sum() == 10

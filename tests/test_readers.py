@@ -154,3 +154,21 @@ def test_sensor_checks_unknown_sensor(tmp_path: Path):
     text = "boring_id,sensor,stage,measured,expected,tolerance\nA,ec,during,1,1,1\n"
     with pytest.raises(TableFormatError, match=r"column 'stage'.*pre, post"):
         read_sensor_checks(write(tmp_path, "d.csv", text))
+
+
+def test_borings_geopackage_in_another_crs_is_reprojected(tmp_path: Path):
+    import geopandas as gpd
+    import pyproj
+    from shapely.geometry import Point
+
+    utm = pyproj.CRS("EPSG:32631")
+    lon, lat = pyproj.Transformer.from_crs(utm, "EPSG:4326", always_xy=True).transform(
+        500000.0, 5000000.0
+    )
+    layer = gpd.GeoDataFrame(
+        {"boring_id": ["A"], "ground_elev": [10.0]}, geometry=[Point(lon, lat)], crs="EPSG:4326"
+    )
+    layer.to_file(tmp_path / "b.gpkg")
+    table = read_borings(tmp_path / "b.gpkg", crs=utm)
+    assert table["x"].iloc[0] == pytest.approx(500000.0, abs=1e-3)
+    assert table["y"].iloc[0] == pytest.approx(5000000.0, abs=1e-3)

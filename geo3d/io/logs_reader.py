@@ -119,7 +119,12 @@ def _read_csv_log(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.D
     for key, column in names.items():
         optional = key in ("ec", "time_s")
         values[key] = numeric_column(
-            frame, column, path=path, allow_empty=optional, error=LogFormatError
+            frame,
+            column,
+            path=path,
+            allow_empty=optional,
+            minimum=0.0 if key == "flow" else None,
+            error=LogFormatError,
         )
     if logs.boring_id == "filename":
         boring_id = path.stem
@@ -191,7 +196,12 @@ def _read_las_log(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.D
     for key, column in names.items():
         optional = key in ("ec", "time_s")
         values[key] = numeric_column(
-            table, column.lower(), path=path, allow_empty=optional, error=LogFormatError
+            table,
+            column.lower(),
+            path=path,
+            allow_empty=optional,
+            minimum=0.0 if key == "flow" else None,
+            error=LogFormatError,
         )
     if logs.boring_id == "filename":
         boring_id = path.stem

@@ -16,6 +16,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pyproj
 
 from geo3d.errors import TableFormatError, where
 from geo3d.units import to_internal
@@ -223,7 +224,9 @@ def _id_column(frame: pd.DataFrame, column: str, *, path: str | PathLike) -> pd.
     return ids
 
 
-def read_borings(path: str | PathLike, *, length_unit: str = "m") -> pd.DataFrame:
+def read_borings(
+    path: str | PathLike, *, length_unit: str = "m", crs: pyproj.CRS | None = None
+) -> pd.DataFrame:
     """Read the borings table.
 
     Parameters
@@ -234,6 +237,9 @@ def read_borings(path: str | PathLike, *, length_unit: str = "m") -> pd.DataFram
         columns are absent).
     length_unit
         Unit of x, y and ground_elev.
+    crs
+        The declared site CRS: a GeoPackage layer in another CRS is reprojected to it before
+        x and y are taken from its points (a layer without CRS is taken to be in it).
 
     Returns
     -------
@@ -256,6 +262,8 @@ def read_borings(path: str | PathLike, *, length_unit: str = "m") -> pd.DataFram
             if not all(layer.geometry.geom_type == "Point"):
                 msg = f"{where(file, column='geometry')}: expected point geometries for borings"
                 raise TableFormatError(msg)
+            if crs is not None and layer.crs is not None and not layer.crs.equals(crs):
+                layer = layer.to_crs(crs)
             layer["x"] = layer.geometry.x
             layer["y"] = layer.geometry.y
         frame = pd.DataFrame(layer.drop(columns=layer.geometry.name, errors="ignore"))
