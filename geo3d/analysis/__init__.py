@@ -1,1 +1,21 @@
-"""geo3d.analysis."""
+"""Answers from the voxel model: thickness maps, volumes, injection plans, water-table products.
+
+Every function takes a VoxelModel (an :class:`xarray.Dataset` from :mod:`geo3d.model`) or a
+``ModelResult`` and keyword-only options.
+"""
+
+from geo3d.analysis.injection import InjectionPlan, injection_plan, triangular_layout
+from geo3d.analysis.thickness import thickness_maps
+from geo3d.analysis.volumes import StoredMassInputs, zone_volumes
+from geo3d.analysis.water_table import saturated_thickness, water_table_map
+
+__all__ = [
+    "InjectionPlan",
+    "StoredMassInputs",
+    "injection_plan",
+    "saturated_thickness",
+    "thickness_maps",
+    "triangular_layout",
+    "water_table_map",
+    "zone_volumes",
+]
