@@ -1,3 +1,4 @@
+import tempfile
 from pathlib import Path
 
 import lasio
@@ -5,6 +6,8 @@ import numpy as np
 import pandas as pd
 import pytest
 from conftest import mini_log, write_log_csv
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from geo3d.config import LogsSection, UnitsSection
 from geo3d.errors import Geo3dWarning, LogFormatError
@@ -139,3 +142,33 @@ def test_las_null_ec_becomes_nan(tmp_path: Path):
     write_las(tmp_path / "B1.las", values)
     table = read_log(tmp_path / "B1.las")
     assert np.isnan(table["ec"].iloc[2]) and np.isfinite(table["ec"]).sum() == 10
+
+
+@settings(
+    max_examples=15, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
+@given(
+    steps=st.lists(st.integers(min_value=1, max_value=500), min_size=2, max_size=30),
+    seed=st.integers(min_value=0, max_value=2**32 - 1),
+)
+def test_las_and_csv_agree_for_any_log(tmp_path: Path, steps, seed):
+    # Invariant: the same numbers stored as LAS 2.0 and as CSV read to the same table.
+    rng = np.random.default_rng(seed)
+    depth = np.cumsum(steps) / 1000.0  # strictly increasing, mm resolution
+    values = {
+        "depth": depth,
+        "pressure": np.round(rng.uniform(80, 1400, depth.size), 3),
+        "flow": np.round(rng.uniform(0, 1000, depth.size), 3),
+        "ec": np.round(rng.uniform(1, 500, depth.size), 3),
+        "time": np.round(depth / 0.02, 3),
+    }
+    folder = Path(tempfile.mkdtemp(dir=tmp_path))
+    lines = ["depth,pressure,flow,ec,time"]
+    for row in zip(*(values[k] for k in ("depth", "pressure", "flow", "ec", "time")), strict=True):
+        lines.append(",".join(repr(float(v)) for v in row))
+    (folder / "P1.csv").write_text("\n".join(lines) + "\n")
+    write_las(folder / "P1.las", values)
+    logs = LogsSection(time="time")
+    pd.testing.assert_frame_equal(
+        read_log(folder / "P1.csv", logs=logs), read_log(folder / "P1.las", logs=logs)
+    )
