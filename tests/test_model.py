@@ -1,0 +1,195 @@
+"""Tests of the voxel model on a synthetic layer-cake site whose layers are known."""
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+import pytest
+import shapely
+from scipy.stats import norm
+
+from geo3d.analysis.thickness import thickness_maps
+from geo3d.analysis.volumes import zone_volumes
+from geo3d.errors import ModelError
+from geo3d.model import (
+    build_voxel_model,
+    classify_log10_k,
+    facies_probabilities,
+    facies_table,
+)
+
+
+@dataclass
+class Facies:
+    name: str
+    log10_k_max: float
+    porosity: float
+    effective_porosity: float
+
+
+# default classes of the site template (common practice; porosities after Freeze & Cherry 1979
+# Table 2.4)
+CLASSES = [
+    Facies("storage", -7.0, 0.45, 0.05),
+    Facies("transitional", -5.0, 0.38, 0.15),
+    Facies("transmissive", 0.0, 0.32, 0.25),
+]
+# synthetic layer cake: (top depth, bottom depth, log10 K), flat ground at 10 m
+LAYERS = [(0, 3, -6.0), (3, 5, -8.0), (5, 8, -4.0), (8, 10, -8.0)]
+SITE = shapely.box(0, 0, 60, 45)
+
+
+class FlatWaterTable:
+    def elevation(self, x, y):
+        return np.full(np.shape(x), 6.0)
+
+
+def layer_cake_intervals(seed=1, noise=0.05):
+    """Synthetic composited intervals: 16 borings, 0.25 m intervals, 40 per boring."""
+    rng = np.random.default_rng(seed)
+    rows = []
+    xs = [5.0, 20.0, 38.0, 55.0]
+    ys = [4.0, 17.0, 29.0, 41.0]
+    for i, x in enumerate(xs):
+        for j, y in enumerate(ys):
+            for top in np.arange(0.0, 10.0, 0.25):
+                mid = top + 0.125
+                value = next(v for t, b, v in LAYERS if t <= mid < b)
+                rows.append(
+                    {
+                        "boring_id": f"B{i}{j}",
+                        "x": x,
+                        "y": y,
+                        "top": top,
+                        "bottom": top + 0.25,
+                        "z_mid": 10.0 - mid,
+                        "log10_k": value + rng.normal(0, noise),
+                        "ec": 10.0 + 6.0 * (-4.0 - value) + rng.normal(0, 0.5),
+                    }
+                )
+    intervals = pd.DataFrame(rows)
+    borings = intervals.groupby("boring_id", as_index=False)[["x", "y"]].first()
+    borings["ground_elev"] = 10.0
+    return intervals, borings
+
+
+@pytest.fixture(scope="module")
+def built():
+    intervals, borings = layer_cake_intervals()
+    return build_voxel_model(
+        intervals,
+        boundary=SITE,
+        borings=borings,
+        crs="EPSG:32633",
+        cell_size=(7.5, 7.5, 0.5),
+        facies_classes=CLASSES,
+        water_table=FlatWaterTable(),
+        variogram={"model": "exponential"},
+        kriging={"neighbors": 16, "max_per_boring": 6},
+        n_realizations=4,
+        seed=7,
+    )
+
+
+@pytest.mark.slow
+def test_model_contract(built):
+    ds = built.dataset
+    assert ds["log10_k"].dims == ("z", "y", "x")
+    assert ds.sizes == {"z": 20, "y": 6, "x": 8, "realization": 4}
+    # base 'auto' = bottom of the deepest interval, elevation 0 (construction)
+    assert ds.attrs["base"] == pytest.approx(0.0)
+    assert "UTM zone 33N" in ds.attrs["crs"]
+    assert list(ds.attrs["facies_names"]) == ["storage", "transitional", "transmissive"]
+    for name in ("mask", "log10_k_var", "ec", "ec_var", "k", "facies_code", "saturated"):
+        assert name in ds
+    assert bool(ds["mask"].all())  # flat ground at the grid top, box boundary
+    prob = sum(ds[f"prob_{n}"] for n in ds.attrs["facies_names"])
+    prob_k = sum(ds[f"prob_{n}_kriging"] for n in ds.attrs["facies_names"])
+    assert np.allclose(prob, 1.0) and np.allclose(prob_k, 1.0)  # probabilities of a partition
+    # water table at elevation 6: cells centred at or below 6 m are saturated (construction)
+    assert np.array_equal(ds["saturated"].any(axis=(1, 2)).values, ds["z"].values <= 6.0)
+    assert set(built.variograms) == {"log10_k", "ec"}
+    assert set(built.crossval) == {"log10_k", "ec"}
+
+
+@pytest.mark.slow
+def test_layer_cake_is_recovered(built):
+    maps = thickness_maps(built)
+    # flat layers: transmissive 3 m (depth 5-8), storage 2 + 2 m (construction)
+    assert np.allclose(maps["transmissive_thickness"], 3.0)
+    assert np.allclose(maps["storage_thickness"], 4.0)
+    assert np.allclose(maps["transmissive_top_depth"], 5.0)
+    volumes = zone_volumes(built, None).set_index("facies")
+    # bulk volume 60 x 45 m x 3 m = 8100 m3 (construction); expected values from the
+    # probabilities within 2 %
+    assert volumes.loc["transmissive", "bulk_volume_m3_most_likely"] == pytest.approx(8100.0)
+    assert volumes.loc["transmissive", "bulk_volume_m3"] == pytest.approx(8100.0, rel=0.02)
+    p10, p50, p90 = (volumes.loc["transmissive", f"bulk_volume_m3_p{p}"] for p in (10, 50, 90))
+    assert p10 <= p50 <= p90
+    assert p10 == pytest.approx(8100.0, rel=0.05) and p90 == pytest.approx(8100.0, rel=0.05)
+
+
+@pytest.mark.slow
+def test_crossval_error_is_near_the_noise(built):
+    # leave one boring out of a flat layer cake with 0.05 log10 noise: the other borings see
+    # the same layers at the same elevations, so the error is of the order of the noise
+    # (construction) and unbiased
+    summary = built.crossval["log10_k"].summary
+    assert summary["n"] == 640
+    assert summary["rmse"] < 0.3
+    assert abs(summary["mean_error"]) < 0.05
+    per_group = built.crossval["log10_k"].per_group
+    assert len(per_group) == 16
+
+
+@pytest.mark.slow
+def test_realizations_honour_the_data(built):
+    # conditional simulations reproduce the data at the data locations up to the nugget and
+    # the distance from cell centre to samples (Journel & Huijbregts 1978, ch. VII); here
+    # every realization classifies the cells at a boring as the layer there
+    ds = built.dataset
+    column = ds["realizations"].sel(x=3.75, y=3.75, method="nearest")
+    table = facies_table(CLASSES)
+    codes = classify_log10_k(column.values, table)
+    depth = 10.0 - ds["z"].values
+    expected = classify_log10_k(
+        np.array([next(v for t, b, v in LAYERS if t <= d < b) for d in depth]), table
+    )
+    assert (codes == expected[None]).mean() > 0.95
+
+
+def test_facies_probabilities_match_the_normal_law():
+    table = facies_table(CLASSES)
+    prob = facies_probabilities(np.array([-6.5]), np.array([0.25]), table)
+    # N(-6.5, 0.5^2): P(< -7) = Phi(-1), P(-7..-5) = Phi(3) - Phi(-1), P(>= -5) = 1 - Phi(3)
+    # (normal law; scipy.stats.norm as reference)
+    assert prob[:, 0] == pytest.approx([norm.cdf(-1), norm.cdf(3) - norm.cdf(-1), 1 - norm.cdf(3)])
+    # zero variance: the class of the estimate (indicator)
+    assert facies_probabilities(np.array([-5.0]), np.array([0.0]), table)[:, 0].tolist() == [
+        0.0,
+        0.0,
+        1.0,
+    ]
+
+
+def test_bad_inputs_are_reported():
+    intervals, borings = layer_cake_intervals()
+    with pytest.raises(ModelError, match="z_mid"):
+        build_voxel_model(
+            intervals.drop(columns="z_mid"),
+            boundary=SITE,
+            borings=borings,
+            crs=None,
+            cell_size=(10, 10, 1),
+            facies_classes=CLASSES,
+        )
+    with pytest.raises(ModelError, match="kriging option"):
+        build_voxel_model(
+            intervals,
+            boundary=SITE,
+            borings=borings,
+            crs=None,
+            cell_size=(10, 10, 1),
+            facies_classes=CLASSES,
+            kriging={"neigbors": 3},
+        )
