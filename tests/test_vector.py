@@ -79,6 +79,15 @@ def test_layer_without_crs_is_refused(tmp_path: Path):
         read_boundary(path, crs=UTM31)
 
 
+def test_projected_coordinates_in_a_geojson_without_crs(tmp_path: Path):
+    # RFC 7946: a GeoJSON without a "crs" member is WGS 84 longitude/latitude.
+    path = tmp_path / "b.geojson"
+    ring = [[500000 + x, 5000000 + y] for x, y in SQUARE]
+    write_geojson(path, [polygon_feature(ring)], epsg=None)
+    with pytest.raises(CRSError, match=r"b.geojson: the boundary layer is in .*degrees"):
+        read_boundary(path, crs=UTM31)
+
+
 def test_boundary_must_be_one_polygon(tmp_path: Path):
     path = tmp_path / "b.geojson"
     far = [[x + 1000, y] for x, y in SQUARE]

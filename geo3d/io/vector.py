@@ -166,6 +166,16 @@ def read_layer(path: str | PathLike, *, crs: pyproj.CRS, what: str):
             "in your GIS and save again)"
         )
         raise CRSError(msg)
+    if layer.crs.is_geographic:
+        minx, miny, maxx, maxy = layer.total_bounds
+        if max(abs(minx), abs(maxx)) > 180 or max(abs(miny), abs(maxy)) > 90:
+            msg = (
+                f"{file}: the {what} layer is in {layer.crs.name!r} (degrees) but its "
+                f"coordinates reach ({maxx:.0f}, {maxy:.0f}); expected the layer's CRS to be "
+                'stated (a GeoJSON without a "crs" member is taken as WGS 84 longitude and '
+                "latitude)"
+            )
+            raise CRSError(msg)
     if not layer.crs.equals(crs):
         logger.info("reprojecting %s from %s to %s", file, layer.crs.name, crs.name)
         layer = layer.to_crs(crs)
