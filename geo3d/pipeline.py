@@ -487,7 +487,13 @@ def _write_gpkg(results: RunResults, path: Path) -> Path:
         )
     }
     if site.zones is not None and len(site.zones):
-        layers["zones"] = gpkg.zones_layer(site.zones, crs=site.crs, volumes=results.volumes)
+        layers["zones"] = gpkg.zones_layer(
+            site.zones,
+            crs=site.crs,
+            volumes=results.volumes,
+            plans=results.injection,
+            storage=names[0] if names and "storage" not in names else "storage",
+        )
     if results.injection:
         layers["injection_points"] = gpkg.injection_points_layer(results.injection, crs=site.crs)
     main = {k: v for k, v in results.maps.items() if k in _CONTOURED}

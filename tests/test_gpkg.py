@@ -111,17 +111,27 @@ def test_geopackage_round_trip(tmp_path):
         geometry=[shapely.box(0, 0, 10, 10), shapely.box(20, 0, 30, 10)],
         crs=CRS,
     )
+    # zone_volumes layout: one row per zone, depth band and facies (invented numbers).
     volumes = pd.DataFrame(
         {
-            "zone": ["Z1", "Z1", "Z2", "Z2"],
-            "facies": ["storage", "transmissive"] * 2,
-            "volume_m3": [10.0, 20.0, 30.0, 40.0],
-            "pore_volume_m3": [4.5, 6.4, 13.5, 12.8],
+            "zone": ["Z1", "Z1", "Z1", "Z2", "site"],
+            "band": ["all", "all", "all", "all", "all"],
+            "facies": ["storage", "transmissive", "all", "all", "all"],
+            "bulk_volume_m3": [10.0, 20.0, 30.0, 40.0, 99.0],
+            "bulk_volume_m3_p10": [8.0, 18.0, 28.0, 38.0, 90.0],
+            "effective_pore_volume_m3": [0.5, 5.0, 5.5, 6.0, 9.0],
+            "pore_volume_m3": [4.5, 6.4, 10.9, 12.0, 40.0],
         }
     )
-    zl = zones_layer(zones, crs=CRS, volumes=volumes)
-    assert zl.loc[zl.name == "Z2", "transmissive_volume_m3"].item() == 40.0
-    assert zl.loc[zl.name == "Z1", "storage_pore_volume_m3"].item() == 4.5
+    plans = {"Z1": SimpleNamespace(summary={"design_volume_m3": 1.1, "n_points": 12})}
+    zl = zones_layer(zones, crs=CRS, volumes=volumes, plans=plans)
+    z1 = zl.set_index("name").loc["Z1"]
+    assert z1["transmissive_bulk_volume_m3"] == 20.0
+    assert z1["storage_bulk_volume_m3_p10"] == 8.0
+    assert z1["total_pore_volume_m3"] == 10.9
+    assert (z1["plan_design_volume_m3"], z1["plan_n_points"]) == (1.1, 12)
+    assert np.isnan(zl.set_index("name").loc["Z2", "plan_n_points"])
+    assert len(zl) == 2  # the whole-site row is not a zone
     plan = SimpleNamespace(
         points=gpd.GeoDataFrame(
             {"volume_m3": [1.0, 2.0]}, geometry=gpd.points_from_xy([1, 2], [1, 2]), crs=CRS
@@ -146,7 +156,7 @@ def test_geopackage_round_trip(tmp_path):
         assert pyproj.CRS(back.crs).equals(pyproj.CRS(CRS))
         assert len(back) == len(layers[name])
     back = gpd.read_file(path, layer="zones")
-    assert back.loc[back.name == "Z1", "transmissive_volume_m3"].item() == 20.0
+    assert back.loc[back.name == "Z1", "transmissive_bulk_volume_m3"].item() == 20.0
     back = gpd.read_file(path, layer="borings")
     assert back["n_spike"].tolist() == [2, 0]
     # Writing again replaces the file instead of appending duplicate layers.

@@ -1,12 +1,17 @@
 """The pipeline: stages in order, outputs in one folder, nothing left behind on failure."""
 
 import json
+from types import SimpleNamespace
 
+import geopandas as gpd
+import numpy as np
 import pandas as pd
+import pyogrio
+import pyproj
 import pytest
 
 from geo3d.errors import Geo3dError, OutputExistsError
-from geo3d.pipeline import STAGES, planned_stages, run
+from geo3d.pipeline import STAGES, headline_volumes, planned_stages, run
 
 
 def test_planned_stages():
@@ -60,3 +65,81 @@ def test_existing_output_needs_overwrite(mini_site, tmp_path):
     with pytest.raises(OutputExistsError):
         run(mini_site, out, stages=["logs"])
     assert (out / "keep.txt").read_text() == "earlier run"
+
+
+def synthetic_model(site, logs):
+    """A layered voxel model over the mini site: invented values, real grid and facies code."""
+    from geo3d.grid import build_mask, make_grid
+    from geo3d.model import classify_log10_k, facies_probabilities, facies_table
+
+    table = facies_table(logs.facies_classes)
+    grid = make_grid(site.boundary, cell_size=(10.0, 10.0, 0.5), top=50.5, base=46.5, crs=site.crs)
+    ground = np.full((grid.sizes["y"], grid.sizes["x"]), 50.0)
+    mask = build_mask(grid, site.boundary, ground=ground, base=46.5).values
+    z = grid["z"].values[:, None, None] + 0 * grid["x"].values
+    x = grid["x"].values
+    interface = 47.5 + 0.02 * (x - x.min()) + 0 * grid["y"].values[:, None]  # 47.5 to 49.3 m
+    log10_k = np.where(mask, np.where(z > interface, -4.0, -8.0), np.nan)
+    variance = np.where(mask, 0.25, np.nan)
+    prob = facies_probabilities(log10_k, variance, table)
+    ds = grid.assign(
+        mask=(("z", "y", "x"), mask),
+        ground_elev=(("y", "x"), ground),
+        log10_k=(("z", "y", "x"), log10_k),
+        log10_k_var=(("z", "y", "x"), variance),
+        k=(("z", "y", "x"), 10**log10_k),
+        ec=(("z", "y", "x"), np.where(mask, 20.0, np.nan)),
+        ec_var=(("z", "y", "x"), np.where(mask, 1.0, np.nan)),
+        facies_code=(("z", "y", "x"), classify_log10_k(log10_k, table)),
+        saturated=(("z", "y", "x"), mask & (z < 48.75)),
+        realizations=(("realization", "z", "y", "x"), np.stack([log10_k, log10_k + 0.5])),
+    )
+    for i, name in enumerate(table.names):
+        ds[f"prob_{name}"] = (("z", "y", "x"), prob[i])
+    ds.attrs.update(table.attrs())
+    return SimpleNamespace(dataset=ds, variograms={}, crossval={})
+
+
+@pytest.mark.slow
+def test_volumes_and_export_on_a_layered_model(mini_site, tmp_path):
+    from geo3d.pipeline import RunResults, run_check, run_export, run_logs, run_volumes
+
+    site = run_check(mini_site)
+    logs = run_logs(site)
+    model = synthetic_model(site, logs)
+    maps, volumes, plans = run_volumes(site, logs, model)
+    # Transmissive over storage: their thicknesses fill the 3.5 m column (46.5 to 50 m), and
+    # the transmissive thickness is the count of 0.5 m cells above the interface.
+    inside = model.dataset["mask"].any("z").values
+    transmissive = maps["transmissive_thickness"].values[inside]
+    storage = maps["storage_thickness"].values[inside]
+    assert transmissive + storage == pytest.approx(3.5)
+    ds = model.dataset
+    expected = (ds["facies_code"] == 2).sum("z").values * 0.5
+    assert transmissive == pytest.approx(expected[inside])
+    assert transmissive.min() < transmissive.max()
+    assert maps["wt_elev"].values[inside] == pytest.approx(48.75)  # flat water table
+    assert set(plans) == {"Z1"}
+    results = RunResults(
+        site=site, logs=logs, model=model, maps=maps, volumes=volumes, injection=plans
+    )
+    out = tmp_path / "export"
+    written = run_export(results, out, formats=["csv", "vtk", "geotiff", "gpkg", "netcdf"])
+    names = {p.relative_to(out).as_posix() for p in written}
+    assert {
+        "model.vti",
+        "borings.vtp",
+        "site.vtm",
+        "model.nc",
+        "site.gpkg",
+        "volumes.csv",
+        "injection_plan.csv",
+        "maps/transmissive_thickness.tif",
+        "maps/wt_elev.tif",
+    } <= names
+    layers = {name for name, _ in pyogrio.list_layers(out / "site.gpkg")}
+    assert {"borings", "zones", "injection_points", "contours"} <= layers
+    zones = gpd.read_file(out / "site.gpkg", layer="zones")
+    assert pyproj.CRS(zones.crs).equals(site.crs)
+    headline = headline_volumes(results)
+    assert "Z1" in set(headline["zone"])

@@ -94,3 +94,40 @@ def test_write_tables(tmp_path):
     assert plan["schedule"][0]["volume_L"] == pytest.approx(500.0)
     assert json.loads((tmp_path / "crossval.json").read_text())["log10_k"]["rmse"] == 0.2
     assert pd.read_csv(tmp_path / "crossval.csv")["variable"].tolist() == ["log10_k"]
+
+
+def test_unit_tokens_areas_and_si_columns():
+    from geo3d.io.tables import mapping_to_output_units, output_name
+
+    df = pd.DataFrame(
+        {
+            "bulk_volume_m3_p10": [3.785411784e-3],
+            "area_m2": [0.09290304],
+            "k": [1e-5],
+            "flag": [True],
+            "spacing_m": [3.048],
+        }
+    )
+    out = to_output_units(df, length_unit="ft", volume_unit="gal")
+    assert list(out.columns) == ["bulk_volume_gal_p10", "area_ft2", "k_m_s", "flag", "spacing_ft"]
+    # 1 US gal = 3.785411784 L; 1 ft2 = 0.09290304 m2 (NIST SP 811, appendix B).
+    assert out["bulk_volume_gal_p10"][0] == pytest.approx(1.0)
+    assert out["area_ft2"][0] == pytest.approx(1.0)
+    assert out["spacing_ft"][0] == pytest.approx(10.0)
+    assert out["k_m_s"][0] == 1e-5
+    # US survey foot = 1200/3937 m (NIST SP 811).
+    assert output_name("top", length_unit="us_survey_ft") == ("top_usft", "length", "us_survey_ft")
+    nested = mapping_to_output_units(
+        {"Z1": {"design_volume_m3": 1.0, "n_points": 4, "radius_of_influence_m": 0.3048}},
+        length_unit="ft",
+        volume_unit="L",
+    )
+    assert nested == {
+        "Z1": {"design_volume_L": 1000.0, "n_points": 4, "radius_of_influence_ft": 1.0}
+    }
+
+
+def test_coordinates_keep_full_precision(tmp_path):
+    path = write_csv(pd.DataFrame({"x": [500010.123], "y": [5000070.456]}), tmp_path / "c.csv")
+    back = pd.read_csv(path)
+    assert back["x_m"][0] == 500010.123 and back["y_m"][0] == 5000070.456

@@ -130,17 +130,49 @@ def boring_summary(
     return gpd.GeoDataFrame(out, geometry=geometry, crs=crs)
 
 
-def _zone_key(volumes: pd.DataFrame) -> str | None:
-    for key in ("zone", "name", "zone_name"):
-        if key in volumes.columns:
-            return key
-    return None
+#: Volume columns carried per facies, and those also carried with their P10/P50/P90.
+_PER_FACIES = ("bulk_volume_m3", "effective_pore_volume_m3")
+_PERCENTILES = ("p10", "p50", "p90")
+#: Injection-plan summary entries carried onto the zone.
+_PLAN_FIELDS = (
+    "design_volume_m3",
+    "design_volume_m3_p10",
+    "design_volume_m3_p50",
+    "design_volume_m3_p90",
+    "n_points",
+    "spacing_m",
+    "radius_of_influence_m",
+)
+
+
+def _zone_volume_columns(rows: pd.DataFrame, *, storage: str) -> dict[str, float]:
+    values: dict[str, float] = {}
+    for row in rows.itertuples(index=False):
+        facies = str(row.facies)
+        label = "total" if facies == "all" else facies
+        for column in _PER_FACIES:
+            if hasattr(row, column):
+                values[f"{label}_{column}"] = float(getattr(row, column))
+        if facies in ("all", storage):
+            for column in _PER_FACIES:
+                for p in _PERCENTILES:
+                    name = f"{column}_{p}"
+                    if hasattr(row, name):
+                        values[f"{label}_{name}"] = float(getattr(row, name))
+        if facies == "all" and hasattr(row, "pore_volume_m3"):
+            values["total_pore_volume_m3"] = float(row.pore_volume_m3)
+    return values
 
 
 def zones_layer(
-    zones: gpd.GeoDataFrame, *, crs, volumes: pd.DataFrame | None = None
+    zones: gpd.GeoDataFrame,
+    *,
+    crs,
+    volumes: pd.DataFrame | None = None,
+    plans: Mapping[str, object] | None = None,
+    storage: str = "storage",
 ) -> gpd.GeoDataFrame:
-    """Join each treatment zone to its volumes.
+    """Join each treatment zone to its volumes and its injection-plan figures.
 
     Parameters
     ----------
@@ -149,37 +181,44 @@ def zones_layer(
     crs
         Site CRS.
     volumes
-        Volume table with a ``zone`` (or ``name``) column.  When a zone has several rows
-        (per facies or depth band), its numeric columns are spread into
-        ``<label>_<column>`` columns, the label joining the row's text columns.
+        Volume table (``zone``, ``band``, ``facies`` and volume columns in m3, as from
+        :func:`geo3d.analysis.volumes.zone_volumes`); the whole-zone rows (``band`` ``all``)
+        are used.
+    plans
+        Zone name -> injection plan (with a ``summary`` dict).
+    storage
+        Name of the storage hydrofacies (its volumes carry P10/P50/P90).
 
     Returns
     -------
     geopandas.GeoDataFrame
-        One row per zone.
+        One row per zone: its attributes, ``<facies>_bulk_volume_m3`` and
+        ``<facies>_effective_pore_volume_m3`` per facies (``total_`` for all material), P10,
+        P50 and P90 of the storage and total volumes, and the plan's design volume, number of
+        points, spacing and radius.
     """
     layer = gpd.GeoDataFrame(zones.copy(), geometry=zones.geometry.name, crs=zones.crs or crs)
-    layer = layer.to_crs(crs) if layer.crs is not None else layer.set_crs(crs)
-    key = None if volumes is None else _zone_key(volumes)
-    if volumes is None or volumes.empty or key is None:
+    layer = layer.to_crs(crs)
+    extra: dict[str, dict[str, float]] = {str(name): {} for name in layer["name"]}
+    if volumes is not None and len(volumes) and {"zone", "facies"} <= set(volumes.columns):
+        table = volumes
+        if "band" in table.columns:
+            table = table[table["band"].isna() | (table["band"].astype(str) == "all")]
+        for zone, rows in table.groupby(table["zone"].astype(str)):
+            if zone in extra:
+                extra[zone].update(_zone_volume_columns(rows, storage=storage))
+    for zone, plan in (plans or {}).items():
+        summary = getattr(plan, "summary", None) or {}
+        if str(zone) in extra:
+            for key in _PLAN_FIELDS:
+                if key in summary and summary[key] is not None:
+                    extra[str(zone)][f"plan_{key}"] = float(summary[key])
+    table = pd.DataFrame.from_dict(extra, orient="index")
+    if table.empty or not len(table.columns):
         return layer
-    volumes = volumes.copy()
-    volumes[key] = volumes[key].astype(str)
-    numeric = [c for c in volumes.columns if c != key and pd.api.types.is_numeric_dtype(volumes[c])]
-    labels = [c for c in volumes.columns if c != key and c not in numeric]
-    if volumes.groupby(key).size().max() == 1 or not labels:
-        wide = volumes.groupby(key)[numeric].sum(min_count=1)
-    else:
-        label = volumes[labels].astype(str).agg("_".join, axis=1)
-        wide = volumes.assign(_label=label).pivot_table(
-            index=key, columns="_label", values=numeric, aggfunc="first"
-        )
-        wide.columns = [f"{lab}_{col}" for col, lab in wide.columns]
-    wide = wide.reset_index().rename(columns={key: "_zone_key"})
-    layer = layer.assign(_zone_key=layer["name"].astype(str)).merge(
-        wide, on="_zone_key", how="left"
-    )
-    return layer.drop(columns="_zone_key")
+    table = table.rename_axis("_zone_key").reset_index()
+    layer = layer.assign(_zone_key=layer["name"].astype(str))
+    return layer.merge(table, on="_zone_key", how="left").drop(columns="_zone_key")
 
 
 def injection_points_layer(plans: Mapping[str, object], *, crs) -> gpd.GeoDataFrame:

@@ -4,7 +4,9 @@ Internal lengths are m and volumes m3; a table written for people uses the outpu
 site file (``[units] output_length`` and ``output_volume``), converted with :mod:`geo3d.units`,
 and every column holding a length or a volume says its unit in its name (``top_ft``,
 ``volume_gal``).  Columns named ``<something>_m3`` are volumes; the lengths are the columns
-listed in :data:`LENGTH_COLUMNS` (coordinates, depths, elevations, thicknesses, radii).
+listed in :data:`LENGTH_COLUMNS` (coordinates, depths, elevations, thicknesses, radii);
+names with a unit token (``_m3``, ``_m2``, a final ``_m``) are converted by that token.
+Quantities kept in SI (K, EC, pressures, flow) get their unit appended (:data:`SI_COLUMNS`).
 """
 
 from __future__ import annotations
@@ -12,6 +14,7 @@ from __future__ import annotations
 import json
 import logging
 import math
+import re
 from collections.abc import Mapping
 from os import PathLike
 from pathlib import Path
@@ -23,8 +26,11 @@ from geo3d.units import from_internal
 
 __all__ = [
     "LENGTH_COLUMNS",
+    "SI_COLUMNS",
     "unit_label",
+    "output_name",
     "to_output_units",
+    "mapping_to_output_units",
     "write_csv",
     "write_json",
     "write_tables",
@@ -61,7 +67,26 @@ LENGTH_COLUMNS: frozenset[str] = frozenset(
     }
 )
 
+#: Columns kept in internal units, renamed to carry their unit.
+SI_COLUMNS: dict[str, str] = {
+    "k": "m_s",
+    "k_log": "m_s",
+    "transmissivity": "m2_s",
+    "ec": "mS_m",
+    "ec_var": "mS2_m2",
+    "pressure": "kPa",
+    "p_atm": "kPa",
+    "p_hydrostatic": "kPa",
+    "p_net": "kPa",
+    "p_static": "kPa",
+    "flow": "m3_s",
+    "q_over_p": "m3_s_kPa",
+}
+
 _LABELS = {"us_survey_ft": "usft", "m**3": "m3", "ft**3": "ft3", "gal/min": "gpm"}
+_VOLUME_TOKEN = re.compile(r"(?<![A-Za-z0-9])m3(?=_|$)")
+_AREA_TOKEN = re.compile(r"(?<![A-Za-z0-9])m2(?=_|$)")
+_LENGTH_SUFFIX = re.compile(r"_m$")
 
 
 def unit_label(unit: str) -> str:
@@ -76,6 +101,74 @@ def unit_label(unit: str) -> str:
     return "".join(ch if ch.isalnum() else "_" for ch in text)
 
 
+def _quantity_of(name: str, lengths: frozenset[str] | set[str]) -> str | None:
+    if name in lengths:
+        return "length"
+    if _VOLUME_TOKEN.search(name):
+        return "volume"
+    if _AREA_TOKEN.search(name):
+        return "area"
+    if _LENGTH_SUFFIX.search(name):
+        return "length"
+    return None
+
+
+def output_name(
+    name: str,
+    *,
+    length_unit: str = "m",
+    volume_unit: str = "m3",
+    lengths: frozenset[str] | set[str] = LENGTH_COLUMNS,
+) -> tuple[str, str | None, str | None]:
+    """Name a quantity in output units and say how to convert it.
+
+    Parameters
+    ----------
+    name
+        Column or key name in internal units: a length column (``top``) or a name carrying
+        its SI unit as a token (``volume_m3``, ``bulk_volume_m3_p10``, ``area_m2``,
+        ``spacing_m``).
+    length_unit, volume_unit
+        Output units.
+    lengths
+        Names of the length columns that carry no unit token.
+
+    Returns
+    -------
+    (new_name, quantity, unit)
+        ``quantity`` is ``"length"``, ``"volume"``, ``"area"`` or None (left as it is, but
+        renamed with its SI unit when listed in :data:`SI_COLUMNS`); ``unit`` is the pint
+        unit to convert to.
+
+    Examples
+    --------
+    >>> output_name("bulk_volume_m3_p10", volume_unit="gal")
+    ('bulk_volume_gal_p10', 'volume', 'gal')
+    >>> output_name("area_m2", length_unit="ft")
+    ('area_ft2', 'area', 'ft**2')
+    >>> output_name("top", length_unit="ft")
+    ('top_ft', 'length', 'ft')
+    """
+    length_label = unit_label(length_unit)
+    quantity = _quantity_of(name, lengths)
+    if quantity == "length":
+        if name in lengths:
+            return f"{name}_{length_label}", "length", length_unit
+        return _LENGTH_SUFFIX.sub(f"_{length_label}", name), "length", length_unit
+    if quantity == "volume":
+        return _VOLUME_TOKEN.sub(unit_label(volume_unit), name), "volume", volume_unit
+    if quantity == "area":
+        unit = f"{_canonical_length(length_unit)}**2"
+        return _AREA_TOKEN.sub(f"{length_label}2", name), "area", unit
+    if name in SI_COLUMNS:
+        return f"{name}_{SI_COLUMNS[name]}", None, None
+    return name, None, None
+
+
+def _canonical_length(unit: str) -> str:
+    return "survey_foot" if unit.strip().lower() in ("us_survey_ft", "ftus") else unit
+
+
 def to_output_units(
     df: pd.DataFrame,
     *,
@@ -83,45 +176,77 @@ def to_output_units(
     volume_unit: str = "m3",
     lengths: frozenset[str] | set[str] = LENGTH_COLUMNS,
 ) -> pd.DataFrame:
-    """Convert length and volume columns from internal units and put the unit in the names.
+    """Convert length, area and volume columns from internal units; put units in the names.
 
     Parameters
     ----------
     df
-        Table in internal units (m, m3).
+        Table in internal units (m, m2, m3).
     length_unit
-        Output length unit (``m``, ``ft``, ``us_survey_ft``).
+        Output length unit (``m``, ``ft``, ``us_survey_ft``); areas follow it squared.
     volume_unit
         Output volume unit (``m3``, ``L``, ``gal``, ``ft3``).
     lengths
-        Names of the length columns.
+        Names of the length columns without a unit token.
 
     Returns
     -------
     pandas.DataFrame
-        A copy: length column ``top`` becomes ``top_<unit>``; a volume column ``pore_m3``
-        becomes ``pore_<unit>``; other columns are unchanged.
+        A copy, renamed and converted as :func:`output_name` says.
 
     Examples
     --------
     >>> t = to_output_units(pd.DataFrame({"top": [3.048], "volume_m3": [1.0]}),
     ...                     length_unit="ft", volume_unit="L")
-    >>> list(t.columns), round(t["top_ft"][0], 6), round(t["volume_L"][0], 6)
+    >>> list(t.columns), round(float(t["top_ft"][0]), 6), round(float(t["volume_L"][0]), 6)
     (['top_ft', 'volume_L'], 10.0, 1000.0)
     """
     out = df.copy()
     renames: dict[str, str] = {}
-    length_suffix = unit_label(length_unit)
-    volume_suffix = unit_label(volume_unit)
     for column in df.columns:
         name = str(column)
-        if name in lengths and pd.api.types.is_numeric_dtype(df[column]):
-            out[column] = from_internal(df[column].to_numpy(float), length_unit, "length")
-            renames[column] = f"{name}_{length_suffix}"
-        elif name.endswith("_m3") and pd.api.types.is_numeric_dtype(df[column]):
-            out[column] = from_internal(df[column].to_numpy(float), volume_unit, "volume")
-            renames[column] = f"{name[: -len('_m3')]}_{volume_suffix}"
+        new, quantity, unit = output_name(
+            name, length_unit=length_unit, volume_unit=volume_unit, lengths=lengths
+        )
+        numeric = pd.api.types.is_numeric_dtype(df[column])
+        if quantity is not None and numeric and not pd.api.types.is_bool_dtype(df[column]):
+            out[column] = from_internal(df[column].to_numpy(float), unit, quantity)
+        elif quantity is not None:
+            continue
+        if new != name:
+            renames[column] = new
     return out.rename(columns=renames)
+
+
+def mapping_to_output_units(
+    data: Mapping, *, length_unit: str = "m", volume_unit: str = "m3"
+) -> dict:
+    """Convert the numeric entries of a (nested) dict whose keys carry an SI unit token.
+
+    Keys are treated as in :func:`output_name` (but only unit tokens count, not the bare
+    length names); other entries are kept.
+
+    Examples
+    --------
+    >>> mapping_to_output_units({"spacing_m": 0.3048, "n": 2}, length_unit="ft")
+    {'spacing_ft': 1.0, 'n': 2}
+    """
+    out: dict = {}
+    for key, value in data.items():
+        if isinstance(value, Mapping):
+            out[key] = mapping_to_output_units(
+                value, length_unit=length_unit, volume_unit=volume_unit
+            )
+            continue
+        new, quantity, unit = output_name(
+            str(key), length_unit=length_unit, volume_unit=volume_unit, lengths=frozenset()
+        )
+        number = isinstance(value, int | float | np.number) and not isinstance(value, bool)
+        if quantity is not None and number:
+            out[new] = round(float(from_internal(float(value), unit, quantity)), 12)
+        else:
+            out[key] = value
+    return out
 
 
 def write_csv(
@@ -130,7 +255,7 @@ def write_csv(
     *,
     length_unit: str = "m",
     volume_unit: str = "m3",
-    float_format: str = "%.6g",
+    float_format: str = "%.10g",
 ) -> Path:
     """Write a table as CSV in output units (see :func:`to_output_units`).
 
@@ -242,7 +367,8 @@ def write_tables(
         schedule = to_output_units(injection_schedule, **units)
         if "geometry" in schedule.columns:
             schedule = pd.DataFrame(schedule.drop(columns="geometry"))
-        payload = {"summary": injection_summary or {}, "schedule": schedule}
+        summary = mapping_to_output_units(injection_summary or {}, **units)
+        payload = {"summary": summary, "schedule": schedule}
         written.append(write_json(payload, out_dir / "injection_plan.json"))
     if crossval:
         samples, per_group, summaries = [], [], {}

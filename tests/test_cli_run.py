@@ -1,0 +1,103 @@
+"""The run, stage and demo commands through click's test runner."""
+
+import json
+from pathlib import Path
+
+import geopandas as gpd
+import pyproj
+import pytest
+import pyvista as pv
+import rasterio
+import xarray as xr
+from click.testing import CliRunner
+
+import geo3d
+from geo3d.cli import demo_site_path, main
+from geo3d.errors import SiteFileError
+
+DEMO = Path(geo3d.__file__).resolve().parent.parent / "demo_site"
+
+
+def test_broken_site_clean_message_no_output(mini_site, tmp_path):
+    (mini_site / "borings.csv").write_text("boring_id,x,y\nB1,1,2\n")  # no ground_elev
+    out = tmp_path / "out"
+    result = CliRunner().invoke(main, ["run", str(mini_site), "-o", str(out), "--no-progress"])
+    assert result.exit_code == 2, result.output
+    assert "ground_elev" in result.output and "borings.csv" in result.output
+    assert "Traceback" not in result.output
+    assert not out.exists()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["mini_site"]
+
+
+def test_existing_output_refused_then_overwritten(mini_site, tmp_path):
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "old.txt").write_text("x")
+    runner = CliRunner()
+    result = runner.invoke(main, ["logs", str(mini_site), "-o", str(out), "--no-progress"])
+    assert result.exit_code == 2
+    assert "overwrite" in result.output and "Traceback" not in result.output
+    assert (out / "old.txt").exists()
+    result = runner.invoke(
+        main, ["logs", str(mini_site), "-o", str(out), "--overwrite", "--no-progress"]
+    )
+    assert result.exit_code == 0, result.output
+    assert not (out / "old.txt").exists()
+    assert (out / "intervals.csv").exists() and (out / "run.log").exists()
+    assert "Outputs in" in result.output
+
+
+def test_demo_site_missing_is_a_clear_error(monkeypatch, tmp_path):
+    monkeypatch.setattr(geo3d, "__file__", str(tmp_path / "pkg" / "geo3d" / "__init__.py"))
+    with pytest.raises(SiteFileError, match="demo site was not found"):
+        demo_site_path()
+    result = CliRunner().invoke(main, ["demo", "-o", str(tmp_path / "d"), "--no-progress"])
+    assert result.exit_code == 2
+    assert "demo site was not found" in result.output
+
+
+@pytest.mark.slow
+def test_demo_run_end_to_end(tmp_path):
+    out = tmp_path / "demo-out"
+    result = CliRunner().invoke(
+        main, ["demo", "-o", str(out), "--realizations", "2", "--no-progress"]
+    )
+    assert result.exit_code == 0, result.output
+    assert "Headline volumes" in result.output
+    names = {p.name for p in out.iterdir()}
+    expected = {
+        "model.vti",
+        "borings.vtp",
+        "site.vtm",
+        "model.nc",
+        "site.gpkg",
+        "report.html",
+        "intervals.csv",
+        "volumes.csv",
+        "volumes.json",
+        "crossval.csv",
+        "water_levels.csv",
+        "calibration.json",
+        "run.log",
+        "run.json",
+        "maps",
+    }
+    assert expected <= names, expected - names
+    crs = pyproj.CRS.from_user_input(
+        __import__("tomllib").loads((DEMO / "site.toml").read_text())["site"]["crs"]
+    )
+    # Every output opens in its usual reader, in the site CRS.
+    image = pv.read(out / "model.vti")
+    assert "log10_k" in image.cell_data
+    with xr.open_dataset(out / "model.nc") as ds:
+        assert pyproj.CRS.from_cf(ds["spatial_ref"].attrs).equals(crs)
+        assert ds.sizes["realization"] == 2
+    tifs = sorted((out / "maps").glob("*.tif"))
+    assert tifs
+    for tif in tifs:
+        with rasterio.open(tif) as src:
+            assert pyproj.CRS.from_wkt(src.crs.to_wkt()).equals(crs)
+    borings = gpd.read_file(out / "site.gpkg", layer="borings")
+    assert pyproj.CRS(borings.crs).equals(crs)
+    meta = json.loads((out / "run.json").read_text())
+    assert meta["stages"] == ["check", "logs", "model", "volumes", "export", "report"]
