@@ -458,6 +458,7 @@ def full_report(tmp_path_factory):
 # --------------------------------------------------------------------------- whole report
 
 
+@pytest.mark.slow
 def test_report_has_every_section_in_order(full_report):
     _, text = full_report
     page = parse(text)
@@ -469,6 +470,7 @@ def test_report_has_every_section_in_order(full_report):
         assert f'href="#{anchor}"' in text
 
 
+@pytest.mark.slow
 def test_report_embeds_every_expected_figure_as_png(full_report):
     _, text = full_report
     page = parse(text)
@@ -492,6 +494,7 @@ def test_report_embeds_every_expected_figure_as_png(full_report):
         assert img.get("alt")
 
 
+@pytest.mark.slow
 def test_report_references_no_external_resource(full_report):
     _, text = full_report
     page = parse(text)
@@ -503,6 +506,7 @@ def test_report_references_no_external_resource(full_report):
         assert url.strip("'\" ").startswith("data:")
 
 
+@pytest.mark.slow
 def test_report_title_block(full_report):
     _, text = full_report
     assert "<h1>Synthetic test site</h1>" in text
@@ -512,6 +516,7 @@ def test_report_title_block(full_report):
     assert geo3d.__version__ in text
 
 
+@pytest.mark.slow
 def test_cautions_open_and_close_the_report(full_report):
     _, text = full_report
     first = text.index('id="read-first"')
@@ -526,6 +531,7 @@ def test_cautions_open_and_close_the_report(full_report):
         assert "interpolation" in lower
 
 
+@pytest.mark.slow
 def test_methods_cite_their_sources(full_report):
     _, text = full_report
     for source in (
@@ -542,6 +548,7 @@ def test_methods_cite_their_sources(full_report):
         assert source in text
 
 
+@pytest.mark.slow
 def test_report_tables_carry_the_numbers(full_report):
     _, text = full_report
     # P10/P50/P90 of the volumes and the cross-validation statistics reach the page
@@ -557,18 +564,42 @@ def test_report_tables_carry_the_numbers(full_report):
     assert "2,700" in text  # P90 transmissive volume of the synthetic zone, formatted
 
 
+def _keep_borings(results, ids):
+    """Cut the logs down to a few borings (keeps the tests fast)."""
+    for name in ("samples", "intervals"):
+        table = getattr(results.logs, name)
+        setattr(results.logs, name, table[table["boring_id"].isin(ids)])
+    return results
+
+
 def test_write_report_leaves_only_the_report(tmp_path):
-    results = make_results(with_model=False)
+    results = SimpleNamespace(
+        site=None, logs=None, model=None, maps=None, volumes=None, injection=None, timings=None
+    )
     path = write_report(results, tmp_path / "out" / "report.html")
     assert path == tmp_path / "out" / "report.html"
     assert [p.name for p in path.parent.iterdir()] == ["report.html"]
+    assert path.stat().st_mode & 0o444 == 0o444  # readable by everyone it is shared with
+
+
+def test_log_figures_written_by_the_logs_stage_are_embedded_as_they_are(tmp_path):
+    results = _keep_borings(make_results(with_model=False), ["DP-01"])
+    fig = fg.new_figure(2.0, 2.0)
+    fig.add_subplot().plot([0, 1], [1, 0])
+    png = fg.figure_to_png(fig)
+    folder = tmp_path / "figures" / "logs"
+    folder.mkdir(parents=True)
+    (folder / "DP-01.png").write_bytes(png)
+    text = write_report(results, tmp_path / "report.html").read_text(encoding="utf-8")
+    logs = [img for img in parse(text).images if img.get("data-figure") == "log-DP-01"]
+    assert len(logs) == 1 and decode_img(logs[0]["src"]) == png
 
 
 # --------------------------------------------------------------------------- absent data
 
 
 def test_absent_parts_give_notes_not_errors(tmp_path):
-    results = make_results(with_model=False, with_slug_tests=False)
+    results = _keep_borings(make_results(with_model=False, with_slug_tests=False), ["DP-02"])
     results.logs.sensor_checks = None
     results.site.zones = None
     with warnings.catch_warnings():
@@ -595,30 +626,33 @@ def test_nearly_empty_results_still_make_a_report():
 
 
 def test_failing_section_becomes_a_note_and_a_warning():
-    results = make_results(with_model=False)
+    from geo3d.report.html import _Context, _render_section
 
     class Broken:
         @property
         def vertical(self):
             raise RuntimeError("variogram table unreadable")
 
+    results = make_results(with_model=False)
     results.model = SimpleNamespace(dataset=None, variograms={"log10_k": Broken()}, crossval={})
+    ctx = _Context.from_results(results)
     with pytest.warns(Geo3dWarning, match="Variograms"):
-        text = build_report(results)
-    assert "variogram table unreadable" in text
-    assert parse(text).sections == list(SECTION_TITLES)
+        html_text = _render_section(ctx, "variograms")
+    assert html_text.startswith('<section id="variograms"')
+    assert "variogram table unreadable" in html_text
 
 
 def test_missing_3d_rendering_is_a_note(monkeypatch):
     from geo3d.report import view3d
+    from geo3d.report.html import _Context, _section_view3d
 
     def no_gl(*args, **kwargs):
         raise view3d.View3DUnavailable("no OpenGL context")
 
     monkeypatch.setattr(view3d, "render_model_view", no_gl)
-    text = build_report(make_results())
+    text = _section_view3d(_Context.from_results(make_results()))
     assert "could not be rendered on this machine (no OpenGL context)" in text
-    assert 'data-figure="view3d"' not in text
+    assert "<img" not in text
 
 
 # --------------------------------------------------------------------------- figure helpers

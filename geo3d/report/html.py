@@ -299,6 +299,7 @@ class _Context:
     zones: Any
     crs_label: str
     sections: list = field(default_factory=list)
+    log_figure_dir: Path | None = None
 
     @classmethod
     def from_results(cls, results: Any) -> _Context:
@@ -553,6 +554,17 @@ def _section_logs(ctx: _Context) -> str:
             if intervals is not None
             else None
         )
+        saved = _saved_log_figure(ctx.log_figure_dir, boring_id)
+        if saved is not None:
+            cells.append(
+                _img(
+                    fg.png_to_data_uri(saved),
+                    name=f"log-{boring_id}",
+                    alt=f"Log of boring {boring_id}",
+                    caption=f"Boring {_esc(boring_id)}",
+                )
+            )
+            continue
         fig = None
         if shared is not None:
             try:
@@ -603,6 +615,18 @@ def _section_logs(ctx: _Context) -> str:
     return "".join(parts)
 
 
+def _saved_log_figure(folder: Path | None, boring_id: str) -> bytes | None:
+    """Return the PNG the logs stage already wrote for a boring, if it sits beside the report."""
+    if folder is None:
+        return None
+    path = Path(folder) / f"{boring_id}.png"
+    try:
+        png = path.read_bytes()
+    except OSError:
+        return None
+    return png if png[:8] == b"\x89PNG\r\n\x1a\n" else None
+
+
 def _flag_summary(samples: pd.DataFrame | None) -> str:
     if samples is None or not len(samples):
         return ""
@@ -645,17 +669,23 @@ def _physics_screen_k(ctx: _Context, residuals: pd.DataFrame) -> tuple[np.ndarra
     probe = _get(_get(_get(ctx.site, "config"), "probe"), "shape")
     samples = ctx.samples
     needed = {"boring_id", "top_depth", "bottom_depth"}
-    if probe is None or samples is None or "q_over_p" not in samples:
+    if (
+        (probe is None and _get(ctx.logs, "shape_factor") is None)
+        or samples is None
+        or "q_over_p" not in samples
+    ):
         return None
     if not needed <= set(residuals):
         return None
     from geo3d.logs.calibration import physics_coefficients, screen_samples
     from geo3d.logs.hydraulic import shape_factor
 
-    config = ctx.site.config.probe
-    factor = shape_factor(
-        config.shape, length=config.screen_length, diameter=config.screen_diameter
-    )
+    factor = _get(ctx.logs, "shape_factor")
+    if factor is None:
+        config = ctx.site.config.probe
+        factor = shape_factor(
+            config.shape, length=config.screen_length, diameter=config.screen_diameter
+        )
     a_phys, _ = physics_coefficients(factor)
     usable = np.ones(len(samples), dtype=bool)
     for flag in _FLAG_COLUMNS:
@@ -1126,7 +1156,12 @@ def _resource(name: str) -> str:
     return resources.files("geo3d.report").joinpath(name).read_text(encoding="utf-8")
 
 
-def build_report(results: Any, *, generated: _dt.datetime | None = None) -> str:
+def build_report(
+    results: Any,
+    *,
+    generated: _dt.datetime | None = None,
+    log_figure_dir: str | os.PathLike | None = None,
+) -> str:
     """Build the report of a run as one self-contained HTML document.
 
     Parameters
@@ -1137,6 +1172,9 @@ def build_report(results: Any, *, generated: _dt.datetime | None = None) -> str:
         absent parts give notes instead of sections' figures.
     generated
         Time stamp of the report; now (UTC) when None.
+    log_figure_dir
+        Folder where the logs stage wrote ``<boring_id>.png`` log figures; those found there
+        are embedded as they are instead of being drawn again.
 
     Returns
     -------
@@ -1145,6 +1183,7 @@ def build_report(results: Any, *, generated: _dt.datetime | None = None) -> str:
     """
     generated = generated or _dt.datetime.now(_dt.UTC)
     ctx = _Context.from_results(results)
+    ctx.log_figure_dir = None if log_figure_dir is None else Path(log_figure_dir)
     body = "\n".join(_render_section(ctx, anchor) for anchor in SECTION_TITLES)
     name = _get(ctx.site, "name") or "Unnamed site"
     template = string.Template(_resource("template.html"))
@@ -1171,7 +1210,8 @@ def write_report(results: Any, path: str | os.PathLike) -> Path:
         A :class:`geo3d.pipeline.RunResults` (or an object with the same attributes).
     path
         File to write (usually ``OUT/report.html``); written under a temporary name and
-        moved into place only when complete.
+        moved into place only when complete. Log figures that the logs stage wrote in
+        ``figures/logs/`` beside it are embedded rather than drawn again.
 
     Returns
     -------
@@ -1179,8 +1219,10 @@ def write_report(results: Any, path: str | os.PathLike) -> Path:
         The written file.
     """
     path = Path(path)
-    text = build_report(results)
+    text = build_report(results, log_figure_dir=path.parent / "figures" / "logs")
     with atomic_file(path) as tmp:
         tmp.write_text(text, encoding="utf-8")
+        # a temporary file is private (0600); the report is meant to be shared and read
+        os.chmod(tmp, 0o644)
     logger.info("wrote report %s (%.1f MB)", path, path.stat().st_size / 1e6)
     return path
