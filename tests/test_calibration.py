@@ -14,9 +14,7 @@ F_SPHERE = shape_factor("sphere", diameter=0.02)
 def test_hvorslev_worked_values():
     # Hvorslev (1951) cylinder F = 2 pi L / ln(L/D + sqrt(1 + (L/D)^2)), L = 0.30 m,
     # D = 0.05 m: F = 0.756470 m (computed by hand from the equation)
-    assert shape_factor("cylinder", length=0.30, diameter=0.05) == pytest.approx(
-        0.756470, abs=5e-7
-    )
+    assert shape_factor("cylinder", length=0.30, diameter=0.05) == pytest.approx(0.756470, abs=5e-7)
     # sphere limit F = 4 pi r (Hvorslev 1951), r = 1 cm
     assert F_SPHERE == pytest.approx(4 * np.pi * 0.01)
     # K = Q gamma_w / (F P): Q = 0.25 L/min, P = 50 kPa -> 6.503e-6 m/s (hand computation)
@@ -112,3 +110,17 @@ def test_log10_k_is_nan_for_non_positive_ratio():
     out = cal.log10_k([1e-8, 0.0, -1.0, np.nan])
     assert out[0] == pytest.approx(a - 8 * b)
     assert np.isnan(out[1:]).all()
+
+
+def test_an_undetermined_slope_is_held_at_the_physical_value():
+    # slug tests scattered around physics (b = 1) by 0.3 log units: the fitted slope is not
+    # distinguishable from 1 at two standard errors, so only a is fitted
+    samples, slug = _synthetic(2.5, 1.0, n_tests=5, noise=0.3, seed=8)
+    cal = calibrate(samples, slug, shape_factor_m=F_SPHERE)
+    assert cal.method == "slug_tests" and cal.slope_fixed and cal.b == 1.0
+    offsets = [r["log10_residual"] for r in cal.residuals]
+    assert np.mean(offsets) == pytest.approx(0.0, abs=1e-9)  # least squares in a alone
+    free = calibrate(samples, slug, shape_factor_m=F_SPHERE, slope="free")
+    assert not free.slope_fixed and abs(free.b - 1.0) <= 2 * free.se_b
+    with pytest.raises(ValueError, match="slope"):
+        calibrate(samples, slug, shape_factor_m=F_SPHERE, slope="maybe")

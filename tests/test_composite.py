@@ -83,3 +83,21 @@ def test_intervals_partition_the_samples(depths, interval):
     assert (out["log10_k"] >= log10_k.min() - 1e-12).all()
     assert (out["log10_k"] <= log10_k.max() + 1e-12).all()
     assert out["top"].is_monotonic_increasing
+
+
+def test_intervals_of_unresolved_samples_keep_their_resolution_bound():
+    # all four samples too tight to resolve: K is at most the bound (censored, not dropped)
+    df = _samples(
+        [0.01, 0.04, 0.07, 0.10, 0.16, 0.19],
+        [np.nan, -8.5, np.nan, -8.1, np.nan, -5.0],
+        [90.0] * 6,
+        out_of_range_low=[True, True, True, True, False, False],
+        out_of_range_high=[False, False, False, False, True, False],
+    )
+    df["log10_k_bound"] = [-7.5, -8.5, -7.5, -8.1, -2.0, np.nan]
+    out = composite(df, interval=0.15)
+    first, second = out.iloc[0], out.iloc[1]
+    assert first["k_censored"] == "upper"
+    assert first["log10_k"] == pytest.approx(np.mean([-7.5, -8.5, -7.5, -8.1]))
+    # a resolved sample in the interval wins over the bounds
+    assert second["k_censored"] == "" and second["log10_k"] == pytest.approx(-5.0)

@@ -50,6 +50,10 @@ def test_spike_is_an_ec_excursion_without_pressure_change():
     ec[200:202] += 40.0  # a 3 cm metal-contact spike (invented)
     flags = spike_flags(depth, ec, pressure, np.full(depth.size, "B1"), half_window=0.15, k=4)
     assert flags.nonzero()[0].tolist() == [200, 201]
+    # a drop of EC is not a metal contact
+    ec_drop = ec.copy()
+    ec_drop[200:202] -= 80.0
+    assert not spike_flags(depth, ec_drop, pressure, np.full(depth.size, "B1")).any()
     # the same excursion with a matching pressure change is a thin layer, not a spike
     pressure[199:203] += 60.0
     flags = spike_flags(depth, ec, pressure, np.full(depth.size, "B1"), half_window=0.15, k=4)

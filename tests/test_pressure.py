@@ -8,9 +8,11 @@ from geo3d.logs.pressure import (
     STANDARD_ATMOSPHERE,
     ToolLoss,
     atmospheric_pressure,
+    collar_readings,
     fit_tool_loss,
     hydrostatic_pressure,
     net_pressure,
+    pooled_atmospheric_pressure,
 )
 
 PSI = 6.894757  # kPa per psi, NIST SP 811
@@ -91,3 +93,14 @@ def test_atmospheric_pressure_falls_back_when_the_top_reading_is_not_atmospheric
 def test_atmospheric_pressure_refuses_an_empty_log():
     with pytest.raises(LogFormatError, match="B2"):
         atmospheric_pressure([np.nan], [np.nan], boring_id="B2")
+
+
+def test_collar_readings_of_one_day_are_pooled():
+    rng = np.random.default_rng(4)
+    depth = np.array([0.01, 0.025, 0.04, 0.3])
+    logs = [np.r_[101.2 + rng.normal(0, 0.5, 3), 180.0] for _ in range(8)]
+    readings = [collar_readings(depth, p) for p in logs]
+    assert all(r.size == 3 for r in readings)  # the reading at 0.3 m is in the soil
+    value = pooled_atmospheric_pressure(readings)
+    # 24 readings of SD 0.5 kPa (invented): the median is within 3 standard errors
+    assert value == pytest.approx(101.2, abs=3 * 1.25 * 0.5 / np.sqrt(24))

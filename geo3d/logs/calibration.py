@@ -75,6 +75,8 @@ class Calibration:
     residuals
         One dict per slug test: ``boring_id, top_depth, bottom_depth, k_slug, k_predicted,
         log10_residual`` (slug minus predicted), ``n_samples``.
+    slope_fixed
+        True when ``b`` was held at the physical value 1 and only ``a`` was fitted.
     """
 
     method: str
@@ -85,6 +87,7 @@ class Calibration:
     n_tests: int = 0
     r2: float = float("nan")
     residuals: list[dict] = field(default_factory=list)
+    slope_fixed: bool = False
 
     def log10_k(self, q_over_p) -> np.ndarray:
         """Log10 K (m/s) from the injection ratio Q/P_net (m3/s/kPa); NaN where it is <= 0."""
@@ -175,6 +178,7 @@ def calibrate(
     min_slug_tests: int = 3,
     usable: np.ndarray | None = None,
     min_samples_per_test: int = 3,
+    slope: str = "auto",
 ) -> Calibration:
     """Fit ``log10 K = a + b*log10(Q/P_net)`` to slug tests, or fall back to physics.
 
@@ -193,6 +197,11 @@ def calibrate(
         Boolean mask of samples fit for K (e.g. not above water, not out of range).
     min_samples_per_test
         Slug tests whose screen holds fewer usable samples are left out (with a warning).
+    slope
+        ``"free"`` fits ``a`` and ``b``; ``"fixed"`` holds ``b = 1`` (the physical slope) and
+        fits ``a``; ``"auto"`` fits both and keeps ``b`` only when it differs from 1 by more
+        than two standard errors (a t-test at about 95 %), else refits with ``b = 1``: with a
+        handful of slug tests the slope is rarely determined well enough to replace physics.
 
     Returns
     -------
@@ -243,15 +252,30 @@ def calibrate(
             residuals=_residual_table(tests, groups, predicted),
         )
 
+    if slope not in ("auto", "free", "fixed"):
+        msg = f"slope: expected 'auto', 'free' or 'fixed', got {slope!r}"
+        raise ValueError(msg)
     index = np.arange(len(groups), dtype=float)
 
     def model(idx, a, b):
         return _screen_prediction([groups[int(i)] for i in idx], a, b)
 
-    params, cov = curve_fit(model, index, observed, p0=(a0, b0), maxfev=10000)
-    a, b = (float(v) for v in params)
-    with np.errstate(invalid="ignore"):
-        se = np.sqrt(np.diag(cov)) if np.all(np.isfinite(cov)) else np.array([np.nan, np.nan])
+    a, b, se = a0, b0, np.array([np.nan, np.nan])
+    if slope != "fixed" and len(groups) >= 3:
+        params, cov = curve_fit(model, index, observed, p0=(a0, b0), maxfev=10000)
+        a, b = (float(v) for v in params)
+        with np.errstate(invalid="ignore"):
+            if np.all(np.isfinite(cov)):
+                se = np.sqrt(np.diag(cov))
+    fixed = slope == "fixed" or len(groups) < 3 or not np.isfinite(se[1])
+    if slope == "auto" and not fixed and abs(b - 1.0) <= 2.0 * se[1]:
+        fixed = True
+    if fixed:
+        offsets = observed - _screen_prediction(groups, 0.0, 1.0)
+        a, b = float(offsets.mean()), 1.0
+        se_a = float(offsets.std(ddof=1) / np.sqrt(offsets.size)) if offsets.size > 1 else np.nan
+        se = np.array([se_a, np.nan])
+        logger.info("slope held at b = 1 (not determined by %d slug tests)", len(groups))
     if not b > 0:
         warnings.warn(
             f"slug-test calibration gave slope b = {b:.3f} <= 0 (K falling as Q/P rises); "
@@ -278,6 +302,7 @@ def calibrate(
         len(groups),
         _r2(observed, predicted),
         _residual_table(tests, groups, predicted),
+        slope_fixed=fixed,
     )
     logger.info(
         "calibration on %d slug tests: a=%.3f+-%.3f b=%.3f+-%.3f r2=%.3f",

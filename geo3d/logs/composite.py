@@ -4,7 +4,11 @@ Each boring's samples are grouped into intervals of fixed length aligned on the 
 (``[0, L), [L, 2L), ...`` in depth).  Log10 K is averaged in log space (the geometric mean of
 K), EC arithmetically; each interval keeps its sample count and the fraction of its samples
 carrying each flag.  Flagged samples are left out of what they would distort: samples above
-water or out of range do not enter log10 K, EC spikes do not enter EC.  The interval's
+water or out of range do not enter log10 K, EC spikes do not enter EC.  An interval below the
+water table whose samples are mostly out of range, with none resolved, would otherwise be lost
+from the model exactly where the soil is tightest or most permeable: it takes the mean of its
+samples' resolution bounds (``log10_k_bound``) and is marked ``k_censored = "upper"`` (K is
+at most this: too tight to resolve) or ``"lower"`` (K is at least this).  The interval's
 coordinates are the boring's ``x, y`` and the elevation of its middle, ``z_mid``, in the site
 CRS (elevation upward).
 """
@@ -41,6 +45,7 @@ def composite(
     interval: float = 0.15,
     k_excluding: tuple[str, ...] = K_EXCLUDING_FLAGS,
     ec_excluding: tuple[str, ...] = EC_EXCLUDING_FLAGS,
+    bound_column: str = "log10_k_bound",
 ) -> pd.DataFrame:
     """Average per-sample log10 K and EC over depth intervals of each boring.
 
@@ -53,13 +58,16 @@ def composite(
         Interval length, m (> 0).
     k_excluding, ec_excluding
         Flags whose samples are left out of the log10 K and EC averages.
+    bound_column
+        Per-sample log10 K resolution bound of out-of-range samples (NaN elsewhere); used for
+        intervals with no resolved sample when present.
 
     Returns
     -------
     DataFrame
-        ``boring_id, x, y, top, bottom, z_mid, log10_k, ec, n_samples, n_k, n_ec`` and one
-        ``frac_<flag>`` per flag present; sorted by boring and depth.  ``log10_k`` (``ec``) is
-        NaN where no sample may enter it.
+        ``boring_id, x, y, top, bottom, z_mid, log10_k, ec, n_samples, n_k, n_ec,
+        k_censored`` and one ``frac_<flag>`` per flag present; sorted by boring and depth.
+        ``log10_k`` (``ec``) is NaN where no sample may enter it.
 
     Raises
     ------
@@ -96,6 +104,15 @@ def composite(
         if f in df:
             ec_bad |= df[f].to_numpy(dtype=bool)
     df["_k"] = np.where(k_bad, np.nan, df["log10_k"].to_numpy(dtype=float))
+    has_bound = bound_column in samples.columns
+    above = df["above_water"].to_numpy(bool) if "above_water" in df else np.zeros(len(df), bool)
+    low = df["out_of_range_low"].to_numpy(bool) if "out_of_range_low" in df else above & False
+    high = df["out_of_range_high"].to_numpy(bool) if "out_of_range_high" in df else above & False
+    bound = samples[bound_column].to_numpy(dtype=float) if has_bound else np.full(len(df), np.nan)
+    df["_bound"] = np.where((low | high) & ~above, bound, np.nan)
+    df["_sat"] = (~above).astype(float)
+    df["_low"] = (low & ~above).astype(float)
+    df["_high"] = (high & ~above).astype(float)
     df["_ec"] = np.where(ec_bad, np.nan, df["ec"].to_numpy(dtype=float))
     for f in flags:
         df[f] = df[f].astype(float)
@@ -109,12 +126,26 @@ def composite(
         "n_samples": ("depth", "size"),
         "n_k": ("_k", "count"),
         "n_ec": ("_ec", "count"),
+        "_bound": ("_bound", "mean"),
+        "_sat": ("_sat", "sum"),
+        "_low": ("_low", "sum"),
+        "_high": ("_high", "sum"),
     }
     agg.update({f"frac_{f}": (f, "mean") for f in flags})
     out = df.groupby(["boring_id", "_bin"], sort=True).agg(**agg).reset_index()
     out["top"] = out["_bin"] * interval
     out["bottom"] = out["top"] + interval
     out["z_mid"] = out["_ground"] - 0.5 * (out["top"] + out["bottom"])
+    censor = (
+        (out["n_k"] == 0)
+        & out["_bound"].notna()
+        & (out["_low"] + out["_high"] >= 0.5 * out["_sat"])
+        & (out["_sat"] > 0)
+    )
+    out["k_censored"] = np.where(
+        censor, np.where(out["_low"] >= out["_high"], "upper", "lower"), ""
+    )
+    out["log10_k"] = np.where(censor, out["_bound"], out["log10_k"])
     columns = [
         "boring_id",
         "x",
@@ -127,6 +158,7 @@ def composite(
         "n_samples",
         "n_k",
         "n_ec",
+        "k_censored",
         *[f"frac_{f}" for f in flags],
     ]
     return out[columns].reset_index(drop=True)

@@ -179,9 +179,9 @@ def spike_flags(
     half_window: float = 0.15,
     k: float = 4.0,
     pressure_k: float | None = None,
-    relative_floor: float = 0.01,
+    relative_floor: float = 1.0,
 ) -> np.ndarray:
-    """EC spikes: Hampel outliers of EC with no pressure outlier at or next to them.
+    """Flag EC spikes: Hampel outliers of EC with no hydraulic outlier at or next to them.
 
     Parameters
     ----------
@@ -190,7 +190,9 @@ def spike_flags(
     ec
         Bulk EC, mS/m.
     pressure
-        Recorded (or net) pressure, kPa.
+        The hydraulic signal that a real layer would also change: recorded or net pressure,
+        or better the log10 injection ratio log10(Q/P_net), which also tracks layers where
+        the pressure is held at the sensor limit and the flow drops instead.
     groups
         Boring id of each sample; the filter runs within each boring.
     half_window
@@ -198,9 +200,13 @@ def spike_flags(
     k
         Threshold in scaled MADs for EC.
     pressure_k
-        Threshold for the pressure excursion that would explain an EC one (``k`` when None).
+        Threshold (scaled MADs) of a hydraulic excursion that would explain an EC one; half of
+        ``k`` when None, so that a modest matching change is enough to call it a layer.
     relative_floor
-        Smallest EC scale as a share of the local median EC.
+        Smallest EC rise flagged, as a share of the local median EC: a metal contact
+        short-circuits the electrodes and multiplies the reading, while bulk EC rarely doubles
+        within a few centimetres without the hydraulic signal noticing.  Only rises are
+        spikes.
 
     Returns
     -------
@@ -214,14 +220,14 @@ def spike_flags(
     ec = np.asarray(ec, dtype=float)
     pressure = np.asarray(pressure, dtype=float)
     groups = np.asarray(groups)
-    pk = k if pressure_k is None else pressure_k
+    pk = 0.5 * k if pressure_k is None else pressure_k
     out = np.zeros(depth.size, dtype=bool)
     for gid in np.unique(groups):
         idx = np.flatnonzero(groups == gid)
         h = _half_window_samples(depth[idx], half_window)
         ec_out, ec_median, _ = hampel(ec[idx], half_window=h, k=k)
         floor = relative_floor * np.abs(np.nan_to_num(ec_median))
-        ec_out &= np.abs(ec[idx] - ec_median) > np.maximum(floor, 0)
+        ec_out &= ec[idx] - ec_median > np.maximum(floor, 0)
         p_out, _, _ = hampel(pressure[idx], half_window=h, k=pk)
         # a pressure excursion at or next to the EC one explains it (a real layer)
         near_p = p_out.copy()

@@ -32,6 +32,9 @@ __all__ = [
     "STANDARD_ATMOSPHERE",
     "ToolLoss",
     "atmospheric_pressure",
+    "collar_readings",
+    "is_atmospheric",
+    "pooled_atmospheric_pressure",
     "hydrostatic_pressure",
     "fit_tool_loss",
     "net_pressure",
@@ -47,7 +50,7 @@ def atmospheric_pressure(
     depth: np.ndarray,
     pressure: np.ndarray,
     *,
-    window: float = 0.05,
+    window: float = 0.03,
     plausible: tuple[float, float] = (60.0, 110.0),
     boring_id: str | None = None,
 ) -> float:
@@ -82,6 +85,22 @@ def atmospheric_pressure(
     LogFormatError
         If the log has no finite pressure near its top.
     """
+    readings = collar_readings(depth, pressure, window=window, boring_id=boring_id)
+    return pooled_atmospheric_pressure(
+        [readings], plausible=plausible, label=f"boring {boring_id!r}"
+    )
+
+
+def collar_readings(
+    depth: np.ndarray, pressure: np.ndarray, *, window: float = 0.03, boring_id: str | None = None
+) -> np.ndarray:
+    """Pressure readings within ``window`` metres of the first recorded depth of a log.
+
+    Raises
+    ------
+    LogFormatError
+        If the log has no finite pressure.
+    """
     depth = np.asarray(depth, dtype=float)
     pressure = np.asarray(pressure, dtype=float)
     ok = np.isfinite(depth) & np.isfinite(pressure)
@@ -92,11 +111,46 @@ def atmospheric_pressure(
         )
         raise LogFormatError(msg)
     top = depth[ok].min()
-    near = ok & (depth <= top + window)
-    value = float(np.median(pressure[near]))
-    if not plausible[0] <= value <= plausible[1]:
+    return pressure[ok & (depth <= top + window)]
+
+
+def is_atmospheric(value: float, plausible: tuple[float, float] = (60.0, 110.0)) -> bool:
+    """Whether a pressure (kPa) is a plausible atmospheric pressure (sea level to ~4000 m)."""
+    return bool(plausible[0] <= value <= plausible[1])
+
+
+def pooled_atmospheric_pressure(
+    readings: Sequence[np.ndarray],
+    *,
+    plausible: tuple[float, float] = (60.0, 110.0),
+    label: str = "logs",
+) -> float:
+    """Median of collar readings pooled over several logs made on the same day.
+
+    Barometric pressure changes by a fraction of a kPa over a day, less than the scatter of a
+    few readings of a pressure sensor; pooling the collar readings of the logs of one day
+    averages that scatter out.
+
+    Parameters
+    ----------
+    readings
+        Collar readings of each log (see :func:`collar_readings`), kPa.
+    plausible
+        Range of atmospheric pressure, kPa; a median outside it falls back to the standard
+        atmosphere with a :class:`Geo3dWarning`.
+    label
+        Names the logs in messages.
+
+    Returns
+    -------
+    float
+        kPa.
+    """
+    values = np.concatenate([np.asarray(r, dtype=float) for r in readings])
+    value = float(np.median(values)) if values.size else float("nan")
+    if not is_atmospheric(value, plausible):
         warnings.warn(
-            f"boring {boring_id!r}: the pressure read at the top of the log is {value:.2f} kPa, "
+            f"{label}: the pressure read at the top of the log is {value:.2f} kPa, "
             f"outside {plausible[0]:g}-{plausible[1]:g} kPa, so it is not atmospheric (the log "
             f"starts below the collar or with flow on); using the standard atmosphere "
             f"{STANDARD_ATMOSPHERE} kPa. Give [probe] atmospheric_pressure to override",

@@ -3,7 +3,8 @@
 :func:`process_logs` reads its options from ``site.config`` and chains the library functions of
 :mod:`geo3d.logs` and :mod:`geo3d.facies`:
 
-1. atmospheric pressure per boring (at the collar, or given; zero for gauge records);
+1. atmospheric pressure per boring (collar readings pooled over the logs of the same day, or
+   given; zero for gauge records);
 2. static pressure of every dissipation test, depth to water, water-table elevation, the
    piezometric profiles and the site water-table surface;
 3. net injection pressure per sample (hydrostatic part from the boring's own water level, or
@@ -42,9 +43,11 @@ from geo3d.logs.flags import ionic_flags, resolution_flags, spike_flags
 from geo3d.logs.hydraulic import shape_factor
 from geo3d.logs.pressure import (
     STANDARD_ATMOSPHERE,
-    atmospheric_pressure,
+    collar_readings,
     fit_tool_loss,
     hydrostatic_pressure,
+    is_atmospheric,
+    pooled_atmospheric_pressure,
 )
 from geo3d.logs.sensor_checks import evaluate_sensor_checks, sensor_check_flags
 from geo3d.logs.water_level import (
@@ -128,11 +131,27 @@ def _atmospheric(site: Any, config: Any) -> dict[str, float]:
     given = _option(config, "probe", "atmospheric_pressure", "auto")
     if not isinstance(given, str):
         return dict.fromkeys(ids, float(given))
-    found = {}
-    for boring_id, log in site.samples.groupby("boring_id", sort=False):
-        found[str(boring_id)] = atmospheric_pressure(
+    readings = {
+        str(boring_id): collar_readings(
             log["depth"].to_numpy(), log["pressure"].to_numpy(), boring_id=str(boring_id)
         )
+        for boring_id, log in site.samples.groupby("boring_id", sort=False)
+    }
+    good = {b: r for b, r in readings.items() if r.size and is_atmospheric(float(np.median(r)))}
+    found: dict[str, float] = {}
+    dates = site.borings.get("date")
+    if dates is not None and dates.notna().all():
+        # one barometric level per day: pool the collar readings of that day's logs
+        day_of = dict(zip(ids, dates.astype(str), strict=True))
+        for day in sorted(set(day_of.values())):
+            members = [b for b in ids if day_of[b] == day and b in readings]
+            pool = [good[b] for b in members if b in good]
+            if pool:
+                value = pooled_atmospheric_pressure(pool, label=f"logs of {day}")
+                found.update(dict.fromkeys(members, value))
+    for boring_id, values in readings.items():
+        if boring_id not in found:
+            found[boring_id] = pooled_atmospheric_pressure([values], label=f"boring {boring_id!r}")
     fallback = float(np.median(list(found.values()))) if found else STANDARD_ATMOSPHERE
     return {b: found.get(b, fallback) for b in ids}
 
@@ -288,12 +307,16 @@ def process_logs(site: Any) -> LogResults:
     )
     samples["log10_k"] = calibration.log10_k(samples["q_over_p"].to_numpy())
     samples["k_log"] = 10.0 ** samples["log10_k"]
+    samples["log10_k_bound"] = _resolution_bounds(samples, calibration, config, flags)
 
     ec = samples["ec"].to_numpy(dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        # a real layer changes K, so Q/P_net moves with EC; a metal contact moves EC alone
+        hydraulic = np.where((p_net > 0) & (flow > 0), np.log10(flow / p_net), np.nan)
     samples["spike"] = spike_flags(
         depth,
         ec,
-        pressure,
+        hydraulic,
         ids.to_numpy(),
         half_window=float(_option(config, "flags", "hampel_window", 0.15)),
         k=float(_option(config, "flags", "hampel_k", 4.0)),
@@ -329,6 +352,7 @@ def process_logs(site: Any) -> LogResults:
         "q_over_p",
         "k_log",
         "log10_k",
+        "log10_k_bound",
         *FLAGS,
     ]
     samples = samples[[*base, *[c for c in extra if c not in base]]]
@@ -352,6 +376,37 @@ def process_logs(site: Any) -> LogResults:
         facies_classes=classes,
         ec_trend=trend,
         shape_factor=f_m,
+    )
+
+
+def _resolution_bounds(samples, calibration, config, flags) -> np.ndarray:
+    """Log10 K that out-of-range samples are known to lie beyond (NaN elsewhere).
+
+    Too tight (``out_of_range_low``): the measured injection ratio where flow is still
+    recorded, else K at the smallest resolvable flow under the largest usable pressure (an
+    upper bound).  Too permeable (``out_of_range_high``): K at the smallest resolvable net
+    pressure, ``factor * sensor_noise`` (a lower bound).
+    """
+    noise = float(_option(config, "probe", "sensor_noise", 0.5))
+    factor = float(_option(config, "flags", "out_of_range_high_factor", 3.0))
+    limit = float(_option(config, "probe", "pressure_limit", 1500.0))
+    limit_fraction = float(_option(config, "flags", "pressure_limit_fraction", 0.95))
+    flow_fraction = float(_option(config, "flags", "min_flow_fraction", 0.1))
+    flow = samples["flow"].to_numpy(dtype=float)
+    positive = flow[np.isfinite(flow) & (flow > 0)]
+    reference = float(np.median(positive)) if positive.size else np.nan
+    available = (
+        limit_fraction * limit
+        - samples["p_atm"].to_numpy(dtype=float)
+        - samples["p_hydrostatic"].to_numpy(dtype=float)
+    )
+    with np.errstate(divide="ignore", invalid="ignore"):
+        tight = calibration.log10_k(flow_fraction * reference / available)
+        permeable = calibration.log10_k(np.where(flow > 0, flow, reference) / (factor * noise))
+    measured = samples["log10_k"].to_numpy(dtype=float)
+    low = np.where(np.isfinite(measured), measured, tight)
+    return np.where(
+        flags["out_of_range_low"], low, np.where(flags["out_of_range_high"], permeable, np.nan)
     )
 
 

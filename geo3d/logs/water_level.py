@@ -390,13 +390,20 @@ def water_levels(
 
 
 def boring_water_levels(levels: pd.DataFrame) -> pd.DataFrame:
-    """One water-table elevation per boring: the mean over its accepted tests.
+    """One water-table elevation per boring: the mean over its best tests.
+
+    Tests that reached equilibrium (method ``"tail"``, a direct reading) are preferred: where a
+    boring has any, only they are averaged; otherwise all its accepted (extrapolated) tests are.
 
     Returns
     -------
     DataFrame
-        ``boring_id, x, y, wt_elev, depth_to_water, n_tests``.
+        ``boring_id, x, y, wt_elev, depth_to_water, n_tests`` (tests averaged).
     """
+    levels = levels.copy()
+    direct = levels["method"].eq("tail")
+    has_direct = direct.groupby(levels["boring_id"]).transform("any")
+    levels = levels[direct | ~has_direct]
     grouped = levels.groupby("boring_id", sort=True)
     out = grouped.agg(
         x=("x", "first"),
