@@ -33,7 +33,7 @@ import shapely
 from scipy.spatial import Voronoi, cKDTree
 
 from geo3d.analysis.thickness import _dataset
-from geo3d.analysis.volumes import Region, region_weights
+from geo3d.analysis.volumes import Region, probability_stack, region_weights
 from geo3d.errors import Geo3dWarning, GeometryError, ModelError
 from geo3d.model import classify_log10_k, facies_table
 from geo3d.units import from_internal
@@ -229,8 +229,10 @@ class InjectionPlan:
         ``facies``, ``transmissivity`` (m2/s), ``share``, ``volume_m3`` (and
         ``volume_<unit>``).
     summary
-        Zone figures: area, thickness, effective porosity, pore and design volumes (with
-        P10/P50/P90 when the model has realizations), radius, spacing, number of points...
+        Zone figures: area, mean target thickness, mean effective porosity, effective pore and
+        design volumes (expected values from the facies probabilities; ``_most_likely`` from
+        the most likely facies; ``_p10``/``_p50``/``_p90`` over the realizations when the
+        model has them), radius, spacing, number of points, volume per point...
     """
 
     zone: str
@@ -348,8 +350,18 @@ def injection_plan(
 
     tw = target_weight(codes)
     vertical = ds.voxels.mask * hfrac * _target_mask(codes, target, table.transmissive, hrange)
-    bulk = float(tw.sum()) * cell_volume
-    pore_eff = float((tw * eff).sum()) * cell_volume
+    bulk_likely = float(tw.sum()) * cell_volume
+    pore_likely = float((tw * eff).sum()) * cell_volume
+    # expected values from the facies probabilities
+    prob = probability_stack(ds, table)
+    if target == "transmissive":
+        prob_bulk = np.zeros(len(table.names))
+        prob_bulk[table.transmissive] = float((weight * prob[table.transmissive]).sum())
+    else:
+        w_all = weight if hrange is None else weight * hrange
+        prob_bulk = (prob * w_all[None]).reshape(len(table.names), -1).sum(axis=1)
+    bulk = float(prob_bulk.sum()) * cell_volume
+    pore_eff = float(prob_bulk @ table.effective_porosity) * cell_volume
     area = float(polygon.area)
     thickness = bulk / area if area > 0 else 0.0
     n_e = pore_eff / bulk if bulk > 0 else 0.0
@@ -365,6 +377,9 @@ def injection_plan(
         "effective_pore_volume_m3": pore_eff,
         "design_fraction": float(design_fraction),
         "design_volume_m3": volume,
+        "target_bulk_volume_m3_most_likely": bulk_likely,
+        "effective_pore_volume_m3_most_likely": pore_likely,
+        "design_volume_m3_most_likely": pore_likely * design_fraction,
     }
     if "realizations" in ds and ds.sizes.get("realization", 0) > 0:
         designs = []
@@ -379,7 +394,7 @@ def injection_plan(
             design_volume_m3_p50=float(p50),
             design_volume_m3_p90=float(p90),
         )
-    if bulk == 0:
+    if bulk_likely == 0 and bulk == 0:
         msg = f"injection: zone {region.name!r} holds no {target_name} material in the model"
         warnings.warn(msg, Geo3dWarning, stacklevel=2)
     if radius_of_influence is None:

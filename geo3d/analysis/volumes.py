@@ -40,6 +40,7 @@ __all__ = [
     "retardation_factor",
     "stored_mass",
     "region_weights",
+    "probability_stack",
     "interface_area",
     "zone_volumes",
 ]
@@ -337,7 +338,11 @@ def _regions(
     return regions
 
 
-def _probabilities(ds: xr.Dataset, table: FaciesTable) -> np.ndarray:
+def probability_stack(ds: xr.Dataset, table: FaciesTable) -> np.ndarray:
+    """Facies probabilities ``(n_classes, nz, ny, nx)`` of a model (0 where unknown).
+
+    From the ``prob_<facies>`` variables, or the indicators of ``facies_code`` without them.
+    """
     names = [f"prob_{n}" for n in table.names]
     if all(n in ds for n in names):
         return np.stack([np.nan_to_num(ds[n].values, nan=0.0) for n in names])
@@ -401,7 +406,7 @@ def zone_volumes(
     nclass = len(table.names)
     cell_volume = ds.voxels.cell_volume
     cell_area = ds.voxels.cell_area
-    prob = _probabilities(ds, table)
+    prob = probability_stack(ds, table)
     if "facies_code" in ds:
         codes = ds["facies_code"].values.astype(int)
     else:
