@@ -480,11 +480,11 @@ def _slug_tests(
     order = rng.permutation(len(plans))
     # (majority unit or "any", lowest and highest mean K): a spread of K for the calibration
     targets = [
-        ("sand_gravel", 3e-5, 3e-4),
-        ("lower_sand", 1e-5, 3e-4),
-        ("any", 1e-6, 2e-5),
-        ("sand_gravel", 1e-5, 3e-4),
-        ("sand_lens", 1e-6, 1e-4),
+        ("sand_gravel", 1e-4, 3e-4),
+        ("any", 1e-6, 4e-6),
+        ("lower_sand", 1e-5, 1e-4),
+        ("any", 3e-6, 1.5e-5),
+        ("sand_gravel", 3e-5, 1e-4),
         ("any", 3e-7, 3e-4),
     ]
     used: set[str] = set()
