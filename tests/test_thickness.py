@@ -8,7 +8,7 @@ import shapely
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from geo3d.analysis.thickness import column_runs, thickness_maps
+from geo3d.analysis.thickness import column_runs, nan_percentiles, thickness_maps
 from geo3d.errors import ModelError
 from geo3d.grid import make_grid
 from geo3d.model import classify_log10_k, facies_probabilities, facies_table
@@ -147,3 +147,19 @@ def test_thickness_properties(seed, n_sims, top, thick):
 def test_thickness_needs_a_dataset():
     with pytest.raises(ModelError, match="VoxelModel"):
         thickness_maps({"not": "a model"})
+
+
+@settings(max_examples=40, deadline=None)
+@given(seed=st.integers(0, 10_000), n=st.integers(1, 7), nan_share=st.floats(0, 0.9))
+def test_nan_percentiles_match_numpy(seed, n, nan_share):
+    # reference: numpy.nanpercentile (linear interpolation)
+    import warnings
+
+    rng = np.random.default_rng(seed)
+    stack = rng.normal(size=(n, 5, 4))
+    stack[rng.random(stack.shape) < nan_share] = np.nan
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        expected = np.nanpercentile(stack, [10, 50, 90], axis=0)
+    got = nan_percentiles(stack, [10, 50, 90])
+    assert np.allclose(got, expected, equal_nan=True)
