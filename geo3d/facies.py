@@ -5,8 +5,9 @@ Two ways to classify composited intervals:
 * thresholds on log10 K (defaults: storage < 1e-7 m/s <= transitional < 1e-5 m/s <=
   transmissive; common practice), optionally with EC cut-offs that move an interval into a
   lower-K class when its EC says it is finer than its K alone suggests;
-* a Gaussian mixture on standardized ``(log10 K, log10 EC)``, the number of classes chosen by
-  the Bayesian information criterion, classes ordered and named by their mean log10 K.
+* a Gaussian mixture on standardized ``(log10 K, log10 EC)``, the number of components chosen
+  by the Bayesian information criterion, components named (and merged) by the threshold class
+  of their mean log10 K.
 
 Codes are integers from 0 (lowest-K class) up; -1 means unclassified (no log10 K).  A minimum
 layer thickness merges runs thinner than it into their neighbours.
@@ -27,6 +28,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from scipy.stats import norm
 from sklearn.mixture import GaussianMixture
 from threadpoolctl import threadpool_limits
 
@@ -150,14 +152,19 @@ def classify_mixture(
     max_classes: int = 5,
     seed: int = 0,
     classes: Sequence[FaciesClass] = DEFAULT_CLASSES,
+    merge: bool = True,
+    k_only=None,
 ) -> tuple[np.ndarray, list[str]]:
     """Classify by a Gaussian mixture on standardized ``(log10 K, log10 EC)``.
 
     Mixtures of 1 to ``max_classes`` full-covariance components are fitted by EM; the count
-    with the lowest BIC is kept.  Components are ordered by their mean log10 K (code 0 = the
-    lowest) and named after the threshold class in which their mean log10 K falls; when the
-    count equals the number of threshold classes the names are taken in order.  Repeated names
-    get a suffix (``"transitional_2"``).
+    with the lowest BIC is kept.  Components are ordered by their mean log10 K and named after
+    the threshold class in which their mean log10 K falls.  With ``merge`` (the default),
+    components that fall in the same class are merged, so codes and names are those of
+    ``classes`` (code 0 = lowest K) and each hydrofacies keeps its porosities: the mixture
+    decides which intervals belong together, the thresholds only name the groups.  Without
+    ``merge`` every component is its own class (code 0 = lowest mean K) and repeated names
+    get a suffix (``"transmissive_2"``).
 
     Parameters
     ----------
@@ -171,11 +178,17 @@ def classify_mixture(
         Random state of the EM initialisation.
     classes
         Threshold classes used to name the components.
+    merge
+        Merge components named after the same class.
+    k_only
+        Boolean mask of values whose EC must not be used (e.g. ionic intervals, where pore
+        water rather than grain size sets EC): they are left out of the fit and assigned by
+        the mixture's marginal distribution of log10 K.
 
     Returns
     -------
     codes : ndarray of int
-        -1 where log10 K or EC is missing.
+        -1 where log10 K (or, outside ``k_only``, EC) is missing.
     names : list of str
         Name of each code.
 
@@ -188,19 +201,22 @@ def classify_mixture(
     ----------
     .. [1] Dempster et al. (1977) EM; Schwarz (1978) BIC.
     """
+    _check_classes(classes)
     lk = np.asarray(log10_k, dtype=float)
     ec = np.asarray(ec, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
         lec = np.where(ec > 0, np.log10(ec), np.nan)
-    ok = np.isfinite(lk) & np.isfinite(lec)
-    if ok.sum() < 3 * max_classes:
+    only_k = np.zeros(lk.size, bool) if k_only is None else np.asarray(k_only, dtype=bool)
+    fit = np.isfinite(lk) & np.isfinite(lec) & ~only_k
+    if fit.sum() < 3 * max_classes:
         msg = (
             f"Gaussian-mixture hydrofacies need at least {3 * max_classes} intervals with K "
-            f"and EC, got {int(ok.sum())}; use [facies] method = 'thresholds'"
+            f"and EC, got {int(fit.sum())}; use [facies] method = 'thresholds'"
         )
         raise ModelError(msg)
-    data = np.column_stack([lk[ok], lec[ok]])
-    data = (data - data.mean(axis=0)) / data.std(axis=0)
+    raw = np.column_stack([lk, lec])
+    centre, spread = raw[fit].mean(axis=0), raw[fit].std(axis=0)
+    data = (raw[fit] - centre) / spread
     best, best_bic = None, np.inf
     # a few thousand points in 2D: one thread is fastest (no OpenMP oversubscription)
     with threadpool_limits(limits=1):
@@ -210,26 +226,37 @@ def classify_mixture(
             )
             gm.fit(data)
             bic = gm.bic(data)
-            logger.debug("mixture with %d classes: BIC %.1f", n, bic)
+            logger.debug("mixture with %d components: BIC %.1f", n, bic)
             if bic < best_bic:
                 best, best_bic = gm, bic
-    labels = best.predict(data)
-    order = np.argsort(best.means_[:, 0])
+    n_comp = best.n_components
+    component = np.full(lk.size, -1, dtype=int)
+    component[fit] = best.predict(data)
+    by_k = np.isfinite(lk) & only_k
+    if by_k.any():
+        z = (lk[by_k] - centre[0]) / spread[0]
+        sd = np.sqrt(best.covariances_[:, 0, 0])
+        density = best.weights_ * norm.pdf(z[:, None], best.means_[:, 0], sd)
+        component[by_k] = np.argmax(density, axis=1)
+    mean_k = best.means_[:, 0] * spread[0] + centre[0]
+    class_of = classify_thresholds(mean_k, classes)
+    logger.info(
+        "mixture hydrofacies: %d components by BIC, mean log10 K %s",
+        n_comp,
+        np.round(np.sort(mean_k), 2).tolist(),
+    )
+    if merge:
+        codes = np.where(component >= 0, class_of[np.maximum(component, 0)], -1)
+        return codes, [c.name for c in classes]
+    order = np.argsort(mean_k)
     rank = np.empty_like(order)
     rank[order] = np.arange(order.size)
-    codes = np.full(lk.size, -1, dtype=int)
-    codes[ok] = rank[labels]
-    means_k = np.array([lk[ok][rank[labels] == c].mean() for c in range(order.size)])
-    if order.size == len(classes):
-        names = [c.name for c in classes]
-    else:
-        base = classify_thresholds(means_k, classes)
-        names = []
-        for code in base:
-            name = classes[int(code)].name
-            count = sum(1 for n in names if n == name or n.startswith(name + "_"))
-            names.append(name if count == 0 else f"{name}_{count + 1}")
-    logger.info("mixture hydrofacies: %d classes by BIC (%s)", order.size, ", ".join(names))
+    codes = np.where(component >= 0, rank[np.maximum(component, 0)], -1)
+    names: list[str] = []
+    for comp in order:
+        name = classes[int(class_of[comp])].name
+        count = sum(1 for n in names if n == name or n.startswith(name + "_"))
+        names.append(name if count == 0 else f"{name}_{count + 1}")
     return codes, names
 
 

@@ -88,3 +88,23 @@ def test_after_merging_every_run_is_thick_enough(codes, min_thickness):
     if starts.size > 1:
         assert (lengths >= min_thickness - 1e-9).all()
     assert set(out.tolist()) <= set(codes.tolist())
+
+
+def test_mixture_components_merge_by_class_and_ec_can_be_ignored():
+    rng = np.random.default_rng(12)
+    # invented: two sandy groups (same class by K) and one clay group
+    centres = [(-8.0, 80.0), (-4.2, 12.0), (-3.4, 5.0)]
+    log10_k = np.concatenate([rng.normal(k, 0.15, 120) for k, _ in centres])
+    ec = np.concatenate([10 ** rng.normal(np.log10(e), 0.03, 120) for _, e in centres])
+    codes, names = classify_mixture(log10_k, ec, max_classes=4)
+    assert names == ["storage", "transitional", "transmissive"]
+    assert set(codes.tolist()) == {0, 2}
+    raw, raw_names = classify_mixture(log10_k, ec, max_classes=4, merge=False)
+    assert raw_names == ["storage", "transmissive", "transmissive_2"]
+    # sandy intervals with clay-like EC (conductive pore water) classified by K alone
+    ec_ionic = ec.copy()
+    ec_ionic[130:140] = 80.0
+    mask = np.zeros(ec.size, bool)
+    mask[130:140] = True
+    codes_k, _ = classify_mixture(log10_k, ec_ionic, max_classes=4, k_only=mask)
+    assert (codes_k[130:140] == 2).all()

@@ -414,7 +414,14 @@ def _classify(intervals: pd.DataFrame, config: Any, classes: list[FaciesClass]):
     method = _option(config, "facies", "method", "thresholds")
     log10_k = intervals["log10_k"].to_numpy(dtype=float)
     if method == "mixture":
-        codes, names = classify_mixture(log10_k, intervals["ec"].to_numpy(), classes=classes)
+        ionic = intervals.get("frac_ionic", pd.Series(0.0, index=intervals.index))
+        codes, names = classify_mixture(
+            log10_k,
+            intervals["ec"].to_numpy(),
+            classes=classes,
+            seed=int(_option(config, "simulation", "seed", 0)),
+            k_only=ionic.to_numpy(dtype=float) >= 0.5,
+        )
     else:
         codes = classify_thresholds(
             log10_k,
