@@ -387,7 +387,8 @@ def build_voxel_model(
         ``elevation_tolerance``; ``None``/``'auto'`` = fitted).
     kriging
         Kriging options (``neighbors``, ``max_per_group``/``max_per_boring``, ``drift``,
-        ``max_distance``, ``chunk_size``, ``global_mode``, ``scheduler``).
+        ``max_distance``, ``chunk_size``, ``global_mode``, ``scheduler``: a dask scheduler
+        name or ``dask.distributed`` address; default local threads).
     n_realizations
         Conditional simulations of log10 K (0 = none).
     seed
@@ -424,9 +425,12 @@ def build_voxel_model(
     facies = facies_table(facies_classes)
     variogram_options = _options(variogram, _VARIOGRAM_KEYS, "variogram")
     kriging_settings = dict(kriging or {}) if not hasattr(kriging, "model_dump") else kriging
-    scheduler = None
+    # no scheduler given: dask's local threads (the kriging arithmetic releases the GIL)
+    scheduler: Any = "threads"
     if isinstance(kriging_settings, Mapping):
-        scheduler = kriging_settings.get("scheduler") or None
+        scheduler = kriging_settings.get("scheduler") or "threads"
+    elif getattr(kriging_settings, "scheduler", None):
+        scheduler = kriging_settings.scheduler
     kriging_options = _options(kriging_settings, _KRIGING_KEYS, "kriging")
     n_realizations = int(n_realizations)
     if n_realizations < 0:
