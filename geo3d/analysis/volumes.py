@@ -94,7 +94,7 @@ def retardation_factor(bulk_density: float, kd: float, porosity: float) -> float
 
     Examples
     --------
-    >>> retardation_factor(1600.0, 0.0002, 0.4)
+    >>> round(retardation_factor(1600.0, 0.0002, 0.4), 12)
     1.8
     """
     if not 0 < porosity <= 1 or bulk_density < 0 or kd < 0:
