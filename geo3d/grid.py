@@ -258,7 +258,8 @@ def build_mask(
     """
     boundary = _check_polygon(boundary)
     xx, yy = np.meshgrid(grid["x"].values, grid["y"].values)
-    inside = shapely.contains_xy(boundary, xx, yy) | shapely.intersects_xy(boundary, xx, yy)
+    # centres on the boundary line count as inside
+    inside = shapely.intersects_xy(boundary, xx, yy)
     z = grid["z"].values[:, None, None]
     ground = np.asarray(ground, float)
     mask = inside[None] & (z <= ground[None]) & (z >= base)

@@ -430,7 +430,7 @@ def injection_plan(
     log10_k = ds["log10_k"].values
     point_rows = []
     schedule_rows = []
-    lower_all, upper_all = region.limits(ground if region.reference == "depth" else ground * 0)
+    lower_all, upper_all = region.limits(ground)
     for pid, ((px, py), i, j) in enumerate(zip(points, ix, iy, strict=True), start=1):
         # the point is inside the zone: its column counts whole, whatever the cell's share
         column_w = vertical[:, j, i]
