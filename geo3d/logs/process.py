@@ -298,16 +298,21 @@ def process_logs(site: Any) -> LogResults:
     k_bad = np.zeros(len(samples), dtype=bool)
     for name in K_EXCLUDING_FLAGS:
         k_bad |= samples[name].to_numpy(dtype=bool)
+    bounds = _ratio_bounds(samples, config, flags)
+    # a slug test averages K over every sample of its screen: unresolved samples enter the
+    # screen mean at their bound (tight soil adds almost nothing to an arithmetic mean, but
+    # leaving it out would inflate the mean by the share of the screen it occupies)
+    ratio_for_screens = np.where(k_bad, bounds, samples["q_over_p"].to_numpy(dtype=float))
     calibration = calibrate(
-        samples,
+        samples.assign(q_over_p=ratio_for_screens),
         getattr(site, "slug_tests", None),
         shape_factor_m=f_m,
         min_slug_tests=int(_option(config, "flags", "min_slug_tests", 3)),
-        usable=~k_bad,
+        usable=~flags["above_water"],
     )
     samples["log10_k"] = calibration.log10_k(samples["q_over_p"].to_numpy())
     samples["k_log"] = 10.0 ** samples["log10_k"]
-    samples["log10_k_bound"] = _resolution_bounds(samples, calibration, config, flags)
+    samples["log10_k_bound"] = calibration.log10_k(bounds)
 
     ec = samples["ec"].to_numpy(dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -379,13 +384,14 @@ def process_logs(site: Any) -> LogResults:
     )
 
 
-def _resolution_bounds(samples, calibration, config, flags) -> np.ndarray:
-    """Log10 K that out-of-range samples are known to lie beyond (NaN elsewhere).
+def _ratio_bounds(samples: pd.DataFrame, config: Any, flags: dict) -> np.ndarray:
+    """Injection ratio Q/P_net that out-of-range samples are known to lie beyond (NaN elsewhere).
 
-    Too tight (``out_of_range_low``): the measured injection ratio where flow is still
-    recorded, else K at the smallest resolvable flow under the largest usable pressure (an
-    upper bound).  Too permeable (``out_of_range_high``): K at the smallest resolvable net
-    pressure, ``factor * sensor_noise`` (a lower bound).
+    Too tight (``out_of_range_low``): the smallest resolvable flow under the largest usable net
+    pressure (K is at most this), or the measured ratio where it is higher (the flow was still
+    above the resolvable minimum, only the pressure was held at the limit).  Too permeable
+    (``out_of_range_high``): the flow over the smallest resolvable net pressure,
+    ``factor * sensor_noise`` (K is at least this).
     """
     noise = float(_option(config, "probe", "sensor_noise", 0.5))
     factor = float(_option(config, "flags", "out_of_range_high_factor", 3.0))
@@ -400,13 +406,17 @@ def _resolution_bounds(samples, calibration, config, flags) -> np.ndarray:
         - samples["p_atm"].to_numpy(dtype=float)
         - samples["p_hydrostatic"].to_numpy(dtype=float)
     )
+    p_net = samples["p_net"].to_numpy(dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
-        tight = calibration.log10_k(flow_fraction * reference / available)
-        permeable = calibration.log10_k(np.where(flow > 0, flow, reference) / (factor * noise))
-    measured = samples["log10_k"].to_numpy(dtype=float)
-    low = np.where(np.isfinite(measured), measured, tight)
+        tight = np.where(available > 0, flow_fraction * reference / available, np.nan)
+        measured = np.where((p_net > 0) & (flow > 0), flow / p_net, np.nan)
+        permeable = np.where(flow > 0, flow, reference) / (factor * noise)
+    low = np.where(np.isfinite(measured), np.fmax(measured, tight), tight)
+    above = flags["above_water"]
     return np.where(
-        flags["out_of_range_low"], low, np.where(flags["out_of_range_high"], permeable, np.nan)
+        flags["out_of_range_low"] & ~above,
+        low,
+        np.where(flags["out_of_range_high"] & ~above, permeable, np.nan),
     )
 
 

@@ -1,0 +1,142 @@
+"""The logs stage on the demo site, measured against the demo's synthetic truth.
+
+The demo site (demo_site/, made by scripts/make_demo_site.py) is invented; its truth
+(demo_site/truth/truth.json and truth.nc) records the water table, the injected-fluid (ionic)
+zone, the metal-contact spike and the true log10 K field, so these tests measure how close the
+logs stage gets.
+"""
+
+import json
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pytest
+import xarray as xr
+
+from geo3d.errors import Geo3dWarning
+from geo3d.facies import classify_mixture
+from geo3d.logs.process import process_logs
+from geo3d.logs.water_level import boring_water_levels
+from geo3d.site import read_site
+
+pytestmark = pytest.mark.slow
+
+DEMO = Path(__file__).resolve().parents[1] / "demo_site"
+
+
+@pytest.fixture(scope="module")
+def truth():
+    return json.loads((DEMO / "truth" / "truth.json").read_text())
+
+
+@pytest.fixture(scope="module")
+def result():
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", Geo3dWarning)
+        return process_logs(read_site(DEMO))
+
+
+def test_water_levels_within_a_decimetre(result, truth):
+    per_boring = boring_water_levels(result.water_levels)
+    errors = [
+        row.depth_to_water - truth["borings"][row.boring_id]["true_depth_to_water"]
+        for row in per_boring.itertuples()
+    ]
+    assert len(errors) >= 15
+    assert np.max(np.abs(errors)) < 0.1  # the site's acceptance limit
+    # borings without a test take the water level of the site plane
+    s = result.samples.groupby("boring_id").first()
+    for boring_id in truth["borings_without_dissipation_test"]:
+        true = truth["borings"][boring_id]["true_depth_to_water"]
+        assert abs(s.loc[boring_id, "depth_to_water"] - true) < 0.1
+
+
+def test_water_table_gradient_and_direction(result, truth):
+    true = truth["water_table"]
+    # level errors of a few cm over ~200 m change a 0.005 gradient by a few percent
+    assert result.water_table.gradient == pytest.approx(true["gradient"], rel=0.15)
+    assert abs(result.water_table.flow_direction_deg - true["flow_direction_deg"]) < 10.0
+
+
+def test_ionic_zone_is_flagged_there_and_nowhere_else(result, truth):
+    zone = truth["ionic"]
+    s = result.samples
+    in_boring = s["boring_id"] == zone["boring_id"]
+    # the anomaly tapers over 0.15 m at each end (generator); allow one taper on each side
+    inside = in_boring & s["depth"].between(zone["top_depth"] - 0.15, zone["bottom_depth"] + 0.15)
+    core = in_boring & s["depth"].between(zone["top_depth"] + 0.15, zone["bottom_depth"] - 0.15)
+    transmissive = s["log10_k"] >= -5.0
+    assert s.loc[core & transmissive, "ionic"].mean() > 0.8
+    assert not s.loc[~inside, "ionic"].any()
+
+
+def test_spike_is_flagged_at_its_depths_and_nowhere_else_significant(result, truth):
+    spike = truth["spike"]
+    s = result.samples
+    at = (s["boring_id"] == spike["boring_id"]) & s["depth"].round(3).isin(spike["depths"])
+    assert at.sum() == len(spike["depths"]) and s.loc[at, "spike"].all()
+    # elsewhere: at most 1 in 2000 samples (natural EC layering mistaken for a contact)
+    assert s.loc[~at, "spike"].mean() < 5e-4
+
+
+def _true_log10_k(x, y, z):
+    with xr.open_dataset(DEMO / "truth" / "truth.nc") as ds:
+        return (
+            ds["log10_k"]
+            .sel(x=xr.DataArray(x), y=xr.DataArray(y), z=xr.DataArray(z), method="nearest")
+            .values.astype(float)
+        )
+
+
+def _correlation(intervals):
+    true = _true_log10_k(
+        intervals["x"].to_numpy(), intervals["y"].to_numpy(), intervals["z_mid"].to_numpy()
+    )
+    measured = intervals["log10_k"].to_numpy()
+    ok = np.isfinite(true) & np.isfinite(measured)
+    return np.corrcoef(measured[ok], true[ok])[0, 1], np.median(measured[ok] - true[ok])
+
+
+def test_log_derived_k_correlates_with_the_true_field(result):
+    iv = result.intervals[result.intervals["log10_k"].notna()]
+    r_all, bias = _correlation(iv)
+    r_resolved, _ = _correlation(iv[iv["k_censored"] == ""])
+    # The truth grid (2 m x 2 m x 0.25 m, nearest cell) is coarser than the 0.15 m intervals
+    # and misplaces layer boundaries by up to 0.125 m, so even exact logs cannot reach r = 1.
+    # Floors: r >= 0.85 over all intervals (censored clay at its bound included; the log
+    # explains >= 70 % of the variance; measured 0.94) and r >= 0.6 within the resolved
+    # intervals alone, where the contrast is smaller (measured 0.74).
+    assert r_all > 0.85
+    assert r_resolved > 0.6
+    # the slug-test calibration keeps the level: median offset within a third of a decade
+    assert abs(bias) < 0.33
+
+
+def test_facies_k_ranges_fall_in_the_published_ranges(result):
+    # Freeze & Cherry (1979) Table 2.2 (from memory), log10 K in m/s: silt 1e-9..1e-5 (with
+    # silty clay, what storage stands for here), silty sand 1e-7..1e-3 (transitional), clean
+    # sand 1e-6..1e-2 (transmissive). Central 90 % of each class: the minimum layer thickness
+    # moves a few thin intervals across the thresholds.
+    ranges = {"storage": (-9.0, -5.0), "transitional": (-7.0, -3.0), "transmissive": (-6.0, -2.0)}
+    iv = result.intervals
+    for name, (low, high) in ranges.items():
+        values = iv.loc[iv["facies"] == name, "log10_k"].dropna()
+        assert len(values) > 50, name
+        q05, q95 = np.quantile(values, [0.05, 0.95])
+        assert low <= q05 and q95 <= high, (name, q05, q95)
+
+
+def test_mixture_separates_storage_from_transmissive(result):
+    iv = result.intervals
+    codes, names = classify_mixture(
+        iv["log10_k"].to_numpy(), iv["ec"].to_numpy(), k_only=iv["frac_ionic"].to_numpy() >= 0.5
+    )
+    assert names == ["storage", "transitional", "transmissive"]
+    found = set(codes[codes >= 0].tolist())
+    # the demo's sand lens has its mean K at 1e-5, on the boundary; the mixture puts it with
+    # the sands, so two hydrofacies come out (storage and transmissive)
+    assert {0, 2} <= found
+    thresholds = iv["facies_code"].to_numpy()
+    both = (codes >= 0) & np.isin(thresholds, [0, 2])
+    assert (codes[both] == thresholds[both]).mean() > 0.97
