@@ -25,7 +25,7 @@ import warnings
 from collections.abc import Callable, Sequence
 
 import numpy as np
-from scipy import linalg
+from scipy import linalg, sparse
 
 from geo3d.errors import Geo3dWarning, ModelError
 from geo3d.geostats.covariance import ZERO_DISTANCE, CovarianceModel
@@ -286,7 +286,14 @@ class OrdinaryKriging:
                 sol[cells] = np.matmul(ainv[inv_sorted[b0:b1] - s0], rhs[cells, :, None])[:, :, 0]
         w = sol[:, :k]
         mu = sol[:, k:]
-        est = np.einsum("mk,mkp->mp", w, self._values_ext[idx])
+        if self._values_ext.shape[1] == 1:
+            est = np.einsum("mk,mk->m", w, self._values_ext[idx, 0])[:, None]
+        else:
+            # Many value sets (simulation): a sparse weight matrix avoids an (m, k, p) gather.
+            weights = sparse.csr_matrix(
+                (w.ravel(), idx.ravel(), np.arange(0, m * k + 1, k)), shape=(m, n + 1)
+            )
+            est = np.asarray(weights @ self._values_ext)
         var = model.total_sill - np.einsum("mk,mk->m", w, rhs[:, :k])
         var -= np.einsum("md,md->m", mu, rhs[:, k:])
         n_valid = valid.sum(axis=1)
