@@ -140,3 +140,22 @@ def test_mixture_separates_storage_from_transmissive(result):
     thresholds = iv["facies_code"].to_numpy()
     both = (codes >= 0) & np.isin(thresholds, [0, 2])
     assert (codes[both] == thresholds[both]).mean() > 0.97
+
+
+def test_failed_sensor_check_flags_that_log_only(result, truth):
+    failed = truth["sensor_check_failed"]["boring_id"]
+    s = result.samples
+    assert s.loc[s["boring_id"] == failed, "sensor_check_failed"].all()
+    assert not s.loc[s["boring_id"] != failed, "sensor_check_failed"].any()
+    assert result.sensor_checks.loc[~result.sensor_checks["passed"], "boring_id"].eq(failed).all()
+
+
+def test_calibration_rests_on_the_slug_tests(result, truth):
+    calibration = result.calibration
+    assert calibration["method"] == "slug_tests"
+    assert calibration["n_tests"] == len(truth["slug_tests"])
+    # the generator's logs follow Hvorslev physics (b = 1, a = log10(gamma_w / F)) and its
+    # slug tests carry errors of a few tens of percent: the fit must land near physics
+    physics_a = np.log10(9.80665 / truth["probe"]["shape_factor_m"])
+    assert calibration["b"] == pytest.approx(1.0, abs=0.2)
+    assert calibration["a"] == pytest.approx(physics_a, abs=0.25)

@@ -118,17 +118,16 @@ def aitken_extrapolation(p0: float, p1: float, p2: float) -> float:
     return float((p0 * p2 - p1**2) / denom)
 
 
-def _smoothed_at(t: np.ndarray, p: np.ndarray, targets: np.ndarray, half_width: float):
-    out = []
-    for target in targets:
-        near = np.abs(t - target) <= half_width
-        if near.sum() >= 2:
-            # local straight line through the neighbourhood, read at the target
-            coef = np.polyfit(t[near] - target, p[near], 1)
-            out.append(coef[1])
-        else:
-            out.append(np.interp(target, t, p))
-    return np.asarray(out)
+def _thirds(t: np.ndarray, p: np.ndarray) -> np.ndarray:
+    """Mean pressure over each third of the record (on a uniform resampling of time).
+
+    The mean of an exponential over consecutive windows of equal length is again an
+    exponential sequence with the same limit, so Aitken's formula on the three means stays
+    exact, while averaging many readings removes most of the sensor noise.
+    """
+    grid = np.linspace(t[0], t[-1], 3 * max(t.size, 30))
+    values = np.interp(grid, t, p)
+    return values.reshape(3, -1).mean(axis=1)
 
 
 def static_pressure(
@@ -145,8 +144,9 @@ def static_pressure(
     The record is fitted with ``P(t) = P_inf + dP * exp(-t/T)`` by nonlinear least squares
     (:func:`scipy.optimize.curve_fit`).  When the fitted excess is within ``tail_tolerance`` at
     three readings or more, the record has reached equilibrium and those settled readings are
-    averaged; otherwise ``P_inf`` of the fit is used.  Aitken's formula on the smoothed record
-    at the start, middle and end is computed as a cross-check.
+    averaged; otherwise ``P_inf`` of the fit is used.  Aitken's formula on the mean pressures
+    of the record's three thirds (exact for an exponential, and robust to sensor noise) is
+    computed as a cross-check.
 
     Parameters
     ----------
@@ -224,10 +224,7 @@ def static_pressure(
     rmse = float(np.sqrt(np.mean(residual**2)))
     fraction = float(1.0 - np.exp(-duration / time_constant))
 
-    third = _smoothed_at(
-        t, p, np.array([0.0, duration / 2.0, duration]), half_width=0.03 * duration
-    )
-    aitken = aitken_extrapolation(*third)
+    aitken = aitken_extrapolation(*_thirds(t, p))
 
     if fraction < min_fraction_dissipated:
         msg = (

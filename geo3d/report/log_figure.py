@@ -37,8 +37,8 @@ OKABE_ITO: dict[str, str] = {
     "reddish_purple": "#CC79A7",
 }
 
-# lowest K first: warm for tight, cool for permeable
-_FACIES_ORDER = ("vermillion", "orange", "yellow", "sky_blue", "blue", "bluish_green")
+# lowest K first: vermillion for tight, yellow between, blue for permeable (three classes)
+_FACIES_ORDER = ("vermillion", "yellow", "blue", "orange", "sky_blue", "bluish_green")
 
 _FLAG_STYLE = {
     "above_water": ("_", OKABE_ITO["sky_blue"]),
@@ -48,6 +48,9 @@ _FLAG_STYLE = {
     "ionic": ("D", OKABE_ITO["reddish_purple"]),
     "sensor_check_failed": ("s", OKABE_ITO["orange"]),
 }
+
+
+_MAX_MARKS = 150
 
 
 def facies_colour(code: int) -> str:
@@ -64,6 +67,10 @@ def _mark_flags(ax, depth, values, samples: pd.DataFrame, flags) -> list:
             continue
         marker, colour = _FLAG_STYLE[flag]
         sel = samples[flag].to_numpy(dtype=bool) & np.isfinite(values)
+        index = np.flatnonzero(sel)
+        if index.size > _MAX_MARKS:  # long flagged runs: every n-th mark reads the same
+            sel = np.zeros_like(sel)
+            sel[index[:: int(np.ceil(index.size / _MAX_MARKS))]] = True
         if sel.any():
             handles.append(
                 ax.scatter(
