@@ -104,11 +104,15 @@ def composite(
         if f in df:
             ec_bad |= df[f].to_numpy(dtype=bool)
     df["_k"] = np.where(k_bad, np.nan, df["log10_k"].to_numpy(dtype=float))
-    has_bound = bound_column in samples.columns
-    above = df["above_water"].to_numpy(bool) if "above_water" in df else np.zeros(len(df), bool)
-    low = df["out_of_range_low"].to_numpy(bool) if "out_of_range_low" in df else above & False
-    high = df["out_of_range_high"].to_numpy(bool) if "out_of_range_high" in df else above & False
-    bound = samples[bound_column].to_numpy(dtype=float) if has_bound else np.full(len(df), np.nan)
+
+    def flag(name: str) -> np.ndarray:
+        return df[name].to_numpy(dtype=bool) if name in df else np.zeros(len(df), dtype=bool)
+
+    above, low, high = flag("above_water"), flag("out_of_range_low"), flag("out_of_range_high")
+    if bound_column in samples.columns:
+        bound = samples[bound_column].to_numpy(dtype=float)
+    else:
+        bound = np.full(len(df), np.nan)
     df["_bound"] = np.where((low | high) & ~above, bound, np.nan)
     df["_sat"] = (~above).astype(float)
     df["_low"] = (low & ~above).astype(float)
