@@ -75,6 +75,7 @@ def test_per_sample_and_interval_tables_follow_the_contract(mini_results):
     assert mini_results.sensor_checks["passed"].all()
 
 
+@pytest.mark.slow
 def test_outputs_are_written(mini_results, tmp_path):
     written = write_logs_outputs(mini_results, tmp_path / "out")
     names = {p.relative_to(tmp_path / "out").as_posix() for p in written}
