@@ -18,6 +18,7 @@ To add a command::
 
 from __future__ import annotations
 
+import contextlib
 import functools
 import logging
 import sys
@@ -395,7 +396,10 @@ def _run_stages(
 ) -> None:
     from geo3d.pipeline import planned_stages, run
 
-    with _StageProgress(planned_stages(stages), enabled=not no_progress) as progress:
+    with (
+        _terminate_as_interrupt(),
+        _StageProgress(planned_stages(stages), enabled=not no_progress) as progress,
+    ):
         results = run(
             site,
             out_dir,
@@ -405,6 +409,26 @@ def _run_stages(
             stages=stages,
         )
     _summary(results, title=title)
+
+
+@contextlib.contextmanager
+def _terminate_as_interrupt():
+    """Turn SIGTERM into KeyboardInterrupt so a killed run removes its staging folder."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+
+    def interrupt(signum, frame):
+        raise KeyboardInterrupt
+
+    previous = signal.signal(signal.SIGTERM, interrupt)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
 
 
 @main.command("run")
