@@ -449,19 +449,75 @@ def map_figure(
     -------
     matplotlib.figure.Figure
     """
-    fig = new_figure(5.4, 4.6)
-    ax = fig.add_subplot()
-    values = np.asarray(grid.transpose("y", "x").values, dtype=float)
-    x = np.asarray(grid["x"].values, dtype=float)
-    y = np.asarray(grid["y"].values, dtype=float)
-    mesh = ax.pcolormesh(
-        _edges(x), _edges(y), np.ma.masked_invalid(values), cmap=cmap, vmin=vmin, vmax=vmax
+    return map_panels_figure(
+        [(title, grid)],
+        units=units,
+        cmap=cmap,
+        vmin=vmin,
+        vmax=vmax,
+        boundary=boundary,
+        borings=borings,
+        crs_label=crs_label,
     )
-    fig.colorbar(mesh, ax=ax, label=units, shrink=0.85)
-    _plot_polygon(ax, boundary, color="0.2", linewidth=1.0)
-    _plot_borings(ax, borings, labels=False)
-    _plan_axes(ax, crs_label)
-    ax.set_title(title, fontsize=10, loc="left")
+
+
+def map_panels_figure(
+    panels: Sequence[tuple[str, xr.DataArray]],
+    *,
+    units: str,
+    cmap: str = "viridis",
+    vmin: float | None = None,
+    vmax: float | None = None,
+    boundary=None,
+    borings: pd.DataFrame | None = None,
+    crs_label: str | None = None,
+) -> Figure:
+    """Plan-view maps side by side on one shared colour scale (e.g. P10, estimate, P90).
+
+    Parameters
+    ----------
+    panels
+        ``(title, map)`` pairs, maps with dims ``("y", "x")``.
+    units
+        Label of the colour bar.
+    cmap
+        A perceptually uniform matplotlib colour map name.
+    vmin, vmax
+        Colour limits; from all panels when None.
+    boundary, borings
+        Drawn on top when given.
+    crs_label
+        Name of the CRS.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    arrays = [np.asarray(g.transpose("y", "x").values, dtype=float) for _, g in panels]
+    finite = np.concatenate([a[np.isfinite(a)] for a in arrays]) if arrays else np.array([])
+    if vmin is None:
+        vmin = float(finite.min()) if finite.size else 0.0
+    if vmax is None:
+        vmax = float(finite.max()) if finite.size else 1.0
+    if vmax <= vmin:
+        vmax = vmin + 1.0
+    n = len(panels)
+    fig = new_figure(5.4 if n == 1 else 3.6 * n + 0.8, 4.6 if n == 1 else 3.8)
+    axes = np.atleast_1d(fig.subplots(1, n, sharex=True, sharey=True))
+    mesh = None
+    for ax, (title, grid), values in zip(axes, panels, arrays, strict=True):
+        x = np.asarray(grid["x"].values, dtype=float)
+        y = np.asarray(grid["y"].values, dtype=float)
+        mesh = ax.pcolormesh(
+            _edges(x), _edges(y), np.ma.masked_invalid(values), cmap=cmap, vmin=vmin, vmax=vmax
+        )
+        _plot_polygon(ax, boundary, color="0.2", linewidth=1.0)
+        _plot_borings(ax, borings, labels=False)
+        _plan_axes(ax, crs_label if ax is axes[-1] else None)
+        ax.set_title(title, fontsize=9, loc="left")
+    for ax in axes[1:]:
+        ax.set_ylabel("")
+    fig.colorbar(mesh, ax=list(axes), label=units, shrink=0.85)
     return fig
 
 
@@ -536,7 +592,13 @@ def water_table_figure(
                 fontsize=7,
             )
         ax.legend(loc="lower left", fontsize=7)
-    if gradient is not None and flow_direction_deg is not None and np.isfinite(gradient):
+    if (
+        gradient is not None
+        and flow_direction_deg is not None
+        and np.isfinite(gradient)
+        and np.isfinite(flow_direction_deg)
+        and gradient > 0
+    ):
         dx, dy = azimuth_vector(float(flow_direction_deg))
         ax.annotate(
             "",

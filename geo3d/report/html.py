@@ -445,7 +445,7 @@ def _section_site(ctx: _Context) -> str:
 def _water_surface(ctx: _Context) -> xr.DataArray | None:
     maps = _get(ctx.results, "maps") or {}
     for key, grid in maps.items():
-        if "water" in str(key).lower() and isinstance(grid, xr.DataArray):
+        if _is_water_map(str(key)) and isinstance(grid, xr.DataArray):
             return grid
     surface = _get(ctx.logs, "water_table")
     if surface is None or ctx.dataset is None:
@@ -508,7 +508,7 @@ def _section_water(ctx: _Context) -> str:
     text = "Water-table elevation (m)"
     if method:
         text += f" from a {_esc(method)} fit of the dissipation-test levels"
-    if gradient is not None and direction is not None:
+    if gradient is not None and direction is not None and np.isfinite(float(direction)):
         text += (
             f"; hydraulic gradient {float(gradient):.2e} m/m, down-gradient toward "
             f"{float(direction):.0f}\u00b0 (clockwise from north), shown by the arrow"
@@ -891,13 +891,26 @@ def _derived_maps(ctx: _Context) -> dict[str, xr.DataArray]:
     return out
 
 
+_MAIN_MAPS = (
+    ("transmissive_thickness", "transmissive thickness", "m"),
+    ("storage_thickness", "storage thickness", "m"),
+    ("transmissivity", "transmissivity", "m\u00b2/s"),
+    ("transmissive_top_depth", "depth to the top of the main transmissive zone", "m"),
+)
+_PERCENTILES = ("_p10", "_p50", "_p90")
+
+
+def _is_water_map(key: str) -> bool:
+    lower = key.lower()
+    return "water" in lower or lower.startswith("wt_")
+
+
 def _section_maps(ctx: _Context) -> str:
     given = {
         str(k): v
         for k, v in (_get(ctx.results, "maps") or {}).items()
-        if isinstance(v, xr.DataArray) and set(v.dims) == {"y", "x"}
+        if isinstance(v, xr.DataArray) and set(v.dims) == {"y", "x"} and not _is_water_map(str(k))
     }
-    given = {k: v for k, v in given.items() if "water" not in k.lower()}
     derived = _derived_maps(ctx)
     if not any("thick" in k for k in given):
         given.update({k: v for k, v in derived.items() if k.startswith("thickness_")})
@@ -905,34 +918,60 @@ def _section_maps(ctx: _Context) -> str:
         given.update({k: v for k, v in derived.items() if k.startswith("mean_prob_")})
     if not given:
         return _note("No maps are available (no 3D model was built).")
+    known = {key for key, _, _ in _MAIN_MAPS}
+    plain = [k for k in given if not k.endswith(_PERCENTILES)]
+    order = [key for key, _, _ in _MAIN_MAPS if key in given]
+    order += sorted(k for k in plain if k not in known and "thick" in k)
+    order += sorted(k for k in plain if k not in known and "prob" in k)
     cells = []
-    for key in sorted(given, key=lambda k: (0 if "thick" in k else 1 if "prob" in k else 2, k)):
+    for key in order:
         grid = given[key]
-        title = key.replace("_", " ")
+        label = next((text for k, text, _ in _MAIN_MAPS if k == key), key.replace("_", " "))
         if "prob" in key:
             units, cmap, vmin, vmax = "probability", "cividis", 0.0, 1.0
             caption = (
-                f"{_esc(title)}: probability from the conditional simulations"
+                f"{_esc(label)}: probability from the conditional simulations"
                 + (", averaged over the column" if key.startswith("mean_prob_") else "")
                 + "."
             )
         else:
-            units = str(grid.attrs.get("units", "m"))
-            cmap, vmin, vmax = "viridis", 0.0 if "thick" in key else None, None
-            caption = f"{_esc(title)} ({_esc(units)})."
-        fig = fg.map_figure(
-            grid,
-            title=title,
+            units = next((u for k, _, u in _MAIN_MAPS if k == key), None)
+            units = units or str(grid.attrs.get("units", "m"))
+            cmap, vmax = "viridis", None
+            vmin = 0.0 if "thick" in key else None
+            caption = f"{_esc(label)} ({_esc(units)})"
+        panels = [("estimate", grid)]
+        if f"{key}_p10" in given and f"{key}_p90" in given:
+            panels = [
+                ("P10", given[f"{key}_p10"]),
+                ("estimate", grid),
+                ("P90", given[f"{key}_p90"]),
+            ]
+            caption += (
+                "; left to right: P10 over the conditional simulations, the kriged estimate, P90"
+            )
+        fig = fg.map_panels_figure(
+            panels,
             units=units,
             cmap=cmap,
             vmin=vmin,
             vmax=vmax,
             boundary=ctx.boundary,
             borings=ctx.borings,
-            crs_label=None,
         )
-        cells.append(_figure(fig, name=f"map-{key}", alt=title, caption=caption))
-    return f'<div class="maps">{"".join(cells)}</div>'
+        fig.suptitle(label, fontsize=10)
+        cell = _figure(fig, name=f"map-{key}", alt=label, caption=caption + ".")
+        cells.append(f'<div class="wide">{cell}</div>' if len(panels) > 1 else cell)
+    shown = set(order) | {k + p for k in order for p in _PERCENTILES}
+    rest = sorted(set(given) - shown)
+    note = ""
+    if rest:
+        note = _note(
+            "Further maps of this run (GeoTIFF in the maps folder when exported): "
+            + ", ".join(_esc(k) for k in rest)
+            + "."
+        )
+    return f'<div class="maps">{"".join(cells)}</div>{note}'
 
 
 def _section_sections(ctx: _Context) -> str:
