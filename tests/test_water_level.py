@@ -212,3 +212,19 @@ def test_water_table_surfaces():
     np.testing.assert_allclose(flat.elevation([3.0], [4.0]), [5.1])
     with pytest.raises(WaterLevelError, match="unknown method"):
         fit_water_table(x, y, z, method="spline")
+
+
+def test_standard_error_of_the_static_pressure_matches_its_scatter():
+    # Monte Carlo: the covariance of a least-squares fit predicts the scatter of P_inf over
+    # repeated noisy records (Gauss-Markov; nonlinear least squares to first order)
+    rng = np.random.default_rng(5)
+    t = np.arange(0.0, 40.01, 0.5)
+    errors, ses = [], []
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", Geo3dWarning)
+        for _ in range(100):
+            p = 150.0 + 40.0 * np.exp(-t / 30.0) + rng.normal(0.0, 0.1, t.size)
+            result = static_pressure(t, p)
+            errors.append(result.p_static - 150.0)
+            ses.append(result.p_static_se)
+    assert np.std(errors) == pytest.approx(np.mean(ses), rel=0.25)

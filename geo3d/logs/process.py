@@ -175,6 +175,7 @@ def _water(site: Any, config: Any, p_atm: dict[str, float]):
                 "method": "given",
                 "fit_rmse": np.nan,
                 "aitken": np.nan,
+                "p_static_se": np.nan,
             }
         )
     else:

@@ -77,6 +77,9 @@ class DissipationResult:
         Aitken three-point estimate of the static pressure, kPa (NaN when undefined).
     time_constant
         Fitted time constant T, s (inf for a record flat from the start).
+    p_static_se
+        Standard error of the static pressure, kPa: of ``P_inf`` from the fit's covariance
+        (exponential), or of the mean of the settled readings (tail).
     """
 
     p_static: float
@@ -85,6 +88,7 @@ class DissipationResult:
     fit_rmse: float
     aitken: float
     time_constant: float
+    p_static_se: float = float("nan")
 
 
 def _exponential(t, p_inf, excess, time_constant):
@@ -204,11 +208,12 @@ def static_pressure(
     flat_tol = max(2.0 * tail_tolerance, 3.0 * tail_noise)
     if abs(excess0) <= flat_tol:
         rmse = float(np.sqrt(np.mean((p - tail_mean) ** 2)))
-        return DissipationResult(tail_mean, "tail", 1.0, rmse, float("nan"), float("inf"))
+        se = float(p.std(ddof=1) / np.sqrt(p.size))
+        return DissipationResult(tail_mean, "tail", 1.0, rmse, float("nan"), float("inf"), se)
 
     guess = (float(p[-1]), float(p[0] - p[-1]), max(duration / 3.0, 1e-3))
     try:
-        params, _ = curve_fit(
+        params, covariance = curve_fit(
             _exponential,
             t,
             p,
@@ -237,8 +242,10 @@ def static_pressure(
     settled = abs(excess) * np.exp(-t / time_constant) <= tail_tolerance
     if settled.sum() >= 3:
         method, value = "tail", float(p[settled].mean())
+        se = float(p[settled].std(ddof=1) / np.sqrt(settled.sum()))
     else:
         method, value = "exponential", p_inf
+        se = float(np.sqrt(covariance[0, 0])) if np.isfinite(covariance[0, 0]) else np.nan
         if fraction < warn_fraction_dissipated:
             warnings.warn(
                 f"{label}: record stopped at {fraction:.0%} dissipation; static pressure "
@@ -256,7 +263,7 @@ def static_pressure(
     logger.debug(
         "%s: p_static %.3f kPa by %s (%.0f%% dissipated)", label, value, method, 100 * fraction
     )
-    return DissipationResult(value, method, fraction, rmse, aitken, time_constant)
+    return DissipationResult(value, method, fraction, rmse, aitken, time_constant, se)
 
 
 def depth_to_water(probe_depth, p_static, p_atm):
@@ -294,6 +301,7 @@ _LEVEL_COLUMNS = [
     "method",
     "fit_rmse",
     "aitken",
+    "p_static_se",
 ]
 
 
@@ -324,7 +332,8 @@ def water_levels(
     -------
     DataFrame
         One row per accepted test: ``boring_id, test_id, x, y, depth, p_static,
-        depth_to_water, wt_elev, fraction_dissipated, method, fit_rmse, aitken``.
+        depth_to_water, wt_elev, fraction_dissipated, method, fit_rmse, aitken,
+        p_static_se``.
 
     Raises
     ------
@@ -378,6 +387,7 @@ def water_levels(
                 "method": result.method,
                 "fit_rmse": result.fit_rmse,
                 "aitken": result.aitken,
+                "p_static_se": result.p_static_se,
             }
         )
     if not rows:
