@@ -228,3 +228,23 @@ def test_standard_error_of_the_static_pressure_matches_its_scatter():
             errors.append(result.p_static - 150.0)
             ses.append(result.p_static_se)
     assert np.std(errors) == pytest.approx(np.mean(ses), rel=0.25)
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    a=st.floats(-0.02, 0.02),
+    b=st.floats(-0.02, 0.02),
+    c=st.floats(-50.0, 500.0),
+    seed=st.integers(0, 2**16),
+)
+def test_plane_through_exact_heads_is_recovered(a, b, c, seed):
+    # invariant: heads lying on a plane give that plane back, and water flows down-gradient
+    rng = np.random.default_rng(seed)
+    x, y = rng.uniform(0, 300, 6), rng.uniform(0, 200, 6)
+    fa, fb, fc, magnitude, direction = gradient_plane(x, y, a * x + b * y + c)
+    assert (fa, fb) == pytest.approx((a, b), abs=1e-9)
+    assert fc == pytest.approx(c, abs=1e-6)
+    assert magnitude == pytest.approx(np.hypot(a, b), abs=1e-9)
+    if magnitude > 1e-6:
+        step = np.array([np.sin(np.radians(direction)), np.cos(np.radians(direction))])
+        assert a * step[0] + b * step[1] == pytest.approx(-magnitude, rel=1e-6)
