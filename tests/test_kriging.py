@@ -166,8 +166,10 @@ def test_chunked_dask_and_serial_identical():
     small = OrdinaryKriging(model, neighbors=16, max_per_group=3, chunk_size=37).fit(xyz, v, groups)
     e1, v1 = small.predict(t)
     e2, v2 = small.predict(t, scheduler="threads")
-    np.testing.assert_array_equal(e0, e1)
-    np.testing.assert_array_equal(v0, v1)
+    # Other chunk boundaries group the cells' systems differently: equal to rounding.
+    np.testing.assert_allclose(e0, e1, rtol=1e-12, atol=1e-14)
+    np.testing.assert_allclose(v0, v1, rtol=1e-12, atol=1e-14)
+    # The same chunks on dask threads: bit for bit.
     np.testing.assert_array_equal(e1, e2)
     np.testing.assert_array_equal(v1, v2)
 

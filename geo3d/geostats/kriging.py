@@ -26,6 +26,7 @@ from collections.abc import Callable, Sequence
 
 import numpy as np
 from scipy import linalg, sparse
+from scipy.spatial.distance import cdist
 
 from geo3d.errors import Geo3dWarning, ModelError
 from geo3d.geostats.covariance import ZERO_DISTANCE, CovarianceModel
@@ -40,6 +41,8 @@ DRIFTS = ("none", "linear_z")
 _SET_BLOCK = 2048
 #: Cells whose weights are computed together.
 _CELL_BLOCK = 4096
+#: Up to this many samples the sample covariance matrix is computed once (n^2 x 8 bytes).
+_FULL_COV_MAX = 6000
 #: Elements of the data-by-target covariance block in global mode.
 _GLOBAL_BLOCK = 4_000_000
 _LOCAL_SCHEDULERS = ("threads", "processes", "synchronous", "sync", "single-threaded")
@@ -171,6 +174,9 @@ class OrdinaryKriging:
         self.z_mean_ = float(coords[:, 2].mean())
         self._drift_ext = np.append((coords[:, 2] - self.z_mean_) / self.model.range_v, 0.0)
         self.search_ = NeighbourSearch(scaled, groups)
+        self._cov_full = None
+        if not self.global_mode and n <= _FULL_COV_MAX:
+            self._cov_full = self._full_covariance()
         self._lu = None
         if self.global_mode:
             lhs = self._lhs(np.arange(n)[None, :])[0]
@@ -180,6 +186,18 @@ class OrdinaryKriging:
                 msg = f"the global kriging system is singular ({exc}); check duplicate samples"
                 raise ModelError(msg) from exc
         return self
+
+    def _full_covariance(self) -> np.ndarray:
+        """Covariance between all samples, padded with the missing-neighbour sentinel."""
+        n = self.n_
+        full = np.zeros((n + 1, n + 1))
+        step = max(1, _GLOBAL_BLOCK // n)
+        for i in range(0, n, step):
+            j = min(n, i + step)
+            d = cdist(self.scaled_[i:j], self.scaled_)
+            full[i:j, :n] = self.model.covariance(d)
+        full[n, n] = 1.0
+        return full
 
     def _check_settings(self) -> None:
         if self.drift not in DRIFTS:
@@ -273,17 +291,20 @@ class OrdinaryKriging:
             rhs[:, k + 1] = (targets[:, 2] - self.z_mean_) / model.range_v
         sol = np.empty((m, kk))
         ok_set = np.ones(len(sets), dtype=bool)
+        # Cells grouped by neighbour set; sets with the same number of cells are solved together,
+        # one factorisation per set for all its cells' right-hand sides.
         cell_order = np.argsort(inverse, kind="stable")
-        inv_sorted = inverse[cell_order]
-        for s0 in range(0, len(sets), _SET_BLOCK):
-            s1 = min(len(sets), s0 + _SET_BLOCK)
-            ainv, ok = self._inverse(sets[s0:s1])
-            ok_set[s0:s1] = ok
-            c0, c1 = np.searchsorted(inv_sorted, [s0, s1])
-            for b0 in range(c0, c1, _CELL_BLOCK):
-                b1 = min(c1, b0 + _CELL_BLOCK)
-                cells = cell_order[b0:b1]
-                sol[cells] = np.matmul(ainv[inv_sorted[b0:b1] - s0], rhs[cells, :, None])[:, :, 0]
+        counts = np.bincount(inverse, minlength=len(sets))
+        starts = np.concatenate([[0], np.cumsum(counts)[:-1]])
+        for c in np.unique(counts):
+            sel = np.flatnonzero(counts == c)
+            step = max(1, min(_SET_BLOCK, _CELL_BLOCK // int(c)))
+            for b0 in range(0, len(sel), step):
+                ss = sel[b0 : b0 + step]
+                cells = cell_order[starts[ss][:, None] + np.arange(c)]
+                x, ok = self._solve(self._lhs(sets[ss]), rhs[cells].transpose(0, 2, 1))
+                sol[cells.ravel()] = x.transpose(0, 2, 1).reshape(-1, kk)
+                ok_set[ss] = ok
         w = sol[:, :k]
         mu = sol[:, k:]
         if self._values_ext.shape[1] == 1:
@@ -309,18 +330,27 @@ class OrdinaryKriging:
         u, k = sets.shape
         nd = 1 if self.drift == "none" else 2
         valid = sets < n
-        pts = self._scaled_ext[sets]
-        d2 = np.zeros((u, k, k))
-        for a in range(3):
-            diff = pts[:, :, None, a] - pts[:, None, :, a]
-            d2 += diff * diff
         a_mat = np.zeros((u, k + nd, k + nd))
-        cov = model.covariance(np.sqrt(d2))
-        pair = valid[:, :, None] & valid[:, None, :]
-        a_mat[:, :k, :k] = np.where(pair, cov, 0.0)
-        # A missing neighbour gets the decoupled equation w_i = 0.
-        diag = np.arange(k)
-        a_mat[:, diag, diag] = np.where(valid, model.total_sill, 1.0)
+        if self._cov_full is not None:
+            # Padded full covariance (sentinel row and column 0, diagonal 1).
+            a_mat[:, :k, :k] = self._cov_full[sets[:, :, None], sets[:, None, :]]
+            if not valid.all():
+                # Several missing neighbours: decouple them from each other too.
+                a_mat[:, :k, :k] *= valid[:, :, None] & valid[:, None, :]
+                diag = np.arange(k)
+                a_mat[:, diag, diag] = np.where(valid, model.total_sill, 1.0)
+        else:
+            pts = self._scaled_ext[sets]
+            d2 = np.zeros((u, k, k))
+            for a in range(3):
+                diff = pts[:, :, None, a] - pts[:, None, :, a]
+                d2 += diff * diff
+            cov = model.covariance(np.sqrt(d2))
+            pair = valid[:, :, None] & valid[:, None, :]
+            a_mat[:, :k, :k] = np.where(pair, cov, 0.0)
+            # A missing neighbour gets the decoupled equation w_i = 0.
+            diag = np.arange(k)
+            a_mat[:, diag, diag] = np.where(valid, model.total_sill, 1.0)
         drift_cols = [valid.astype(float)]
         if nd == 2:
             drift_cols.append(np.where(valid, self._drift_ext[sets], 0.0))
@@ -334,24 +364,23 @@ class OrdinaryKriging:
                 a_mat[few, k + j, k + j] = 1.0
         return a_mat
 
-    def _inverse(self, sets: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Inverse kriging matrices and a flag of those that could be inverted."""
-        a_mat = self._lhs(sets)
-        ok = np.ones(len(sets), dtype=bool)
+    def _solve(self, a_mat: np.ndarray, b_mat: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Solve stacked systems; flag (and zero) the singular ones."""
+        ok = np.ones(len(a_mat), dtype=bool)
         try:
-            return np.linalg.inv(a_mat), ok
+            return np.linalg.solve(a_mat, b_mat), ok
         except np.linalg.LinAlgError:
-            out = np.zeros_like(a_mat)
-            for i, a in enumerate(a_mat):
+            out = np.zeros_like(b_mat)
+            for i, (a, b) in enumerate(zip(a_mat, b_mat, strict=True)):
                 try:
-                    out[i] = np.linalg.inv(a)
+                    out[i] = np.linalg.solve(a, b)
                 except np.linalg.LinAlgError:
                     ok[i] = False
             msg = (
                 f"{int((~ok).sum())} kriging neighbourhoods give a singular system (duplicate "
                 "samples, or all at one elevation with drift='linear_z'); their cells are NaN"
             )
-            warnings.warn(msg, Geo3dWarning, stacklevel=3)
+            warnings.warn(msg, Geo3dWarning, stacklevel=4)
             return out, ok
 
     def _predict_global(self, targets: np.ndarray, ts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
