@@ -754,3 +754,38 @@ def test_number_format_marks_missing_values():
     assert _fmt(float("nan")) == _fmt(None) == "\u2013"
     assert _fmt(True) == "yes"
     assert _fmt(12345) == "12,345"
+
+
+# --------------------------------------------------------------------------- real pipeline
+
+
+@pytest.mark.slow
+def test_pipeline_run_report_has_every_section_and_image(mini_site, tmp_path):
+    pipeline = pytest.importorskip("geo3d.pipeline")
+    out = tmp_path / "out"
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", Geo3dWarning)  # no report section may fail
+        warnings.filterwarnings("ignore", category=Geo3dWarning, module=r"geo3d\.(?!report)")
+        pipeline.run(mini_site, out, n_realizations=2)
+    text = (out / "report.html").read_text(encoding="utf-8")
+    page = parse(text)
+    assert page.sections == list(SECTION_TITLES)
+    assert "could not be drawn" not in text
+    names = {img.get("data-figure") for img in page.images}
+    expected = {
+        "site-map",
+        "log-B1",
+        "log-B2",
+        "log-B3",
+        "variogram-log10_k",
+        "crossval-log10_k",
+        "section-A",
+        "section-B",
+        "view3d",
+    }
+    assert expected <= names, expected - names
+    assert any(n.startswith("map-") and "thickness" in n for n in names)
+    for img in page.images:
+        png_size(decode_img(img["src"]))
+    for tag, name, value in page.resource_attrs:
+        assert value.startswith(("data:", "#")), (tag, name, value[:60])
