@@ -1,11 +1,14 @@
 import gstools as gs
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from pykrige.ok3d import OrdinaryKriging3D
 
 from geo3d.errors import ModelError
 from geo3d.geostats.covariance import CovarianceModel
 from geo3d.geostats.kriging import OrdinaryKriging
+from geo3d.geostats.neighbours import NeighbourSearch
 
 
 def _data(n=250, m=150, seed=1):
@@ -198,3 +201,30 @@ def test_bad_input_raises():
         OrdinaryKriging(model, drift="quadratic").fit(xyz, v)
     with pytest.raises(ModelError, match="before fit"):
         OrdinaryKriging(model).predict(xyz)
+
+
+@settings(max_examples=30, deadline=None)
+@given(
+    seed=st.integers(0, 10_000),
+    k=st.integers(1, 12),
+    cap=st.integers(1, 5),
+    n_groups=st.integers(1, 6),
+)
+def test_capped_search_equals_brute_force(seed, k, cap, n_groups):
+    # Invariant (definition): the capped neighbourhood is the distance-ordered list of samples,
+    # skipping any sample whose group already has `cap` members, truncated to k.
+    rng = np.random.default_rng(seed)
+    pts = rng.uniform(0, 1, (40, 3))
+    groups = rng.integers(0, n_groups, 40)
+    targets = rng.uniform(0, 1, (5, 3))
+    search = NeighbourSearch(pts, groups)
+    dist, idx = search.query(targets, k, max_per_group=cap)
+    for t, row in zip(targets, idx, strict=True):
+        order = np.argsort(np.linalg.norm(pts - t, axis=1), kind="stable")
+        want, taken = [], {}
+        for i in order:
+            if taken.get(groups[i], 0) < cap and len(want) < k:
+                want.append(i)
+                taken[groups[i]] = taken.get(groups[i], 0) + 1
+        got = row[row < len(pts)]
+        assert got.tolist() == want

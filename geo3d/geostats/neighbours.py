@@ -102,24 +102,31 @@ class NeighbourSearch:
     def _cap(
         self, dist: np.ndarray, idx: np.ndarray, k: int, cap: int
     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Keep, per row, the first k candidates with at most ``cap`` from each group."""
+        """Keep, per row, the first k candidates with at most ``cap`` from each group.
+
+        One pass over the candidate columns (nearest first) with a per-row count of samples
+        taken from each group; stops as soon as every row has k neighbours.
+        """
         m, kc = idx.shape
-        g = self.groups[idx]
-        order = np.argsort(g, axis=1, kind="stable")
-        gs = np.take_along_axis(g, order, axis=1)
-        cols = np.broadcast_to(np.arange(kc), (m, kc))
-        start = np.ones((m, kc), dtype=bool)
-        start[:, 1:] = gs[:, 1:] != gs[:, :-1]
-        run_start = np.maximum.accumulate(np.where(start, cols, 0), axis=1)
-        rank_sorted = cols - run_start
-        rank = np.empty_like(rank_sorted)
-        np.put_along_axis(rank, order, rank_sorted, axis=1)
-        keep = (rank < cap) & (idx < self.n)
-        pos = np.argsort(~keep, axis=1, kind="stable")[:, :k]
-        sel_keep = np.take_along_axis(keep, pos, axis=1)
-        out_i = np.where(sel_keep, np.take_along_axis(idx, pos, axis=1), self.n)
-        out_d = np.where(sel_keep, np.take_along_axis(dist, pos, axis=1), np.inf)
-        short = sel_keep.sum(axis=1) < k
+        n_groups = int(self.groups.max()) + 2
+        taken = np.zeros((m, n_groups), dtype=np.int32)
+        n_out = np.zeros(m, dtype=np.int64)
+        out_i = np.full((m, k), self.n, dtype=idx.dtype)
+        out_d = np.full((m, k), np.inf)
+        rows = np.arange(m)
+        for j in range(kc):
+            col = idx[rows, j]
+            g = self.groups[col]
+            ok = (col < self.n) & (taken[rows, g] < cap)
+            r = rows[ok]
+            out_i[r, n_out[r]] = col[ok]
+            out_d[r, n_out[r]] = dist[r, j]
+            taken[r, g[ok]] += 1
+            n_out[r] += 1
+            rows = rows[n_out[rows] < k]
+            if len(rows) == 0:
+                break
+        short = n_out < k
         return out_d, out_i, short
 
 
