@@ -353,6 +353,8 @@ def make_results(*, with_model: bool = True, with_slug_tests: bool = True):
         "transmissive_thickness": ((ds.facies_code == 2).sum("z") * dz).where(ds.mask.any("z")),
         "storage_thickness": ((ds.facies_code == 0).sum("z") * dz).where(ds.mask.any("z")),
     }
+    results.maps["transmissive_thickness_p10"] = 0.8 * results.maps["transmissive_thickness"]
+    results.maps["transmissive_thickness_p90"] = 1.2 * results.maps["transmissive_thickness"]
     results.volumes = pd.DataFrame(
         {
             "zone": ["Zone A", "Zone A"],

@@ -502,7 +502,7 @@ def map_panels_figure(
     if vmax <= vmin:
         vmax = vmin + 1.0
     n = len(panels)
-    fig = new_figure(5.4 if n == 1 else 3.6 * n + 0.8, 4.6 if n == 1 else 3.8)
+    fig = new_figure(5.4 if n == 1 else 3.6 * n + 0.8, 4.6 if n == 1 else 3.3)
     axes = np.atleast_1d(fig.subplots(1, n, sharex=True, sharey=True))
     mesh = None
     for ax, (title, grid), values in zip(axes, panels, arrays, strict=True):

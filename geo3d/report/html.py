@@ -929,10 +929,8 @@ def _section_maps(ctx: _Context) -> str:
         label = next((text for k, text, _ in _MAIN_MAPS if k == key), key.replace("_", " "))
         if "prob" in key:
             units, cmap, vmin, vmax = "probability", "cividis", 0.0, 1.0
-            caption = (
-                f"{_esc(label)}: probability from the conditional simulations"
-                + (", averaged over the column" if key.startswith("mean_prob_") else "")
-                + "."
+            caption = f"{_esc(label)}: probability from the conditional simulations" + (
+                ", averaged over the column" if key.startswith("mean_prob_") else ""
             )
         else:
             units = next((u for k, _, u in _MAIN_MAPS if k == key), None)
@@ -940,7 +938,7 @@ def _section_maps(ctx: _Context) -> str:
             cmap, vmax = "viridis", None
             vmin = 0.0 if "thick" in key else None
             caption = f"{_esc(label)} ({_esc(units)})"
-        panels = [("estimate", grid)]
+        panels = [("", grid)]
         if f"{key}_p10" in given and f"{key}_p90" in given:
             panels = [
                 ("P10", given[f"{key}_p10"]),
