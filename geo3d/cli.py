@@ -366,17 +366,28 @@ def _summary(results, *, title: str) -> None:
         return
     unit = results.site.config.units.output_volume
     table = Table(title=f"Headline volumes ({unit})", title_justify="left")
-    for column in ("zone", "storage material", "effective pore volume", "design volume", "points"):
+    for column in (
+        "zone",
+        "storage material",
+        "P10 to P90",
+        "effective pore volume",
+        "design volume",
+        "points",
+    ):
         table.add_column(column, justify="left" if column == "zone" else "right")
 
     def volume(value: float) -> str:
-        return "-" if value != value else f"{from_internal(value, unit, 'volume'):,.1f}"
+        return "-" if value != value else f"{from_internal(value, unit, 'volume'):,.0f}"
 
     for row in headline.itertuples(index=False):
         points = "-" if row.n_points != row.n_points else f"{int(row.n_points)}"
+        spread = "-"
+        if row.storage_volume_m3_p10 == row.storage_volume_m3_p10:
+            spread = f"{volume(row.storage_volume_m3_p10)} to {volume(row.storage_volume_m3_p90)}"
         table.add_row(
             str(row.zone),
             volume(row.storage_volume_m3),
+            spread,
             volume(row.effective_pore_volume_m3),
             volume(row.design_volume_m3),
             points,

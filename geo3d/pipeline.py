@@ -539,37 +539,44 @@ def headline_volumes(results: RunResults) -> pd.DataFrame:
     Returns
     -------
     pandas.DataFrame
-        One row per zone (``site`` included): ``zone``, ``storage_volume_m3``,
-        ``effective_pore_volume_m3`` (all material), ``design_volume_m3``, ``n_points`` (NaN
-        where there is no injection plan).
+        One row per zone (``site`` included): ``zone``, ``storage_volume_m3`` (expected bulk
+        volume of the storage material) with ``storage_volume_m3_p10``/``_p50``/``_p90``
+        (NaN without simulations), ``effective_pore_volume_m3`` (all material),
+        ``design_volume_m3`` and ``n_points`` (NaN where there is no injection plan).
     """
+    columns = [
+        "zone",
+        "storage_volume_m3",
+        "storage_volume_m3_p10",
+        "storage_volume_m3_p50",
+        "storage_volume_m3_p90",
+        "effective_pore_volume_m3",
+        "design_volume_m3",
+        "n_points",
+    ]
     volumes = results.volumes
-    if volumes is None or volumes.empty or "zone" not in volumes.columns:
-        return pd.DataFrame(
-            columns=["zone", "storage_volume_m3", "effective_pore_volume_m3", "design_volume_m3"]
-        )
+    if volumes is None or volumes.empty or not {"zone", "facies"} <= set(volumes.columns):
+        return pd.DataFrame(columns=columns)
     table = volumes
     if "band" in table.columns:
-        whole = table["band"].isna() | table["band"].astype(str).isin(["", "all", "zone", "None"])
-        if whole.any():
-            table = table[whole]
+        table = table[table["band"].isna() | (table["band"].astype(str) == "all")]
+    names = list(getattr(results.logs, "facies_names", None) or [])
+    storage_name = "storage" if "storage" in names or not names else names[0]
     rows = []
     for zone, part in table.groupby("zone", sort=False):
-        facies = part["facies"].astype(str) if "facies" in part else pd.Series(dtype=str)
-        storage = part[facies == "storage"]
+        facies = part["facies"].astype(str)
+        storage = part[facies == storage_name]
         everything = part[facies == "all"]
         plan = results.injection.get(str(zone))
         summary = getattr(plan, "summary", {}) or {}
-        rows.append(
-            {
-                "zone": str(zone),
-                "storage_volume_m3": _first_value(storage, "bulk_volume_m3"),
-                "effective_pore_volume_m3": _first_value(everything, "effective_pore_volume_m3"),
-                "design_volume_m3": _summary_value(summary, "design_volume_m3"),
-                "n_points": _summary_value(summary, "n_points"),
-            }
-        )
-    return pd.DataFrame(rows)
+        row = {"zone": str(zone), "storage_volume_m3": _first_value(storage, "bulk_volume_m3")}
+        for p in ("p10", "p50", "p90"):
+            row[f"storage_volume_m3_{p}"] = _first_value(storage, f"bulk_volume_m3_{p}")
+        row["effective_pore_volume_m3"] = _first_value(everything, "effective_pore_volume_m3")
+        row["design_volume_m3"] = _summary_value(summary, "design_volume_m3")
+        row["n_points"] = _summary_value(summary, "n_points")
+        rows.append(row)
+    return pd.DataFrame(rows, columns=columns)
 
 
 def _first_value(frame: pd.DataFrame, column: str) -> float:
