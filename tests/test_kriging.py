@@ -228,3 +228,7 @@ def test_capped_search_equals_brute_force(seed, k, cap, n_groups):
                 taken[groups[i]] = taken.get(groups[i], 0) + 1
         got = row[row < len(pts)]
         assert got.tolist() == want
+    # The slower candidate-filtering search (used when the per-group search is not provably
+    # exact) gives the same neighbourhoods.
+    _, idx2 = search._query_candidates(targets, k, cap, np.inf)
+    np.testing.assert_array_equal(idx2, idx)

@@ -78,7 +78,83 @@ class NeighbourSearch:
         if max_per_group <= 0 or self.groups is None:
             dist, idx = self.tree.query(targets, k=k, distance_upper_bound=ub, workers=self.workers)
             return _as_2d(dist, idx)
-        kc = min(self.n, max(2 * k, 4 * k if max_per_group < k else k))
+        if max_per_group >= k:
+            dist, idx = self.tree.query(targets, k=k, distance_upper_bound=ub, workers=self.workers)
+            return _as_2d(dist, idx)
+        out_d, out_i, exact = self._query_by_group(targets, k, max_per_group, ub)
+        rows = np.flatnonzero(~exact)
+        if len(rows):
+            rd, ri = self._query_candidates(targets[rows], k, max_per_group, ub)
+            out_d[rows] = rd
+            out_i[rows] = ri
+        return out_d, out_i
+
+    def _group_trees(self) -> list[tuple[cKDTree, np.ndarray, np.ndarray, np.ndarray]]:
+        """Per group: its k-d tree, member indices (plus sentinel), bounding box low and high."""
+        if not hasattr(self, "_trees"):
+            codes = self.groups[:-1]
+            self._trees = []
+            for g in range(int(codes.max()) + 1):
+                members = np.flatnonzero(codes == g)
+                pts = self.points[members]
+                self._trees.append(
+                    (cKDTree(pts), np.append(members, self.n), pts.min(axis=0), pts.max(axis=0))
+                )
+        return self._trees
+
+    def _query_by_group(
+        self, targets: np.ndarray, k: int, cap: int, ub: float
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Capped search from the ``cap`` nearest samples of each of the nearest groups.
+
+        The capped neighbourhood is the k nearest among every group's ``cap`` nearest
+        samples. Groups are visited in order of the distance to their bounding box; the result
+        of a row is exact when its k-th distance does not exceed the box distance of the first
+        group left out (flagged in the third output; other rows need the slower search).
+        """
+        trees = self._group_trees()
+        n_groups = len(trees)
+        m = len(targets)
+        n_near = min(n_groups, -(-k // cap) + 4)
+        lo = np.array([t[2] for t in trees])
+        hi = np.array([t[3] for t in trees])
+        box = np.zeros((m, n_groups))
+        for a in range(3):
+            gap = np.maximum(lo[None, :, a] - targets[:, a : a + 1], 0.0)
+            gap = np.maximum(gap, targets[:, a : a + 1] - hi[None, :, a])
+            box += gap * gap
+        np.sqrt(box, out=box)
+        order = np.argsort(box, axis=1, kind="stable")
+        near = order[:, :n_near]
+        cand_d = np.full((m, n_near * cap), np.inf)
+        cand_i = np.full((m, n_near * cap), self.n, dtype=np.int64)
+        for g, (tree, members, _, _) in enumerate(trees):
+            rows, slot = np.nonzero(near == g)
+            if len(rows) == 0:
+                continue
+            kg = min(cap, tree.n)
+            d, i = _as_2d(
+                *tree.query(targets[rows], k=kg, distance_upper_bound=ub, workers=self.workers)
+            )
+            cols = slot[:, None] * cap + np.arange(kg)
+            cand_d[rows[:, None], cols] = d
+            cand_i[rows[:, None], cols] = members[i]
+        pick = np.argsort(cand_d, axis=1, kind="stable")[:, :k]
+        out_d = np.take_along_axis(cand_d, pick, axis=1)
+        out_i = np.take_along_axis(cand_i, pick, axis=1)
+        if n_near < n_groups:
+            next_box = np.take_along_axis(box, order[:, n_near : n_near + 1], axis=1)[:, 0]
+            exact = (out_d[:, -1] <= next_box) | (next_box > ub)
+        else:
+            exact = np.ones(m, dtype=bool)
+        return out_d, out_i, exact
+
+    def _query_candidates(
+        self, targets: np.ndarray, k: int, cap: int, ub: float
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """Capped search by filtering growing lists of nearest candidates."""
+        max_per_group = cap
+        kc = min(self.n, 4 * k)
         dist, idx = _as_2d(
             *self.tree.query(targets, k=kc, distance_upper_bound=ub, workers=self.workers)
         )
