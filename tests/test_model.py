@@ -12,6 +12,7 @@ from geo3d.analysis.thickness import thickness_maps
 from geo3d.analysis.volumes import zone_volumes
 from geo3d.errors import ModelError
 from geo3d.model import (
+    NormalScore,
     build_voxel_model,
     classify_log10_k,
     facies_probabilities,
@@ -88,6 +89,7 @@ def built():
         kriging={"neighbors": 16, "max_per_boring": 6},
         n_realizations=4,
         seed=7,
+        normal_score=False,
     )
 
 
@@ -120,13 +122,17 @@ def test_layer_cake_is_recovered(built):
     assert np.allclose(maps["storage_thickness"], 4.0)
     assert np.allclose(maps["transmissive_top_depth"], 5.0)
     volumes = zone_volumes(built, None).set_index("facies")
-    # bulk volume 60 x 45 m x 3 m = 8100 m3 (construction); expected values from the
-    # probabilities within 2 %
+    # bulk volume 60 x 45 m x 3 m = 8100 m3 (construction): exact from the most likely facies,
+    # within 2 % as the expected value under the Gaussian assumption of the kriging
+    ds = built.dataset
     assert volumes.loc["transmissive", "bulk_volume_m3_most_likely"] == pytest.approx(8100.0)
-    assert volumes.loc["transmissive", "bulk_volume_m3"] == pytest.approx(8100.0, rel=0.02)
+    gaussian = float(ds["prob_transmissive_kriging"].sum()) * ds.voxels.cell_volume
+    assert gaussian == pytest.approx(8100.0, rel=0.02)
+    # from 4 realizations: ordered percentiles within 5 %
     p10, p50, p90 = (volumes.loc["transmissive", f"bulk_volume_m3_p{p}"] for p in (10, 50, 90))
     assert p10 <= p50 <= p90
     assert p10 == pytest.approx(8100.0, rel=0.05) and p90 == pytest.approx(8100.0, rel=0.05)
+    assert volumes.loc["transmissive", "bulk_volume_m3"] == pytest.approx(8100.0, rel=0.05)
 
 
 @pytest.mark.slow
@@ -144,10 +150,11 @@ def test_crossval_error_is_near_the_noise(built):
 
 @pytest.mark.slow
 def test_realizations_spread_as_the_kriging_variance(built):
-    # a simulation conditioned by kriging departs from the kriged value by the kriging
-    # variance on average: E[(Z_cs - Z_k)^2] = sigma_k^2 (Journel & Huijbregts 1978, ch. VII);
-    # 4 realizations x 960 cells, within +-50 %
+    # simulated in log10 K space, a simulation conditioned by kriging departs from the kriged
+    # value by the kriging variance on average: E[(Z_cs - Z_k)^2] = sigma_k^2 (Journel &
+    # Huijbregts 1978, ch. VII); 4 realizations x 960 cells, within +-50 %
     ds = built.dataset
+    assert ds.attrs["simulation_space"] == "log10_k"
     mask = ds["mask"].values
     departure = (ds["realizations"].values - ds["log10_k"].values[None])[:, mask]
     ratio = np.mean(departure**2) / np.mean(ds["log10_k_var"].values[mask])
@@ -157,6 +164,55 @@ def test_realizations_spread_as_the_kriging_variance(built):
     codes = classify_log10_k(ds["realizations"].values, table)
     share = (codes == table.transmissive).mean(axis=0)
     assert np.allclose(share[mask], ds["prob_transmissive"].values[mask])
+
+
+@pytest.mark.slow
+def test_normal_score_realizations_keep_the_data_range():
+    # back-transformed realizations stay inside the data range and honour the layer
+    # proportions of the layer cake (4 m storage, 3 m transitional, 3 m transmissive of 10 m;
+    # construction) within 0.1
+    intervals, borings = layer_cake_intervals()
+    result = build_voxel_model(
+        intervals,
+        boundary=SITE,
+        borings=borings,
+        crs=None,
+        cell_size=(15.0, 15.0, 0.5),
+        facies_classes=CLASSES,
+        variogram={"model": "exponential"},
+        kriging={"neighbors": 16, "max_per_boring": 6},
+        n_realizations=6,
+        seed=3,
+        crossval=False,
+    )
+    ds = result.dataset
+    assert ds.attrs["simulation_space"] == "normal score"
+    assert "log10_k_normal_score" in result.variograms
+    values = ds["realizations"].values[:, ds["mask"].values]
+    assert values.min() >= intervals["log10_k"].min() - 1e-12
+    assert values.max() <= intervals["log10_k"].max() + 1e-12
+    codes = classify_log10_k(values, facies_table(CLASSES))
+    shares = [(codes == i).mean() for i in range(3)]
+    assert shares == pytest.approx([0.4, 0.3, 0.3], abs=0.1)
+
+
+def test_normal_score_transform():
+    rng = np.random.default_rng(0)
+    data = rng.lognormal(size=999)
+    transform, scores = NormalScore.fit(data)
+    # scores are the standard normal quantiles of (r - 0.5) / n (Deutsch & Journel 1998,
+    # section V.1.6): symmetric about 0, variance just under 1
+    assert np.mean(scores) == pytest.approx(0.0, abs=1e-12)
+    assert np.var(scores) == pytest.approx(1.0, abs=0.01)
+    assert np.array_equal(np.argsort(scores), np.argsort(data))
+    assert np.allclose(transform.inverse(scores), data)  # round trip (construction)
+    # ties (a censored value repeated) are spread over distinct scores
+    tied = np.r_[np.full(50, -9.5), rng.normal(-5, 1, 50)]
+    _, tied_scores = NormalScore.fit(tied, seed=1)
+    assert len(np.unique(tied_scores[:50])) == 50
+    assert np.all(tied_scores[:50] < np.median(tied_scores))
+    # beyond the extreme scores the extreme data are held (no extrapolation)
+    assert transform.inverse(np.array([-9.0, 9.0])).tolist() == [data.min(), data.max()]
 
 
 def test_facies_probabilities_match_the_normal_law():
