@@ -396,21 +396,26 @@ def run_export(
                 tables.write_json(_variograms(model.variograms), out / "variograms.json")
             )
     if "vtk" in formats and ds is not None:
-        written.append(vtk.write_model_vti(ds, out / "model.vti"))
+        model_file = vtk.write_model_vti(ds, out / "model.vti")
+        written.append(model_file)
+        borings_file = None
         if logs is not None:
-            written.append(
-                vtk.write_borings_vtp(logs.samples, out / "borings.vtp", intervals=logs.intervals)
+            borings_file = vtk.write_borings_vtp(
+                logs.samples, out / "borings.vtp", intervals=logs.intervals
             )
-        written.append(
-            vtk.write_site_vtm(
-                ds,
-                out / "site.vtm",
-                samples=None if logs is None else logs.samples,
-                intervals=None if logs is None else logs.intervals,
-                zones=site.zones if site.zones is not None and len(site.zones) else None,
-                water_table=results.maps.get("wt_elev"),
-            )
+            written.append(borings_file)
+        vtm = vtk.write_site_vtm(
+            ds,
+            out / "site.vtm",
+            samples=None if logs is None else logs.samples,
+            intervals=None if logs is None else logs.intervals,
+            zones=site.zones if site.zones is not None and len(site.zones) else None,
+            water_table=results.maps.get("wt_elev"),
+            model_file=model_file,
+            borings_file=borings_file,
         )
+        written.append(vtm)
+        written += sorted((out / "site").glob("*"))
     if "geotiff" in formats and results.maps:
         written += geotiff.write_maps(results.maps, out / "maps", crs=crs)
     if "gpkg" in formats:

@@ -76,7 +76,9 @@ def test_model_vti_round_trip(tmp_path):
     }
     centres = image.cell_centers().points
     for name in ("log10_k", "k", "prob_storage"):
-        np.testing.assert_array_equal(image.cell_data[name], ds[name].values.ravel())
+        # Floats are stored as float32 (7 significant digits).
+        assert image.cell_data[name].dtype == np.float32
+        np.testing.assert_array_equal(image.cell_data[name], ds[name].values.ravel().astype("f4"))
     np.testing.assert_array_equal(
         image.cell_data["mask"], ds["mask"].values.ravel().astype(np.uint8)
     )
@@ -107,7 +109,9 @@ def test_vti_round_trip_property(tmp_path_factory, nx, ny, nz, dx, dz, x0, seed)
     ds = make_model(nx=nx, ny=ny, nz=nz, dx=dx, dy=dx, dz=dz, x0=x0, seed=seed)
     path = write_model_vti(ds, tmp_path_factory.mktemp("v") / "m.vti")
     image = pv.read(path)
-    np.testing.assert_array_equal(image.cell_data["log10_k"], ds["log10_k"].values.ravel())
+    np.testing.assert_array_equal(
+        image.cell_data["log10_k"], ds["log10_k"].values.ravel().astype("f4")
+    )
     first = image.cell_centers().points[0]
     assert first == pytest.approx((x0, 200.0, 10.0), abs=1e-6 * max(1.0, abs(x0)))
 
@@ -201,6 +205,31 @@ def test_water_table_surface_and_multiblock(tmp_path):
     blocks = pv.read(path)
     assert list(blocks.keys()) == ["model", "borings", "zones", "water_table"]
     np.testing.assert_array_equal(
-        blocks["model"].cell_data["log10_k"], ds["log10_k"].values.ravel()
+        blocks["model"].cell_data["log10_k"], ds["log10_k"].values.ravel().astype("f4")
     )
     assert blocks["water_table"].n_points == wt.size
+    assert sorted(p.name for p in (tmp_path / "site").iterdir()) == [
+        "borings.vtp",
+        "model.vti",
+        "water_table.vts",
+        "zones.vtp",
+    ]
+
+
+def test_site_vtm_refers_to_files_already_written(tmp_path):
+    ds = make_model()
+    model_file = write_model_vti(ds, tmp_path / "model.vti")
+    borings_file = write_borings_vtp(make_samples(), tmp_path / "borings.vtp")
+    path = write_site_vtm(
+        ds,
+        tmp_path / "site.vtm",
+        samples=make_samples(),
+        model_file=model_file,
+        borings_file=borings_file,
+    )
+    assert 'file="model.vti"' in path.read_text()
+    assert not (tmp_path / "site" / "model.vti").exists()
+    blocks = pv.read(path)
+    assert list(blocks.keys()) == ["model", "borings"]
+    assert blocks["borings"].n_points == 8
+    assert blocks["model"].n_cells == ds["mask"].size
