@@ -10,6 +10,7 @@ from geo3d.analysis.water_table import (
     depth_to_water_map,
     saturated_fraction,
     saturated_thickness,
+    water_table_gradient,
     water_table_map,
 )
 from geo3d.errors import WaterLevelError
@@ -54,6 +55,15 @@ def test_map_of_a_plane_and_its_gradient():
     assert out.attrs["gradient"] == pytest.approx(0.01)
     # head falls toward +x: flow toward the east, azimuth 90 degrees (geometry)
     assert out.attrs["flow_direction_deg"] == pytest.approx(90.0)
+    # central differences are exact for a plane (from memory): 0.01 everywhere, toward the east
+    gradient = water_table_gradient(model(), wt)
+    assert np.allclose(gradient["wt_gradient"], 0.01)
+    assert np.allclose(gradient["wt_flow_direction_deg"], 90.0)
+    tilted = water_table_gradient(model(), PlaneWaterTable(0.003, 0.004, 7.0))
+    # |(0.003, 0.004)| = 0.005 (3-4-5 triangle); down-gradient toward south-west:
+    # azimuth 180 + atan(3/4) = 216.87 degrees (geometry)
+    assert np.allclose(tilted["wt_gradient"], 0.005)
+    assert np.allclose(tilted["wt_flow_direction_deg"], 180 + np.degrees(np.arctan(0.75)))
     depth = depth_to_water_map(model(), wt)
     assert float(depth.sel(x=0.5, y=0.5)) == pytest.approx(3.005)
 

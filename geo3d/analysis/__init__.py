@@ -7,10 +7,17 @@ Every function takes a VoxelModel (an :class:`xarray.Dataset` from :mod:`geo3d.m
 from geo3d.analysis.injection import InjectionPlan, injection_plan, triangular_layout
 from geo3d.analysis.thickness import thickness_maps
 from geo3d.analysis.volumes import StoredMassInputs, zone_volumes
-from geo3d.analysis.water_table import saturated_thickness, water_table_map
+from geo3d.analysis.water_table import (
+    depth_to_water_map,
+    saturated_thickness,
+    water_table_gradient,
+    water_table_map,
+)
 
 __all__ = [
     "InjectionPlan",
+    "depth_to_water_map",
+    "water_table_gradient",
     "StoredMassInputs",
     "injection_plan",
     "saturated_thickness",
