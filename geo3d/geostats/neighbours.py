@@ -126,8 +126,9 @@ class NeighbourSearch:
         np.sqrt(box, out=box)
         order = np.argsort(box, axis=1, kind="stable")
         near = order[:, :n_near]
-        cand_d = np.full((m, n_near * cap), np.inf)
-        cand_i = np.full((m, n_near * cap), self.n, dtype=np.int64)
+        width = max(k, n_near * cap)
+        cand_d = np.full((m, width), np.inf)
+        cand_i = np.full((m, width), self.n, dtype=np.int64)
         for g, (tree, members, _, _) in enumerate(trees):
             rows, slot = np.nonzero(near == g)
             if len(rows) == 0:
