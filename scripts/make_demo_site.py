@@ -332,7 +332,9 @@ def simulate_log(
     # truth along the boring
     elev = plan.ground - depth
     surf = truth.surfaces.all(np.full(n, plan.x), np.full(n, plan.y))
-    surf["ground"] = np.full(n, plan.ground + 1.0)  # the collar is the surveyed ground
+    # every sample is below the surveyed collar: keep the rounding of the collar elevation from
+    # marking the first samples as above ground
+    surf["ground"] = np.full(n, plan.ground + 1.0)
     unit, log10_k, ec_sat = truth.evaluate(np.full(n, plan.x), np.full(n, plan.y), elev, surf)
     k = 10.0**log10_k
 
@@ -351,7 +353,8 @@ def simulate_log(
     # dissipation test pauses (durations decided below, before the time axis is final)
     durations = {}
     for i, d in zip(test_index, plan.test_depths, strict=True):
-        # time constant: longer in tighter soil (Hvorslev 1951 basic time lag ~ 1/K)
+        # time constant: longer in tighter soil (Hvorslev's basic time lag is ~ 1/K; softened
+        # here to ~ 1/sqrt(K) to keep records of a few minutes)
         t0 = float(np.clip(12.0 * np.sqrt(1e-4 / k[i]) * rng.lognormal(0.0, 0.3), 5.0, 600.0))
         # some records stop early (only where there is a clear excess pressure to watch)
         complete = bool(rng.random() > 0.3 or p_net[i] < 10.0)
