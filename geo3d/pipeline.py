@@ -600,23 +600,39 @@ def _summary_value(summary: dict[str, Any], key: str) -> float:
 
 @contextlib.contextmanager
 def _run_log(path: Path) -> Iterator[None]:
-    """Send geo3d's log records and Python warnings to ``path`` for the duration."""
+    """Copy geo3d's log records and every warning into ``path`` for the duration.
+
+    Warnings are still shown as before (the previous ``warnings.showwarning`` is called too).
+    """
     handler = logging.FileHandler(path, encoding="utf-8")
     handler.setLevel(logging.INFO)
     handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)-7s %(name)s: %(message)s"))
     package = logging.getLogger("geo3d")
-    warn_logger = logging.getLogger("py.warnings")
+    warn_logger = logging.getLogger("geo3d.warnings")
     old_level = package.level
     if package.getEffectiveLevel() > logging.INFO:
         package.setLevel(logging.INFO)
     package.addHandler(handler)
-    warn_logger.addHandler(handler)
-    logging.captureWarnings(True)
+    previous_show = warnings.showwarning
+
+    def show(message, category, filename, lineno, file=None, line=None):
+        record = warn_logger.makeRecord(
+            warn_logger.name,
+            logging.WARNING,
+            str(filename),
+            int(lineno),
+            "%s: %s",
+            (category.__name__, message),
+            None,
+        )
+        handler.handle(record)
+        previous_show(message, category, filename, lineno, file, line)
+
+    warnings.showwarning = show
     try:
         yield
     finally:
-        logging.captureWarnings(False)
-        warn_logger.removeHandler(handler)
+        warnings.showwarning = previous_show
         package.removeHandler(handler)
         package.setLevel(old_level)
         handler.close()

@@ -45,6 +45,8 @@ def test_logs_stage_writes_tables_in_output_units(mini_site, tmp_path):
     assert set(meta["timings_s"]) >= {"check", "logs", "export", "total"}
     log = (out / "run.log").read_text()
     assert "stage logs: done" in log
+    # Warnings of the run are kept in the log (the mini site has only 2 slug tests).
+    assert "Geo3dWarning" in log and "slug test" in log
     # No staging folder left beside the output.
     assert sorted(p.name for p in tmp_path.iterdir()) == ["mini_site", "out"]
 
