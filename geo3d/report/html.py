@@ -18,6 +18,7 @@ import logging
 import math
 import os
 import string
+import time
 import warnings
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass, field
@@ -1140,8 +1141,10 @@ _BUILDERS: dict[str, Callable[[_Context], str]] = {
 
 def _render_section(ctx: _Context, anchor: str) -> str:
     title = SECTION_TITLES[anchor]
+    started = time.perf_counter()
     try:
         body = _BUILDERS[anchor](ctx)
+        logger.debug("report section %r drawn in %.2f s", title, time.perf_counter() - started)
     except Exception as exc:  # one failed section must not cost the whole report
         logger.exception("report section %r failed", title)
         warnings.warn(
