@@ -279,8 +279,7 @@ class OrdinaryKriging:
         idx = np.take_along_axis(idx, order, axis=1)
         dist = np.take_along_axis(dist, order, axis=1)
         valid = idx < n
-        sets, inverse = np.unique(idx, axis=0, return_inverse=True)
-        inverse = inverse.reshape(-1)
+        sets, inverse = _unique_rows(idx)
         nd = 1 if self.drift == "none" else 2
         kk = k + nd
         # Right-hand sides.
@@ -421,6 +420,24 @@ class OrdinaryKriging:
             est[far] = np.nan
             var[far] = np.nan
         return est, var
+
+
+#: Fixed odd 64-bit multipliers hashing a sorted neighbour list (wrapping arithmetic).
+_HASH = np.random.default_rng(20261202).integers(1, 2**62, 4096, dtype=np.int64) | 1
+
+
+def _unique_rows(idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Distinct rows of ``idx`` and the row number of each, via a 64-bit hash (verified)."""
+    k = idx.shape[1]
+    if k <= len(_HASH):
+        with np.errstate(over="ignore"):
+            h = (idx.astype(np.int64) * _HASH[:k]).sum(axis=1)
+        _, first, inverse = np.unique(h, return_index=True, return_inverse=True)
+        sets = idx[first]
+        if np.array_equal(sets[inverse], idx):
+            return sets, inverse.reshape(-1)
+    sets, inverse = np.unique(idx, axis=0, return_inverse=True)
+    return sets, inverse.reshape(-1)
 
 
 def _check_duplicates(scaled: np.ndarray) -> None:

@@ -37,7 +37,7 @@ class NeighbourSearch:
     ) -> None:
         self.points = np.ascontiguousarray(points, dtype=float)
         self.n = len(self.points)
-        self.tree = cKDTree(self.points)
+        self.tree = cKDTree(self.points, leafsize=32)
         self.workers = workers
         if groups is not None:
             _, codes = np.unique(np.asarray(groups), return_inverse=True)
