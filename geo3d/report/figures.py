@@ -909,7 +909,8 @@ def crossval_figure(
         z = samples["std_error"].to_numpy(dtype=float)
         z = z[np.isfinite(z)]
         if z.size:
-            ax_h.hist(z, bins=30, density=True, color=OKABE_ITO["sky_blue"], edgecolor="white")
+            edges = np.linspace(min(-4.0, float(z.min())), max(4.0, float(z.max())), 41)
+            ax_h.hist(z, bins=edges, density=True, color=OKABE_ITO["sky_blue"], edgecolor="white")
             grid = np.linspace(-4, 4, 200)
             ax_h.plot(
                 grid,

@@ -736,7 +736,8 @@ def _section_calibration(ctx: _Context) -> str:
             xlabel = "log10 K from physics alone, mean over the screen (m/s)"
             caption = (
                 "Slug-test K against physics-only log-derived K (Hvorslev shape factor) "
-                "averaged over each test screen; dotted: 1:1; red: the fitted calibration."
+                "averaged over each test screen; dotted: 1:1"
+                + ("; red: the fitted calibration." if fitted else " (no calibration fitted).")
             )
         elif "k_predicted" in residuals:
             x, offset = residuals["k_predicted"].to_numpy(dtype=float), None
@@ -823,7 +824,9 @@ def _section_variograms(ctx: _Context) -> str:
             vertical_model=v_curve,
             horizontal_model=h_curves,
             variable=variable,
-            units=units.get(variable, "units\u00b2"),
+            units=units.get(
+                variable, "normal score\u00b2" if "normal_score" in variable else "units\u00b2"
+            ),
         )
         parts.append(
             _figure(
