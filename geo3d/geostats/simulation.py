@@ -91,7 +91,7 @@ class _Field:
         pts = np.asarray(points, dtype=float)
         axes = [np.unique(pts[:, a], return_inverse=True) for a in range(3)]
         n_lattice = int(np.prod([len(u) for u, _ in axes]))
-        if len(pts) >= _LATTICE_MIN and n_lattice <= 4 * len(pts):
+        if len(pts) >= _LATTICE_MIN and n_lattice <= 16 * len(pts):
             return self._on_lattice(axes)
         return self._on_points(pts)
 
