@@ -555,15 +555,48 @@ def test_report_tables_carry_the_numbers(full_report):
     _, text = full_report
     # P10/P50/P90 of the volumes and the cross-validation statistics reach the page
     for column in (
-        "volume_m3_p10",
-        "volume_m3_p50",
-        "volume_m3_p90",
+        "<th>P10</th>",
+        "<th>P50</th>",
+        "<th>P90</th>",
         "RMSE",
         "mean standardized error",
         "variance of standardized error",
     ):
         assert column in text
     assert "2,700" in text  # P90 transmissive volume of the synthetic zone, formatted
+    # injection: 3 points share the 3-4 m interval, 1 + 1.5 + 1.2 = 3.7 m3 (sum by hand)
+    assert "<td>3.70</td>" in text
+
+
+def test_volumes_are_laid_out_one_quantity_per_row():
+    from geo3d.report.html import _long_volumes
+
+    volumes = pd.DataFrame(
+        {
+            "zone": ["Z"],
+            "facies": ["storage"],
+            "area_m2": [50.0],
+            "pore_volume_m3": [10.0],
+            "pore_volume_m3_most_likely": [9.0],
+            "pore_volume_m3_p10": [8.0],
+            "pore_volume_m3_p50": [10.5],
+            "pore_volume_m3_p90": [12.0],
+        }
+    )
+    long = _long_volumes(volumes)
+    assert long.to_dict("records") == [
+        {
+            "zone": "Z",
+            "facies": "storage",
+            "area_m2": 50.0,
+            "quantity": "pore volume m3",
+            "estimate": 10.0,
+            "most likely": 9.0,
+            "P10": 8.0,
+            "P50": 10.5,
+            "P90": 12.0,
+        }
+    ]
 
 
 def _keep_borings(results, ids):

@@ -355,6 +355,8 @@ def site_map_figure(
                 fontsize=8,
                 fontweight="bold",
                 color="#6b2d55",
+                bbox={"boxstyle": "round,pad=0.2", "fc": "white", "ec": _ZONE_COLOR, "alpha": 0.9},
+                zorder=8,
             )
         handles.append(
             Patch(facecolor=_ZONE_COLOR, alpha=0.3, edgecolor=_ZONE_COLOR, label="treatment zone")
@@ -366,7 +368,9 @@ def site_map_figure(
             points[:, 1],
             linestyle="none",
             marker="+",
-            markersize=5,
+            markersize=3.5,
+            markeredgewidth=0.7,
+            alpha=0.7,
             color=OKABE_ITO["bluish_green"],
             zorder=4,
         )
@@ -583,7 +587,13 @@ def water_table_figure(
             zorder=5,
             label="dissipation test",
         )
-        for row in water_levels.itertuples(index=False):
+        label_at = water_levels
+        if "boring_id" in water_levels:
+            # one label per boring: the mean of its tests
+            label_at = water_levels.groupby("boring_id", as_index=False)[
+                ["x", "y", "wt_elev"]
+            ].mean()
+        for row in label_at.itertuples(index=False):
             ax.annotate(
                 f"{row.wt_elev:.2f}",
                 (row.x, row.y),

@@ -1057,17 +1057,46 @@ def _section_view3d(ctx: _Context) -> str:
     )
 
 
+def _long_volumes(volumes: pd.DataFrame) -> pd.DataFrame:
+    """One row per quantity with its estimate and P10/P50/P90 beside it."""
+    columns = list(volumes.columns)
+    bases = [
+        c
+        for c in columns
+        if all(f"{c}{p}" in volumes for p in _PERCENTILES)
+        and pd.api.types.is_numeric_dtype(volumes[c])
+    ]
+    if not bases:
+        return volumes
+    attached = {f"{b}{p}" for b in bases for p in (*_PERCENTILES, "_most_likely")}
+    ids = [c for c in columns if c not in bases and c not in attached]
+    rows = []
+    for _, row in volumes.iterrows():
+        for base in bases:
+            out = {c: row[c] for c in ids}
+            out["quantity"] = base.replace("_", " ")
+            out["estimate"] = row[base]
+            if f"{base}_most_likely" in volumes:
+                out["most likely"] = row[f"{base}_most_likely"]
+            for p in _PERCENTILES:
+                out[p[1:].upper()] = row[f"{base}{p}"]
+            rows.append(out)
+    return pd.DataFrame(rows)
+
+
 def _section_volumes(ctx: _Context) -> str:
     volumes = _frame(_get(ctx.results, "volumes"))
     if volumes is None or not len(volumes):
         return _note("No volumes were computed (no treatment zones were given).")
     text = _note(
-        "Volumes in m\u00b3 unless a column says otherwise. P10/P50/P90 are the 10th, 50th and "
-        "90th percentiles over the conditional simulations: 80% of the simulated outcomes "
-        "fall between P10 and P90."
+        "Volumes in m\u00b3 and areas in m\u00b2 (as the quantity names say). The estimate "
+        "comes from the kriged model; P10/P50/P90 are the 10th, 50th and 90th percentiles over "
+        "the conditional simulations: 80% of the simulated outcomes fall between P10 and P90."
     )
     return text + _table(
-        volumes, caption="Volumes per treatment zone, hydrofacies and depth range", max_rows=200
+        _long_volumes(volumes),
+        caption="Volumes per treatment zone, depth band and hydrofacies",
+        max_rows=300,
     )
 
 
@@ -1095,15 +1124,33 @@ def _schedule_table(schedule: pd.DataFrame) -> str:
     top = _first(schedule, ("top_depth", "top"))
     bottom = _first(schedule, ("bottom_depth", "bottom"))
     volume = _first(schedule, ("volume_m3", "volume"))
-    if top and bottom and volume:
-        grouped = schedule.groupby([top, bottom], as_index=False).agg(
-            points=(volume, "size"),
-            volume_per_point_m3=(volume, "mean"),
-            total_volume_m3=(volume, "sum"),
+    if not (top and bottom and volume):
+        return _table(schedule, caption="Injection schedule")
+    if "interval" in schedule:
+        key = schedule["interval"]
+    else:
+        # depths differ from point to point with the ground: group by 0.5 m of top depth
+        key = (schedule[top] / 0.5).round() * 0.5
+    point = "point_id" if "point_id" in schedule else volume
+    grouped = (
+        schedule.groupby(key, sort=True)
+        .agg(
+            top=(top, "mean"),
+            bottom=(bottom, "mean"),
+            points=(point, "nunique"),
+            per_point=(volume, "mean"),
+            total=(volume, "sum"),
         )
-        grouped = grouped.rename(columns={top: "top depth (m)", bottom: "bottom depth (m)"})
-        return _table(grouped, caption="Volume per depth interval (all points)")
-    return _table(schedule, caption="Injection schedule")
+        .reset_index(drop=True)
+    )
+    grouped.columns = [
+        "mean top depth (m)",
+        "mean bottom depth (m)",
+        "points",
+        "mean volume per point (m\u00b3)",
+        "total volume (m\u00b3)",
+    ]
+    return _table(grouped, caption="Injection volume per depth interval (all points)")
 
 
 def _section_methods(ctx: _Context) -> str:
