@@ -232,3 +232,26 @@ def test_capped_search_equals_brute_force(seed, k, cap, n_groups):
     # exact) gives the same neighbourhoods.
     _, idx2 = search._query_candidates(targets, k, cap, np.inf)
     np.testing.assert_array_equal(idx2, idx)
+
+
+def test_distributed_client_identical_to_serial():
+    # A dask.distributed scheduler (in-process here; an address works the same way).
+    distributed = pytest.importorskip("dask.distributed")
+    xyz, v, t = _data(n=120, m=300)
+    model = CovarianceModel("exponential", sill=1.0, nugget=0.1, range_h=40.0, range_v=4.0)
+    ok = OrdinaryKriging(model, neighbors=12, chunk_size=64).fit(xyz, v)
+    e0, v0 = ok.predict(t)
+    with distributed.Client(processes=False, n_workers=1, threads_per_worker=2) as client:
+        e1, v1 = ok.predict(t, scheduler=client)
+        e2, v2 = ok.predict(t, scheduler=client.scheduler.address)
+    np.testing.assert_array_equal(e0, e1)
+    np.testing.assert_array_equal(v0, v1)
+    np.testing.assert_array_equal(e0, e2)
+    np.testing.assert_array_equal(v0, v2)
+    import dask
+
+    with (
+        dask.config.set({"distributed.comm.timeouts.connect": "1s"}),
+        pytest.raises(ModelError, match="dask scheduler"),
+    ):
+        ok.predict(t, scheduler="tcp://127.0.0.1:1")
