@@ -255,3 +255,22 @@ def test_distributed_client_identical_to_serial():
         pytest.raises(ModelError, match="dask scheduler"),
     ):
         ok.predict(t, scheduler="tcp://127.0.0.1:1")
+
+
+def test_without_precomputed_covariance_same_result(monkeypatch):
+    # Large data sets build each kriging matrix from distances instead of gathering it from
+    # the sample covariance matrix: same systems, same results (to rounding).
+    import geo3d.geostats.kriging as kriging_module
+
+    xyz, v, t = _data(n=200, m=120)
+    groups = np.repeat(np.arange(20), 10)
+    model = CovarianceModel("spherical", sill=1.0, nugget=0.1, range_h=40.0, range_v=4.0)
+    opts = {"neighbors": 12, "max_per_group": 3, "max_distance": 0.8}
+    e0, v0 = OrdinaryKriging(model, **opts).fit(xyz, v, groups).predict(t)
+    monkeypatch.setattr(kriging_module, "_FULL_COV_MAX", 0)
+    ok = OrdinaryKriging(model, **opts).fit(xyz, v, groups)
+    assert ok._cov_full is None
+    e1, v1 = ok.predict(t)
+    np.testing.assert_allclose(e1, e0, rtol=1e-10, atol=1e-12)
+    np.testing.assert_allclose(v1, v0, rtol=1e-10, atol=1e-12)
+    assert np.isnan(e0).sum() == np.isnan(e1).sum()
