@@ -32,7 +32,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg  # noqa: E402
 from matplotlib.colors import BoundaryNorm, ListedColormap  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.lines import Line2D  # noqa: E402
-from matplotlib.patches import Patch  # noqa: E402
+from matplotlib.patches import Patch, Rectangle  # noqa: E402
 
 __all__ = [
     "OKABE_ITO",
@@ -1166,8 +1166,8 @@ def section_figure(
                         bottom=row.z_bottom,
                         width=width,
                         color=color,
-                        edgecolor="black",
-                        linewidth=0.3,
+                        edgecolor="none",
+                        linewidth=0,
                     )
                 else:
                     value = getattr(row, "log10_k", np.nan)
@@ -1177,12 +1177,26 @@ def section_figure(
                         bottom=row.z_bottom,
                         width=width,
                         color=mesh.cmap(mesh.norm(value)),
-                        edgecolor="black",
-                        linewidth=0.3,
+                        edgecolor="none",
+                        linewidth=0,
                     )
             tops = projected.groupby("boring_id").agg(
-                distance=("distance", "mean"), z_top=("z_top", "max")
+                distance=("distance", "mean"),
+                z_top=("z_top", "max"),
+                z_bottom=("z_bottom", "min"),
             )
+            for row in tops.itertuples():
+                ax.add_patch(
+                    Rectangle(
+                        (row.distance - width / 2, row.z_bottom),
+                        width,
+                        row.z_top - row.z_bottom,
+                        fill=False,
+                        edgecolor="black",
+                        linewidth=0.7,
+                        zorder=5,
+                    )
+                )
             for boring_id, row in tops.iterrows():
                 ax.annotate(
                     str(boring_id),

@@ -180,7 +180,7 @@ def render_model_view(
                 plotter.add_mesh(tube, color="#111111")
         plotter.set_scale(zscale=exaggeration)
         if shown:
-            plotter.add_legend(bcolor="white", face="rectangle", size=(0.3, 0.12), loc="upper left")
+            plotter.add_legend(bcolor="white", face="rectangle", size=(0.2, 0.08), loc="upper left")
         plotter.add_axes(color="black")
         plotter.camera_position = "iso"
         plotter.camera.azimuth = -25.0
