@@ -1,6 +1,7 @@
 """The run, stage and demo commands through click's test runner."""
 
 import json
+import tomllib
 from pathlib import Path
 
 import geopandas as gpd
@@ -56,6 +57,63 @@ def test_demo_site_missing_is_a_clear_error(monkeypatch, tmp_path):
     assert "demo site was not found" in result.output
 
 
+EXPECTED = {
+    "model.vti",
+    "borings.vtp",
+    "site.vtm",
+    "model.nc",
+    "site.gpkg",
+    "report.html",
+    "intervals.csv",
+    "samples.csv",
+    "volumes.csv",
+    "volumes.json",
+    "injection_plan.csv",
+    "crossval.csv",
+    "water_levels.csv",
+    "calibration.json",
+    "run.log",
+    "run.json",
+    "maps",
+}
+
+
+def check_outputs(out: Path, crs: pyproj.CRS, *, realizations: int) -> None:
+    """Every output is there and opens in its usual reader, in the site CRS."""
+    names = {p.name for p in out.iterdir()}
+    assert EXPECTED <= names, EXPECTED - names
+    image = pv.read(out / "model.vti")
+    assert "log10_k" in image.cell_data
+    blocks = pv.read(out / "site.vtm")
+    assert {"model", "borings", "water_table"} <= set(blocks.keys())
+    with xr.open_dataset(out / "model.nc") as ds:
+        assert pyproj.CRS.from_cf(ds["spatial_ref"].attrs).equals(crs)
+        assert ds.sizes["realization"] == realizations
+    tifs = sorted((out / "maps").glob("*.tif"))
+    assert {"transmissive_thickness.tif", "wt_elev.tif"} <= {t.name for t in tifs}
+    for tif in tifs:
+        with rasterio.open(tif) as src:
+            assert pyproj.CRS.from_wkt(src.crs.to_wkt()).equals(crs)
+    borings = gpd.read_file(out / "site.gpkg", layer="borings")
+    assert pyproj.CRS(borings.crs).equals(crs)
+    meta = json.loads((out / "run.json").read_text())
+    assert meta["stages"] == ["check", "logs", "model", "volumes", "export", "report"]
+    assert "<html" in (out / "report.html").read_text(encoding="utf-8")[:500].lower()
+    # Nothing left beside the output folder.
+    assert not list(out.parent.glob(f".{out.name}.*"))
+
+
+@pytest.mark.slow
+def test_run_end_to_end_on_the_mini_site(mini_site, tmp_path):
+    out = tmp_path / "out"
+    result = CliRunner().invoke(
+        main, ["run", str(mini_site), "-o", str(out), "--realizations", "2", "--no-progress"]
+    )
+    assert result.exit_code == 0, result.output
+    assert "Run complete." in result.output and "Headline volumes (m3)" in result.output
+    check_outputs(out, pyproj.CRS("EPSG:32631"), realizations=2)
+
+
 @pytest.mark.slow
 def test_demo_run_end_to_end(tmp_path):
     out = tmp_path / "demo-out"
@@ -64,40 +122,5 @@ def test_demo_run_end_to_end(tmp_path):
     )
     assert result.exit_code == 0, result.output
     assert "Headline volumes" in result.output
-    names = {p.name for p in out.iterdir()}
-    expected = {
-        "model.vti",
-        "borings.vtp",
-        "site.vtm",
-        "model.nc",
-        "site.gpkg",
-        "report.html",
-        "intervals.csv",
-        "volumes.csv",
-        "volumes.json",
-        "crossval.csv",
-        "water_levels.csv",
-        "calibration.json",
-        "run.log",
-        "run.json",
-        "maps",
-    }
-    assert expected <= names, expected - names
-    crs = pyproj.CRS.from_user_input(
-        __import__("tomllib").loads((DEMO / "site.toml").read_text())["site"]["crs"]
-    )
-    # Every output opens in its usual reader, in the site CRS.
-    image = pv.read(out / "model.vti")
-    assert "log10_k" in image.cell_data
-    with xr.open_dataset(out / "model.nc") as ds:
-        assert pyproj.CRS.from_cf(ds["spatial_ref"].attrs).equals(crs)
-        assert ds.sizes["realization"] == 2
-    tifs = sorted((out / "maps").glob("*.tif"))
-    assert tifs
-    for tif in tifs:
-        with rasterio.open(tif) as src:
-            assert pyproj.CRS.from_wkt(src.crs.to_wkt()).equals(crs)
-    borings = gpd.read_file(out / "site.gpkg", layer="borings")
-    assert pyproj.CRS(borings.crs).equals(crs)
-    meta = json.loads((out / "run.json").read_text())
-    assert meta["stages"] == ["check", "logs", "model", "volumes", "export", "report"]
+    crs = pyproj.CRS.from_user_input(tomllib.loads((DEMO / "site.toml").read_text())["site"]["crs"])
+    check_outputs(out, crs, realizations=2)
