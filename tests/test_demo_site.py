@@ -22,6 +22,8 @@ import numpy as np
 import pandas as pd
 import pytest
 import xarray as xr
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from shapely.geometry import Point
 
 from geo3d.logs.hydraulic import GAMMA_W, k_from_injection
@@ -125,6 +127,27 @@ def test_truth_grid_is_the_generator_truth(generator, truth):
     expected = np.digitize(log10_k[finite].astype(np.float32), [-7.0, -5.0])
     np.testing.assert_array_equal(codes[finite], expected)
     assert np.all(codes[~finite] == -1)
+
+
+@settings(max_examples=50, deadline=None)
+@given(
+    x=st.floats(min_value=-50.0, max_value=250.0),
+    y=st.floats(min_value=-50.0, max_value=200.0),
+)
+def test_water_table_plane_in_world_coordinates_matches_the_truth(generator, x, y):
+    plane = generator.water_table_plane_world()
+    world_x, world_y = x + generator.ORIGIN[0], y + generator.ORIGIN[1]
+    expected = plane["a"] * world_x + plane["b"] * world_y + plane["c"]
+    assert float(generator.water_table(x, y)) == pytest.approx(expected, abs=1e-6)
+
+
+def test_the_seed_changes_the_truth(generator):
+    x, y, z = np.array([10.0, 90.0]), np.array([20.0, 70.0]), np.array([95.0, 88.0])
+    first = generator.Truth(generator.DEFAULT_SEED).field(x, y, z)
+    again = generator.Truth(generator.DEFAULT_SEED).field(x, y, z)
+    other = generator.Truth(generator.DEFAULT_SEED + 1).field(x, y, z)
+    np.testing.assert_array_equal(first, again)
+    assert not np.allclose(first, other)
 
 
 # ---------------------------------------------------------------------------------------------
