@@ -410,7 +410,7 @@ def run_export(
             samples=None if logs is None else logs.samples,
             intervals=None if logs is None else logs.intervals,
             zones=site.zones if site.zones is not None and len(site.zones) else None,
-            water_table=results.maps.get("wt_elev"),
+            water_table=_water_table_map(results),
             model_file=model_file,
             borings_file=borings_file,
         )
@@ -431,6 +431,18 @@ def run_export(
             )
         )
     return written
+
+
+def _water_table_map(results: RunResults) -> xr.DataArray | None:
+    """Return the water-table map of the run, made from the logs' surface when needed."""
+    if "wt_elev" in results.maps:
+        return results.maps["wt_elev"]
+    surface = getattr(results.logs, "water_table", None)
+    if surface is None or results.dataset is None:
+        return None
+    from geo3d.analysis.water_table import water_table_map
+
+    return water_table_map(results.dataset, surface)
 
 
 def _calibration(logs: Any) -> dict[str, Any]:
