@@ -24,7 +24,6 @@ def test_planned_stages():
         planned_stages(["paint"])
 
 
-@pytest.mark.slow
 def test_logs_stage_writes_tables_in_output_units(mini_site, tmp_path):
     text = (mini_site / "site.toml").read_text()
     (mini_site / "site.toml").write_text(
@@ -102,7 +101,6 @@ def synthetic_model(site, logs):
     return SimpleNamespace(dataset=ds, variograms={}, crossval={})
 
 
-@pytest.mark.slow
 def test_volumes_and_export_on_a_layered_model(mini_site, tmp_path):
     from geo3d.pipeline import RunResults, run_check, run_export, run_logs, run_volumes
 
