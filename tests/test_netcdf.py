@@ -76,6 +76,15 @@ def test_round_trip(tmp_path):
         assert nc["log10_k"].filters()["zlib"] is True
 
 
+def test_facies_names_from_the_model_attributes():
+    ds = make_model()
+    ds["prob_storage_kriging"] = ds["prob_storage"]
+    assert to_cf(ds)["facies_code"].attrs["flag_meanings"] == "storage transitional transmissive"
+    ds.attrs["facies_names"] = ["clay", "silt", "sand"]
+    assert to_cf(ds)["facies_code"].attrs["flag_meanings"] == "clay silt sand"
+    assert to_cf(ds, facies_names=["a", "b", "c"])["facies_code"].attrs["flag_meanings"] == "a b c"
+
+
 def test_to_cf_does_not_modify_input_and_needs_crs():
     ds = make_model()
     cf = to_cf(ds)

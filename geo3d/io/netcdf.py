@@ -65,7 +65,14 @@ def _grid_mapping(crs: pyproj.CRS) -> xr.DataArray:
 def _facies_names(ds: xr.Dataset, names: Sequence[str] | None) -> list[str]:
     if names is not None:
         return [str(n) for n in names]
-    return [str(v)[len("prob_") :] for v in ds.data_vars if str(v).startswith("prob_")]
+    recorded = ds.attrs.get("facies_names")
+    if recorded is not None and not isinstance(recorded, str):
+        return [str(n) for n in np.ravel(recorded)]
+    return [
+        str(v)[len("prob_") :]
+        for v in ds.data_vars
+        if str(v).startswith("prob_") and not str(v).endswith("_kriging")
+    ]
 
 
 def _plain_attr(value):
@@ -90,8 +97,8 @@ def to_cf(
     crs
         Site CRS; defaults to ``ds.attrs["crs"]``.
     facies_names
-        Names of the facies codes 0, 1, ...; defaults to the order of the ``prob_<name>``
-        variables.
+        Names of the facies codes 0, 1, ...; defaults to ``ds.attrs["facies_names"]``, else
+        the order of the ``prob_<name>`` variables.
     title
         Dataset title.
 
