@@ -91,16 +91,20 @@ class NeighbourSearch:
 
     def _group_trees(self) -> list[tuple[cKDTree, np.ndarray, np.ndarray, np.ndarray]]:
         """Per group: its k-d tree, member indices (plus sentinel), bounding box low and high."""
-        if not hasattr(self, "_trees"):
+        # Built in a local list and published in one assignment: chunks run on several
+        # threads, and another thread must never see a half-built list.
+        trees = getattr(self, "_trees", None)
+        if trees is None:
             codes = self.groups[:-1]
-            self._trees = []
+            trees = []
             for g in range(int(codes.max()) + 1):
                 members = np.flatnonzero(codes == g)
                 pts = self.points[members]
-                self._trees.append(
+                trees.append(
                     (cKDTree(pts), np.append(members, self.n), pts.min(axis=0), pts.max(axis=0))
                 )
-        return self._trees
+            self._trees = trees
+        return trees
 
     def _query_by_group(
         self, targets: np.ndarray, k: int, cap: int, ub: float
