@@ -77,3 +77,19 @@ def test_output_folder_accepts_existing_empty_folder(tmp_path: Path):
     with output_folder(out) as stage:
         (stage / "a").write_text("a")
     assert (out / "a").exists()
+
+
+def test_outputs_get_the_usual_modes_not_private_ones(tmp_path):
+    # tempfile makes 0600 files and 0700 folders; finished outputs must be readable by others
+    # as any new file would be (mode 0666/0777 less the umask).
+    import os
+
+    mask = os.umask(0o022)
+    try:
+        with output_folder(tmp_path / "out") as staging:
+            with atomic_file(staging / "table.csv") as tmp:
+                tmp.write_text("a\n1\n")
+        assert (tmp_path / "out").stat().st_mode & 0o777 == 0o755
+        assert (tmp_path / "out" / "table.csv").stat().st_mode & 0o777 == 0o644
+    finally:
+        os.umask(mask)

@@ -57,6 +57,8 @@ def atomic_file(path: str | os.PathLike) -> Iterator[Path]:
     )
     os.close(fd)
     tmp = Path(name)
+    # mkstemp makes a private (0600) file; the output gets the usual mode for new files.
+    os.chmod(tmp, _default_mode(0o666))
     try:
         yield tmp
         if not tmp.exists():
@@ -71,6 +73,13 @@ def atomic_file(path: str | os.PathLike) -> Iterator[Path]:
             else:
                 tmp.unlink()
         raise
+
+
+def _default_mode(base: int) -> int:
+    """``base`` less the process umask: the mode ``open``/``mkdir`` would give a new path."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return base & ~mask
 
 
 @contextlib.contextmanager
@@ -110,6 +119,8 @@ def output_folder(path: str | os.PathLike, *, overwrite: bool = False) -> Iterat
             raise OutputExistsError(msg)
     final.parent.mkdir(parents=True, exist_ok=True)
     staging = Path(tempfile.mkdtemp(prefix=f".{final.name}.staging.", dir=final.parent))
+    # mkdtemp makes a private (0700) folder; the output gets the usual mode for new folders.
+    os.chmod(staging, _default_mode(0o777))
     try:
         yield staging
     except BaseException:

@@ -1312,7 +1312,5 @@ def write_report(results: Any, path: str | os.PathLike) -> Path:
     text = build_report(results, log_figure_dir=path.parent / "figures" / "logs")
     with atomic_file(path) as tmp:
         tmp.write_text(text, encoding="utf-8")
-        # a temporary file is private (0600); the report is meant to be shared and read
-        os.chmod(tmp, 0o644)
     logger.info("wrote report %s (%.1f MB)", path, path.stat().st_size / 1e6)
     return path

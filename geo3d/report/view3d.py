@@ -155,6 +155,11 @@ def render_model_view(
     shown = []
     plotter = None
     try:
+        # Off screen, VTK first tries an X display and logs a warning when there is none
+        # before it falls back to an off-screen context: keep that out of the user's terminal.
+        import vtk
+
+        vtk.vtkLogger.SetStderrVerbosity(vtk.vtkLogger.VERBOSITY_ERROR)
         plotter = pv.Plotter(off_screen=True, window_size=list(window_size))
         plotter.set_background("white")
         inside = image.threshold(value=(-0.5, last + 0.5), scalars="facies_code", preference="cell")
