@@ -76,7 +76,7 @@ def atomic_file(path: str | os.PathLike) -> Iterator[Path]:
 
 
 def _default_mode(base: int) -> int:
-    """``base`` less the process umask: the mode ``open``/``mkdir`` would give a new path."""
+    """Return ``base`` less the process umask, the mode a new file or folder would get."""
     mask = os.umask(0)
     os.umask(mask)
     return base & ~mask
