@@ -345,8 +345,9 @@ def run_export(
     out_dir
         Folder to write into (created when missing).
     formats
-        Subset of ``csv``, ``vtk``, ``geotiff``, ``gpkg``, ``netcdf``; default the site
-        file's ``[output] formats``.
+        Subset of ``csv`` (tables and the per-boring log figures ``figures/logs/*.png``),
+        ``vtk``, ``geotiff``, ``gpkg``, ``netcdf``; default the site file's
+        ``[output] formats``.
 
     Returns
     -------
@@ -383,6 +384,8 @@ def run_export(
             calibration=None if logs is None else _calibration(logs),
         )
         if logs is not None:
+            from geo3d.logs.process import write_log_figures
+
             written.append(
                 tables.write_csv(
                     logs.samples,
@@ -391,6 +394,8 @@ def run_export(
                     volume_unit=units.output_volume,
                 )
             )
+            # One figure per boring; the report embeds these instead of drawing them again.
+            written += write_log_figures(logs, out / "figures" / "logs")
         if model is not None and getattr(model, "variograms", None):
             written.append(
                 tables.write_json(_variograms(model.variograms), out / "variograms.json")

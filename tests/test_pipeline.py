@@ -35,6 +35,10 @@ def test_logs_stage_writes_tables_in_output_units(mini_site, tmp_path):
     assert {"intervals.csv", "samples.csv", "water_levels.csv", "calibration.json"} <= names
     assert {"run.log", "run.json"} <= names
     assert "model.vti" not in names and results.model is None
+    # One log figure per boring, each a PNG file (signature from the PNG specification).
+    figures = sorted((out / "figures" / "logs").glob("*.png"))
+    assert [p.stem for p in figures] == sorted(results.site.borings["boring_id"])
+    assert all(p.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" for p in figures)
     intervals = pd.read_csv(out / "intervals.csv")
     # Lengths in feet: 1 ft = 0.3048 m (NIST SP 811).
     expected = results.logs.intervals["top"].to_numpy() / 0.3048

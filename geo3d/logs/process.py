@@ -476,10 +476,7 @@ def write_logs_outputs(result: LogResults, out_dir: str | Path) -> list[Path]:
     list of Path
         The files written.
     """
-    import matplotlib.pyplot as plt
-
     from geo3d.io.atomic import atomic_file
-    from geo3d.report.log_figure import log_figure
 
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
@@ -506,9 +503,26 @@ def write_logs_outputs(result: LogResults, out_dir: str | Path) -> list[Path]:
     with atomic_file(out / "calibration.json") as tmp:
         tmp.write_text(json.dumps(_json_ready(calibration), indent=2))
     written.append(out / "calibration.json")
+    written += write_log_figures(result, out / "figures" / "logs")
+    return written
 
-    figures = out / "figures" / "logs"
+
+def write_log_figures(result: LogResults, folder: str | Path) -> list[Path]:
+    """Write one figure per boring, ``<folder>/<boring_id>.png``, each atomically.
+
+    Returns
+    -------
+    list of Path
+        The files written, in boring order.
+    """
+    import matplotlib.pyplot as plt
+
+    from geo3d.io.atomic import atomic_file
+    from geo3d.report.log_figure import log_figure
+
+    figures = Path(folder)
     figures.mkdir(parents=True, exist_ok=True)
+    written: list[Path] = []
     intervals_by = dict(tuple(result.intervals.groupby("boring_id", sort=True)))
     for boring_id, log in result.samples.groupby("boring_id", sort=True):
         empty = result.intervals.iloc[0:0]
