@@ -103,3 +103,20 @@ def test_sensor_checks_pass_fail_and_flag_the_whole_log():
     bad = checks.assign(tolerance=[1.0, -1.0, 1.0])
     with pytest.raises(TableFormatError, match="row 2, column 'tolerance'"):
         evaluate_sensor_checks(bad)
+
+
+def test_failed_flow_check_is_reported_in_ml_per_min():
+    # Checks are held in internal units (flow in m3/s); people read them in mL/min:
+    # 4.4e-6 m3/s = 264 mL/min, 5e-6 m3/s = 300 mL/min (SI prefixes).
+    checks = pd.DataFrame(
+        {
+            "boring_id": ["B1"],
+            "sensor": ["flow"],
+            "stage": ["post"],
+            "measured": [4.4e-6],
+            "expected": [5e-6],
+            "tolerance": [2.5e-7],
+        }
+    )
+    with pytest.warns(Geo3dWarning, match=r"measured 264 mL/min, expected 300 \+- 15 mL/min"):
+        evaluate_sensor_checks(checks)

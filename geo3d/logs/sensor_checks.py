@@ -15,12 +15,16 @@ import numpy as np
 import pandas as pd
 
 from geo3d.errors import Geo3dWarning, TableFormatError
+from geo3d.units import from_internal
 
 __all__ = ["evaluate_sensor_checks", "sensor_check_flags"]
 
 logger = logging.getLogger(__name__)
 
 _COLUMNS = ["boring_id", "sensor", "stage", "measured", "expected", "tolerance"]
+
+#: Unit in which each sensor's check is shown to people (values are held in internal units).
+_SHOWN_IN = {"pressure": ("kPa", "pressure"), "flow": ("mL/min", "flow"), "ec": ("mS/m", "ec")}
 
 
 def evaluate_sensor_checks(checks: pd.DataFrame | None) -> pd.DataFrame:
@@ -56,10 +60,16 @@ def evaluate_sensor_checks(checks: pd.DataFrame | None) -> pd.DataFrame:
     out["deviation"] = out["measured"].astype(float) - out["expected"].astype(float)
     out["passed"] = np.abs(out["deviation"].to_numpy()) <= tolerance
     for row in out.loc[~out["passed"]].itertuples(index=False):
+        unit, quantity = _SHOWN_IN.get(str(row.sensor), ("", ""))
+        measured, expected, tolerance = (
+            from_internal(float(v), unit, quantity) if unit else float(v)
+            for v in (row.measured, row.expected, row.tolerance)
+        )
+        suffix = f" {unit}" if unit else ""
         warnings.warn(
             f"boring {row.boring_id}: {row.stage}-log {row.sensor} check failed (measured "
-            f"{row.measured:g}, expected {row.expected:g} +- {row.tolerance:g}); its log is "
-            "flagged sensor_check_failed",
+            f"{measured:.4g}{suffix}, expected {expected:.4g} +- {tolerance:.4g}{suffix}); its "
+            "log is flagged sensor_check_failed",
             Geo3dWarning,
             stacklevel=2,
         )
