@@ -537,22 +537,24 @@ def build_voxel_model(
 
     variograms: dict[str, Any] = {}
     crossvals: dict[str, Any] = {}
-    k_est, k_var, k_fit, k_cv, k_coords, k_values, k_groups = _krige(
-        table,
-        "log10_k",
-        targets,
-        variogram=variogram_options,
-        kriging=kriging_options,
-        scheduler=scheduler,
-        crossval=crossval,
+    logk_estimate, logk_variance, logk_fit, logk_crossval, logk_coords, logk_values, logk_groups = (
+        _krige(
+            table,
+            "log10_k",
+            targets,
+            variogram=variogram_options,
+            kriging=kriging_options,
+            scheduler=scheduler,
+            crossval=crossval,
+        )
     )
-    variograms["log10_k"] = k_fit
-    if k_cv is not None:
-        crossvals["log10_k"] = k_cv
+    variograms["log10_k"] = logk_fit
+    if logk_crossval is not None:
+        crossvals["log10_k"] = logk_crossval
     step("log10_k", 0.4)
     dims = ("z", "y", "x")
-    ds["log10_k"] = (dims, field_of(k_est))
-    ds["log10_k_var"] = (dims, field_of(k_var))
+    ds["log10_k"] = (dims, field_of(logk_estimate))
+    ds["log10_k_var"] = (dims, field_of(logk_variance))
     ds["k"] = 10.0 ** ds["log10_k"]
     ds["log10_k"].attrs.update(units="log10(m/s)", long_name="kriged log10 hydraulic conductivity")
     ds["log10_k_var"].attrs.update(units="log10(m/s)^2", long_name="kriging variance of log10 K")
@@ -596,24 +598,24 @@ def build_voxel_model(
         from geo3d.geostats.simulation import conditional_simulation
         from geo3d.geostats.variogram import fit_anisotropic
 
-        sim_values, sim_model = k_values, k_fit.model
+        sim_values, sim_model = logk_values, logk_fit.model
         transform = None
         if normal_score:
-            transform, sim_values = NormalScore.fit(k_values, seed=seed)
+            transform, sim_values = NormalScore.fit(logk_values, seed=seed)
             detrend = "linear_z" if kriging_options.get("drift") == "linear_z" else "none"
             score_fit = fit_anisotropic(
-                k_coords, sim_values, k_groups, detrend=detrend, **variogram_options
+                logk_coords, sim_values, logk_groups, detrend=detrend, **variogram_options
             )
             variograms["log10_k_normal_score"] = score_fit
             sim_model = score_fit.model
         sims = conditional_simulation(
-            k_coords,
+            logk_coords,
             sim_values,
             targets,
             model=sim_model,
             n_realizations=n_realizations,
             seed=seed,
-            groups=k_groups,
+            groups=logk_groups,
             scheduler=scheduler,
             **kriging_options,
         )
@@ -663,7 +665,7 @@ def build_voxel_model(
     ds.attrs["base"] = base_elev
     ds.attrs["n_realizations"] = n_realizations
     ds.attrs["seed"] = int(seed)
-    ds.attrs["variogram_log10_k"] = repr(k_fit.model)
+    ds.attrs["variogram_log10_k"] = repr(logk_fit.model)
     ds.attrs["simulation_space"] = "normal score" if normal_score else "log10_k"
     if "log10_k_normal_score" in variograms:
         ds.attrs["variogram_log10_k_normal_score"] = repr(variograms["log10_k_normal_score"].model)
