@@ -1,13 +1,14 @@
 """Tests of injection plans: design volume, triangular layout coverage and per-point schedules."""
 
 import math
-from dataclasses import dataclass
 
 import numpy as np
 import pytest
 import shapely
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from layer_cake import CLASSES
+from layer_cake import layer_cake as _layer_cake
 from scipy.spatial import cKDTree
 
 from geo3d.analysis.injection import (
@@ -17,51 +18,12 @@ from geo3d.analysis.injection import (
     triangular_layout,
 )
 from geo3d.errors import GeometryError, ModelError
-from geo3d.grid import make_grid
-from geo3d.model import classify_log10_k, facies_probabilities, facies_table
 
-
-@dataclass
-class Facies:
-    name: str
-    log10_k_max: float
-    porosity: float
-    effective_porosity: float
-
-
-# default classes of the site template (common practice; porosities after Freeze & Cherry 1979
-# Table 2.4)
-CLASSES = [
-    Facies("storage", -7.0, 0.45, 0.05),
-    Facies("transitional", -5.0, 0.38, 0.15),
-    Facies("transmissive", 0.0, 0.32, 0.25),
-]
-# flat layers (top depth, bottom depth, log10 K); ground at 10 m, base at 0 m
-LAYERS = [(0, 3, -6.0), (3, 5, -8.0), (5, 8, -4.0), (8, 10, -8.0)]
 SQRT3 = math.sqrt(3.0)
 
 
 def layer_cake(realizations=None):
-    ds = make_grid(shapely.box(0, 0, 20, 12), cell_size=(0.5, 0.5, 0.5), top=10.0, base=0.0)
-    shape = tuple(ds.sizes[d] for d in "zyx")
-    ds["ground_elev"] = (("y", "x"), np.full(shape[1:], 10.0))
-    depth = 10.0 - ds["z"].values
-    column = np.full(depth.shape, np.nan)
-    for top, bottom, value in LAYERS:
-        column[(depth > top) & (depth < bottom)] = value
-    field = np.broadcast_to(column[:, None, None], shape).copy()
-    table = facies_table(CLASSES)
-    ds["mask"] = (("z", "y", "x"), np.ones(shape, bool))
-    ds["log10_k"] = (("z", "y", "x"), field)
-    ds["facies_code"] = (("z", "y", "x"), classify_log10_k(field, table))
-    prob = facies_probabilities(field, np.zeros(shape), table)
-    for i, name in enumerate(table.names):
-        ds[f"prob_{name}"] = (("z", "y", "x"), prob[i])
-    ds.attrs.update(table.attrs())
-    ds.attrs["crs"] = "EPSG:32633"
-    if realizations is not None:
-        ds["realizations"] = (("realization", "z", "y", "x"), realizations)
-    return ds
+    return _layer_cake(size=(20.0, 12.0), cell=(0.5, 0.5, 0.5), realizations=realizations)
 
 
 def max_gap(polygon, points, n=120):

@@ -1,60 +1,16 @@
 """Tests of the thickness maps against a layer-cake site whose answers are known exactly."""
 
-from dataclasses import dataclass
-
 import numpy as np
 import pytest
 import shapely
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from layer_cake import CLASSES, layer_cake
 
 from geo3d.analysis.thickness import column_runs, nan_percentiles, thickness_maps
 from geo3d.errors import ModelError
 from geo3d.grid import make_grid
-from geo3d.model import classify_log10_k, facies_probabilities, facies_table
-
-
-@dataclass
-class Facies:
-    name: str
-    log10_k_max: float
-    porosity: float
-    effective_porosity: float
-
-
-# default classes of the site template (storage < -7 <= transitional < -5 <= transmissive,
-# common practice; porosities after Freeze & Cherry 1979 Table 2.4)
-CLASSES = [
-    Facies("storage", -7.0, 0.45, 0.05),
-    Facies("transitional", -5.0, 0.38, 0.15),
-    Facies("transmissive", 0.0, 0.32, 0.25),
-]
-# layers as (top depth, bottom depth, log10 K): flat, ground at 10 m, base at 0 m
-LAYERS = [(0, 3, -6.0), (3, 5, -8.0), (5, 8, -4.0), (8, 10, -8.0)]
-
-
-def layer_cake(cell=(1.0, 1.0, 0.5), realizations=None):
-    ds = make_grid(shapely.box(0, 0, 20, 10), cell_size=cell, top=10.0, base=0.0)
-    ground = np.full((ds.sizes["y"], ds.sizes["x"]), 10.0)
-    ds["ground_elev"] = (("y", "x"), ground)
-    depth = 10.0 - ds["z"].values
-    log10_k = np.full(depth.shape, np.nan)
-    for top, bottom, value in LAYERS:
-        log10_k[(depth > top) & (depth < bottom)] = value
-    field = np.broadcast_to(log10_k[:, None, None], tuple(ds.sizes[d] for d in "zyx")).copy()
-    table = facies_table(CLASSES)
-    ds["mask"] = (("z", "y", "x"), np.ones(field.shape, bool))
-    ds["log10_k"] = (("z", "y", "x"), field)
-    ds["log10_k_var"] = (("z", "y", "x"), np.zeros(field.shape))
-    ds["k"] = 10.0 ** ds["log10_k"]
-    ds["facies_code"] = (("z", "y", "x"), classify_log10_k(field, table))
-    prob = facies_probabilities(field, np.zeros(field.shape), table)
-    for i, name in enumerate(table.names):
-        ds[f"prob_{name}"] = (("z", "y", "x"), prob[i])
-    ds.attrs.update(table.attrs())
-    if realizations is not None:
-        ds["realizations"] = (("realization", "z", "y", "x"), realizations)
-    return ds
+from geo3d.model import classify_log10_k, facies_table
 
 
 def test_layer_cake_thickness_maps_exact():

@@ -1,7 +1,6 @@
 """Tests of zone volumes, interface areas and stored mass against hand-computed answers."""
 
 import math
-from dataclasses import dataclass
 
 import geopandas as gpd
 import numpy as np
@@ -9,6 +8,7 @@ import pytest
 import shapely
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from layer_cake import CLASSES, layer_cake
 
 from geo3d.analysis.volumes import (
     Region,
@@ -20,47 +20,6 @@ from geo3d.analysis.volumes import (
 from geo3d.errors import GeometryError
 from geo3d.grid import make_grid
 from geo3d.model import classify_log10_k, facies_probabilities, facies_table
-
-
-@dataclass
-class Facies:
-    name: str
-    log10_k_max: float
-    porosity: float
-    effective_porosity: float
-
-
-# default classes of the site template (common practice; porosities after Freeze & Cherry 1979
-# Table 2.4)
-CLASSES = [
-    Facies("storage", -7.0, 0.45, 0.05),
-    Facies("transitional", -5.0, 0.38, 0.15),
-    Facies("transmissive", 0.0, 0.32, 0.25),
-]
-# flat layers (top depth, bottom depth, log10 K); ground at 10 m, base at 0 m, site 20 x 10 m
-LAYERS = [(0, 3, -6.0), (3, 5, -8.0), (5, 8, -4.0), (8, 10, -8.0)]
-
-
-def layer_cake(cell=(1.0, 1.0, 0.5), realizations=None, ground=10.0):
-    ds = make_grid(shapely.box(0, 0, 20, 10), cell_size=cell, top=ground, base=0.0)
-    shape = tuple(ds.sizes[d] for d in "zyx")
-    ds["ground_elev"] = (("y", "x"), np.full(shape[1:], ground))
-    depth = ground - ds["z"].values
-    column = np.full(depth.shape, np.nan)
-    for top, bottom, value in LAYERS:
-        column[(depth > top) & (depth < bottom)] = value
-    field = np.broadcast_to(column[:, None, None], shape).copy()
-    table = facies_table(CLASSES)
-    ds["mask"] = (("z", "y", "x"), np.isfinite(field))
-    ds["log10_k"] = (("z", "y", "x"), field)
-    ds["facies_code"] = (("z", "y", "x"), classify_log10_k(field, table))
-    prob = facies_probabilities(field, np.zeros(shape), table)
-    for i, name in enumerate(table.names):
-        ds[f"prob_{name}"] = (("z", "y", "x"), prob[i])
-    ds.attrs.update(table.attrs())
-    if realizations is not None:
-        ds["realizations"] = (("realization", "z", "y", "x"), realizations)
-    return ds
 
 
 def rows(table, zone="site", band="all"):
