@@ -1,9 +1,10 @@
 """Build the invented geo3d demo site from a seeded synthetic truth.
 
 The site ("Quillbrook Yard", an invented place) is a made-up former depot with a silt cap over
-a connected sand-and-gravel aquifer, a silty-clay storage unit with thin sand lenses, and a
-lower sand.  The script draws a random but reproducible "true" subsurface (unit surfaces and a
-3D anisotropic log10 K field from gstools), a planar water table, and then forward-models what
+a connected sand-and-gravel aquifer, a silty-sand transitional unit, a silty-clay storage unit
+with thin sand lenses, and a lower sand.  The script draws a random but reproducible "true"
+subsurface (unit surfaces and a 3D anisotropic log10 K field from gstools), a planar water
+table, and then forward-models what
 a direct-push injection logging crew would have recorded: injection logs (pressure, flow and
 bulk EC every ~1.5 cm at a 2 cm/s push), dissipation tests, slug tests and sensor checks.  The
 truth is saved under ``<out>/truth/`` so that tests can measure how close geo3d gets.
@@ -20,7 +21,8 @@ water table + net injection pressure ``P_net = Q * gamma_w / (F * K)`` with F th
 shape factor of the probe screen.  Where the needed pressure would exceed the sensor's full scale
 the pump is held near the limit and the flow drops in proportion (steady Darcy flow is linear in
 pressure).  Bulk EC ranges per material follow Palacky (1987) (from memory): sand and gravel
-about 1-20 mS/m, silt 10-50 mS/m, clay 30-300 mS/m.
+about 1-20 mS/m, silt 10-50 mS/m, clay 30-300 mS/m; a silty sand lies between sand and silt.
+K ranges follow Freeze & Cherry (1979) Table 2.2 (from memory): silty sand 1e-7 to 1e-3 m/s.
 
 References
 ----------
@@ -84,9 +86,17 @@ UNITS = [
     {"code": 2, "name": "silty_clay", "log10_k_mean": -7.6, "log10_k_sd": 0.45, "ec": 95.0},
     {"code": 3, "name": "sand_lens", "log10_k_mean": -5.0, "log10_k_sd": 0.30, "ec": 14.0},
     {"code": 4, "name": "lower_sand", "log10_k_mean": -4.4, "log10_k_sd": 0.30, "ec": 9.0},
+    # between the sand and gravel and the silty clay (code 5 so that the older codes keep their
+    # meaning); its K stays inside the transitional class (1e-7..1e-5 m/s) and above the
+    # probe's resolution limit (~4e-7 m/s at the pressure limit), so the logs resolve it
+    {"code": 5, "name": "silty_sand", "log10_k_mean": -5.8, "log10_k_sd": 0.25, "ec": 30.0},
 ]
 LENS_THRESHOLD = 1.5  # the random field above this, inside the silty clay, is a sand lens
 EC_K_SLOPE = 0.25  # within a unit, EC * 10**(-slope * field): finer = more conductive
+# ... with the field clipped to +-EC_FIELD_LIMIT for EC, so that a unit's EC stays within a
+# factor 10**0.5 of its base (sand and gravel 2-22 mS/m, near Palacky's 1-20 mS/m): the
+# tightest tail of a sand has the K of a silty sand but not a clay's EC
+EC_FIELD_LIMIT = 2.0
 
 # Horizontal correlation: major axis azimuth (degrees clockwise from north) and gstools length
 # scales (exponential model, correlation exp(-h / len_scale)).
@@ -121,6 +131,7 @@ class Surfaces:
                 ("cap", 12, 55.0),
                 ("sand", 13, 65.0),
                 ("clay", 14, 75.0),
+                ("silty_sand", 15, 60.0),
             ]
         }
 
@@ -137,11 +148,14 @@ class Surfaces:
         cap_thickness = np.clip(2.3 + 0.45 * self._field("cap", x, y), 1.2, 3.6)
         cap_base = ground - cap_thickness
         sand_base = np.minimum(91.6 + 0.9 * self._field("sand", x, y), cap_base - 2.5)
-        clay_base = np.minimum(84.2 + 0.8 * self._field("clay", x, y), sand_base - 3.5)
+        silty_sand_thickness = np.clip(2.3 + 0.35 * self._field("silty_sand", x, y), 1.5, 3.0)
+        silty_sand_base = sand_base - silty_sand_thickness
+        clay_base = np.minimum(84.2 + 0.8 * self._field("clay", x, y), silty_sand_base - 3.5)
         return {
             "ground": ground,
             "cap_base": cap_base,
             "sand_base": sand_base,
+            "silty_sand_base": silty_sand_base,
             "clay_base": clay_base,
             "water_table": water_table(x, y),
         }
@@ -196,13 +210,15 @@ class Truth:
         unit = np.full(z.shape, 4, dtype=np.int8)
         unit[z > surf["clay_base"]] = 2
         unit[(unit == 2) & (r > LENS_THRESHOLD)] = 3
+        unit[z > surf["silty_sand_base"]] = 5
         unit[z > surf["sand_base"]] = 1
         unit[z > surf["cap_base"]] = 0
         mean = np.array([u["log10_k_mean"] for u in UNITS])[unit]
         sd = np.array([u["log10_k_sd"] for u in UNITS])[unit]
         centred = np.where(unit == 3, r - (LENS_THRESHOLD + 0.5), r)
         log10_k = mean + sd * centred
-        ec = np.array([u["ec"] for u in UNITS])[unit] * 10.0 ** (-EC_K_SLOPE * centred)
+        ec_field = np.clip(centred, -EC_FIELD_LIMIT, EC_FIELD_LIMIT)
+        ec = np.array([u["ec"] for u in UNITS])[unit] * 10.0 ** (-EC_K_SLOPE * ec_field)
         above_ground = z > surf["ground"]
         unit[above_ground] = -1
         log10_k[above_ground] = np.nan
@@ -484,7 +500,7 @@ def _slug_tests(
     # (majority unit or "any", lowest and highest mean K): a spread of K for the calibration
     targets = [
         ("sand_gravel", 1e-4, 3e-4),
-        ("any", 1e-6, 4e-6),
+        ("silty_sand", 8e-7, 4e-6),
         ("lower_sand", 1e-5, 1e-4),
         ("any", 3e-6, 1.5e-5),
         ("sand_gravel", 3e-5, 1e-4),
@@ -756,6 +772,7 @@ def _truth_grid(truth: Truth, x: np.ndarray, y: np.ndarray, z: np.ndarray) -> xr
         ("ground_elev", "ground"),
         ("cap_base_elev", "cap_base"),
         ("sand_base_elev", "sand_base"),
+        ("silty_sand_base_elev", "silty_sand_base"),
         ("clay_base_elev", "clay_base"),
         ("wt_elev", "water_table"),
     ]:
@@ -782,7 +799,8 @@ def _truth_grid(truth: Truth, x: np.ndarray, y: np.ndarray, z: np.ndarray) -> xr
     for name in ds.data_vars:
         if name != "spatial_ref":
             ds[name].attrs["grid_mapping"] = "spatial_ref"
-    for name in ["ground_elev", "cap_base_elev", "sand_base_elev", "clay_base_elev", "wt_elev"]:
+    surfaces = ["ground_elev", "cap_base_elev", "sand_base_elev", "silty_sand_base_elev"]
+    for name in [*surfaces, "clay_base_elev", "wt_elev"]:
         ds[name].attrs.update({"units": "m", "long_name": f"true {name.replace('_', ' ')}"})
     ds.attrs = {
         "title": "Synthetic truth of the invented geo3d demo site",
@@ -900,6 +918,7 @@ def build_demo_site(out: Path, *, seed: int = DEFAULT_SEED, write_truth_grid: bo
             "set_flow_ml_min": plan.set_flow,
             "cap_base_depth": round(float(plan.ground - surf["cap_base"][i]), 3),
             "sand_base_depth": round(float(plan.ground - surf["sand_base"][i]), 3),
+            "silty_sand_base_depth": round(float(plan.ground - surf["silty_sand_base"][i]), 3),
             "clay_base_depth": round(float(plan.ground - surf["clay_base"][i]), 3),
             "log_file": f"logs/{plan.boring_id}.{'las' if i == las_idx else 'csv'}",
             **tboring,
@@ -1008,10 +1027,11 @@ def build_demo_site(out: Path, *, seed: int = DEFAULT_SEED, write_truth_grid: bo
             "semi_diurnal_amplitude": 0.12,
         },
         "facies": ranges,
-        "ec_model": "saturated bulk EC = ec_saturated_base * 10**(-0.25 * (log10_k - "
-        "log10_k_mean) / log10_k_sd) of the unit; above the water table times a moisture factor "
-        "0.55 + 0.45 * vadose_fraction(depth) (see the generator); plus the ionic anomaly; "
-        "sensor noise 3 % + 0.3 mS/m",
+        "ec_model": f"saturated bulk EC = ec_saturated_base * 10**(-{EC_K_SLOPE} * clip(r, "
+        f"-{EC_FIELD_LIMIT}, {EC_FIELD_LIMIT})) of the unit, r = (log10_k - log10_k_mean) / "
+        "log10_k_sd (in a sand lens r = field - lens_threshold - 0.5); above the water table "
+        "times a moisture factor 0.55 + 0.45 * vadose_fraction(depth) (see the generator); plus "
+        "the ionic anomaly; sensor noise 3 % + 0.3 mS/m",
         "hydrofacies": {
             "codes": {"storage": 0, "transitional": 1, "transmissive": 2},
             "thresholds_log10_k": [-7.0, -5.0],

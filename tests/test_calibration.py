@@ -6,7 +6,7 @@ import pytest
 
 from geo3d.errors import Geo3dWarning
 from geo3d.logs.calibration import calibrate, physics_coefficients, screen_samples
-from geo3d.logs.hydraulic import k_from_injection, shape_factor
+from geo3d.logs.hydraulic import GAMMA_W, k_from_injection, shape_factor
 
 F_SPHERE = shape_factor("sphere", diameter=0.02)
 
@@ -124,3 +124,19 @@ def test_an_undetermined_slope_is_held_at_the_physical_value():
     assert not free.slope_fixed and abs(free.b - 1.0) <= 2 * free.se_b
     with pytest.raises(ValueError, match="slope"):
         calibrate(samples, slug, shape_factor_m=F_SPHERE, slope="maybe")
+
+
+def test_residuals_carry_the_physics_only_screen_mean():
+    # k_physics is the arithmetic mean over the screen of Hvorslev K = Q gamma_w / (F P),
+    # i.e. 10**(log10(gamma_w / F) + log10(Q/P)) (Hvorslev 1951), over the samples the fit used.
+    samples, slug = _synthetic(3.2, 0.85)  # invented a, b
+    cal = calibrate(samples, slug, shape_factor_m=F_SPHERE)
+    a_phys = np.log10(GAMMA_W / F_SPHERE)
+    for row, test in zip(cal.residuals, slug.itertuples(index=False), strict=True):
+        inside = (
+            (samples["boring_id"] == test.boring_id)
+            & (samples["depth"] >= test.top_depth)
+            & (samples["depth"] <= test.bottom_depth)
+        )
+        expected = np.mean(10 ** (a_phys + np.log10(samples.loc[inside, "q_over_p"])))
+        assert row["k_physics"] == pytest.approx(expected, rel=1e-9)

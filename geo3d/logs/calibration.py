@@ -144,9 +144,13 @@ def _screen_prediction(groups: list[np.ndarray], a: float, b: float) -> np.ndarr
     )
 
 
-def _residual_table(slug_tests, groups, predicted) -> list[dict]:
+def _residual_table(slug_tests, groups, predicted, *, physics: tuple[float, float]) -> list[dict]:
+    # k_physics: the same screen mean with the physical coefficients (b = 1), for plotting
+    physics_predicted = _screen_prediction(groups, *physics) if groups else []
     rows = []
-    for test, x, pred in zip(slug_tests.itertuples(index=False), groups, predicted, strict=True):
+    for test, x, pred, phys in zip(
+        slug_tests.itertuples(index=False), groups, predicted, physics_predicted, strict=True
+    ):
         rows.append(
             {
                 "boring_id": str(test.boring_id),
@@ -154,6 +158,7 @@ def _residual_table(slug_tests, groups, predicted) -> list[dict]:
                 "bottom_depth": float(test.bottom_depth),
                 "k_slug": float(test.k),
                 "k_predicted": float(10.0**pred),
+                "k_physics": float(10.0**phys),
                 "log10_residual": float(np.log10(test.k) - pred),
                 "n_samples": int(x.size),
             }
@@ -249,7 +254,7 @@ def calibrate(
             b0,
             n_tests=len(groups),
             r2=_r2(observed, predicted),
-            residuals=_residual_table(tests, groups, predicted),
+            residuals=_residual_table(tests, groups, predicted, physics=(a0, b0)),
         )
 
     if slope not in ("auto", "free", "fixed"):
@@ -290,7 +295,7 @@ def calibrate(
             b0,
             n_tests=len(groups),
             r2=_r2(observed, predicted),
-            residuals=_residual_table(tests, groups, predicted),
+            residuals=_residual_table(tests, groups, predicted, physics=(a0, b0)),
         )
     predicted = _screen_prediction(groups, a, b)
     result = Calibration(
@@ -301,7 +306,7 @@ def calibrate(
         float(se[1]),
         len(groups),
         _r2(observed, predicted),
-        _residual_table(tests, groups, predicted),
+        _residual_table(tests, groups, predicted, physics=(a0, b0)),
         slope_fixed=fixed,
     )
     logger.info(

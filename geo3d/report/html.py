@@ -688,6 +688,9 @@ def _physics_screen_k(ctx: _Context, residuals: pd.DataFrame) -> tuple[np.ndarra
             config.shape, length=config.screen_length, diameter=config.screen_diameter
         )
     a_phys, _ = physics_coefficients(factor)
+    if "k_physics" in residuals:
+        # the calibration's own screen means, over exactly the samples the fit used
+        return residuals["k_physics"].to_numpy(dtype=float), a_phys
     usable = np.ones(len(samples), dtype=bool)
     for flag in _FLAG_COLUMNS:
         if flag in samples:
