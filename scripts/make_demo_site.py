@@ -88,14 +88,17 @@ UNITS = [
     {"code": 4, "name": "lower_sand", "log10_k_mean": -4.4, "log10_k_sd": 0.30, "ec": 9.0},
     # between the sand and gravel and the silty clay (code 5 so that the older codes keep their
     # meaning); its K stays inside the transitional class (1e-7..1e-5 m/s) and above the
-    # probe's resolution limit (~4e-7 m/s at the pressure limit), so the logs resolve it
-    {"code": 5, "name": "silty_sand", "log10_k_mean": -5.8, "log10_k_sd": 0.25, "ec": 30.0},
+    # probe's resolution limit (~4e-7 m/s at the pressure limit), so the logs resolve it, and
+    # below 10**-5.5 m/s up to the lens threshold (-5.8 + 0.2 * 1.5 = -5.5), so that no
+    # dissipation test is placed in it
+    {"code": 5, "name": "silty_sand", "log10_k_mean": -5.8, "log10_k_sd": 0.2, "ec": 30.0},
 ]
-LENS_THRESHOLD = 1.5  # the random field above this, inside the silty clay, is a sand lens
+LENS_THRESHOLD = 1.5  # the field above this, in the silty sand or silty clay, is a sand lens
 EC_K_SLOPE = 0.25  # within a unit, EC * 10**(-slope * field): finer = more conductive
 # ... with the field clipped to +-EC_FIELD_LIMIT for EC, so that a unit's EC stays within a
-# factor 10**0.5 of its base (sand and gravel 2-22 mS/m, near Palacky's 1-20 mS/m): the
-# tightest tail of a sand has the K of a silty sand but not a clay's EC
+# factor 10**(0.25 * 2.5) ~ 4 of its base (sand and gravel 1.7-30 mS/m, around Palacky's
+# 1-20 mS/m for sand): the tightest tail of a sand has the K of a silty sand but not the EC of
+# a silt or clay
 EC_FIELD_LIMIT = 2.0
 
 # Horizontal correlation: major axis azimuth (degrees clockwise from north) and gstools length
@@ -209,8 +212,8 @@ class Truth:
         r = self.field(x, y, z)
         unit = np.full(z.shape, 4, dtype=np.int8)
         unit[z > surf["clay_base"]] = 2
-        unit[(unit == 2) & (r > LENS_THRESHOLD)] = 3
         unit[z > surf["silty_sand_base"]] = 5
+        unit[((unit == 2) | (unit == 5)) & (r > LENS_THRESHOLD)] = 3
         unit[z > surf["sand_base"]] = 1
         unit[z > surf["cap_base"]] = 0
         mean = np.array([u["log10_k_mean"] for u in UNITS])[unit]
@@ -997,6 +1000,8 @@ def build_demo_site(out: Path, *, seed: int = DEFAULT_SEED, write_truth_grid: bo
         high = u["log10_k_mean"] + 5 * u["log10_k_sd"]
         if u["name"] == "sand_lens":  # the field exceeds LENS_THRESHOLD inside a lens
             low = u["log10_k_mean"] - 0.5 * u["log10_k_sd"]
+        if u["name"] in ("silty_sand", "silty_clay"):  # ... and stays below it outside
+            high = u["log10_k_mean"] + LENS_THRESHOLD * u["log10_k_sd"]
         ranges[u["name"]] = {
             "code": u["code"],
             "log10_k_mean": u["log10_k_mean"],
