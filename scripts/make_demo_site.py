@@ -96,7 +96,7 @@ UNITS = [
 LENS_THRESHOLD = 1.5  # the field above this, in the silty sand or silty clay, is a sand lens
 EC_K_SLOPE = 0.25  # within a unit, EC * 10**(-slope * field): finer = more conductive
 # ... with the field clipped to +-EC_FIELD_LIMIT for EC, so that a unit's EC stays within a
-# factor 10**(0.25 * 2.5) ~ 4 of its base (sand and gravel 1.7-30 mS/m, around Palacky's
+# factor 10**(0.25 * 2) ~ 3.2 of its base (sand and gravel 2.2-22 mS/m, near Palacky's
 # 1-20 mS/m for sand): the tightest tail of a sand has the K of a silty sand but not the EC of
 # a silt or clay
 EC_FIELD_LIMIT = 2.0
