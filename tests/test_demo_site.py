@@ -328,7 +328,7 @@ def test_slug_tests_agree_with_the_truth(generator, truth, borings):
         y = np.full(depth.size, collar["y"] - generator.ORIGIN[1])
         _, log10_k, _ = generator.Truth(truth["seed"]).evaluate(x, y, collar["ground_elev"] - depth)
         assert np.mean(10.0**log10_k) == pytest.approx(record["true_mean_k"], rel=2e-3)
-        if record["majority_unit"] not in ("sand_gravel", "lower_sand"):
+        if record["majority_unit"] not in ("sand_gravel", "silty_sand", "lower_sand"):
             continue  # thin lenses do not survive the 2 m grid
         column = ds.log10_k.sel(x=collar["x"], y=collar["y"], method="nearest")
         top = collar["ground_elev"] - row.top_depth

@@ -127,19 +127,36 @@ def test_facies_k_ranges_fall_in_the_published_ranges(result):
         assert low <= q05 and q95 <= high, (name, q05, q95)
 
 
-def test_mixture_separates_storage_from_transmissive(result):
+def test_mixture_finds_the_three_hydrofacies_of_the_demo(result, truth):
     iv = result.intervals
     codes, names = classify_mixture(
         iv["log10_k"].to_numpy(), iv["ec"].to_numpy(), k_only=iv["frac_ionic"].to_numpy() >= 0.5
     )
     assert names == ["storage", "transitional", "transmissive"]
-    found = set(codes[codes >= 0].tolist())
-    # the demo's sand lens has its mean K at 1e-5, on the boundary; the mixture puts it with
-    # the sands, so two hydrofacies come out (storage and transmissive)
-    assert {0, 2} <= found
+    # the demo has three saturated populations: the silty clay at the probe's resolution bound
+    # (storage), the silty-sand unit (log10 K around -5.8, transitional) and the sands
+    # (transmissive); the mixture, with its class count chosen by BIC, finds all three
+    assert "silty_sand" in truth["facies"]
     thresholds = iv["facies_code"].to_numpy()
-    both = (codes >= 0) & np.isin(thresholds, [0, 2])
-    assert (codes[both] == thresholds[both]).mean() > 0.97
+    both = (codes >= 0) & (thresholds >= 0)
+    counts = {c: int((codes[both] == c).sum()) for c in range(3)}
+    print(f"mixture classes {counts}, threshold classes", np.bincount(thresholds[both]).tolist())
+    assert all(n > 200 for n in counts.values()), counts
+    # Agreement with the threshold classes (storage < -7 <= transitional < -5 <= transmissive,
+    # common practice): measured 0.976 of 2789 intervals overall, and 0.983 (storage), 0.964
+    # (transitional) and 0.975 (transmissive) within each threshold class on the committed
+    # demo. The mixture also weighs EC, so intervals near a threshold (the sand lenses' K
+    # straddles 1e-5 m/s, the tightest sands reach the silty sand's K) may go either way: floors
+    # of 0.9 overall and 0.85 per class leave room for that, and still fail when a population
+    # is merged into another or split across two (a trial variant of the demo, whose censored
+    # storage intervals sit on thin strips at their resolution bounds, gave a broad component
+    # that took 23 % of the storage intervals: 0.89 overall, 0.77 for storage).
+    agreement = (codes[both] == thresholds[both]).mean()
+    print(f"mixture agrees with the thresholds on {agreement:.3f} of {both.sum()} intervals")
+    assert agreement > 0.9
+    for code in range(3):
+        mine = both & (thresholds == code)
+        assert (codes[mine] == code).mean() > 0.85, (names[code], (codes[mine] == code).mean())
 
 
 def test_failed_sensor_check_flags_that_log_only(result, truth):
