@@ -34,6 +34,9 @@ from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.lines import Line2D  # noqa: E402
 from matplotlib.patches import Patch, Rectangle  # noqa: E402
 
+# One Okabe & Ito (2008) palette for every figure of the report.
+from geo3d.report.log_figure import OKABE_ITO  # noqa: E402
+
 __all__ = [
     "OKABE_ITO",
     "SectionLine",
@@ -54,18 +57,6 @@ __all__ = [
     "water_table_figure",
 ]
 
-#: Okabe & Ito (2008) "Color Universal Design" palette (black, orange, sky blue, bluish
-#: green, yellow, blue, vermillion, reddish purple).
-OKABE_ITO: dict[str, str] = {
-    "black": "#000000",
-    "orange": "#E69F00",
-    "sky_blue": "#56B4E9",
-    "bluish_green": "#009E73",
-    "yellow": "#F0E442",
-    "blue": "#0072B2",
-    "vermillion": "#D55E00",
-    "reddish_purple": "#CC79A7",
-}
 
 _DPI = 110
 _BORING_COLOR = OKABE_ITO["black"]
