@@ -36,6 +36,7 @@ import warnings
 
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
+from scipy.ndimage import median_filter
 from sklearn.linear_model import HuberRegressor
 
 __all__ = [
@@ -228,8 +229,14 @@ def spike_flags(
         ec_out, ec_median, _ = hampel(ec[idx], half_window=h, k=k)
         floor = relative_floor * np.abs(np.nan_to_num(ec_median))
         ec_out &= ec[idx] - ec_median > np.maximum(floor, 0)
-        p_out, _, _ = hampel(pressure[idx], half_window=h, k=pk)
-        # a pressure excursion at or next to the EC one explains it (a real layer)
+        hydraulic = pressure[idx]
+        _, p_median, p_scale = hampel(hydraulic, half_window=h, k=pk)
+        # A real layer moves the hydraulic signal over consecutive samples: test the running
+        # median of three against the window, so that one noisy reading (common where the net
+        # pressure is only a few noise units, as in gravel) cannot pass for a layer.
+        short = median_filter(hydraulic, size=3, mode="nearest")
+        p_out = np.abs(short - p_median) > pk * p_scale
+        # a hydraulic excursion at or next to the EC one explains it (a real layer)
         near_p = p_out.copy()
         near_p[1:] |= p_out[:-1]
         near_p[:-1] |= p_out[1:]
