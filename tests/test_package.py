@@ -17,3 +17,10 @@ def test_import_is_light():
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[]"
+
+
+def test_python_dash_m_runs_the_command_line():
+    out = subprocess.run(
+        [sys.executable, "-m", "geo3d", "--version"], capture_output=True, text=True, check=True
+    )
+    assert geo3d.__version__ in out.stdout
