@@ -669,7 +669,8 @@ class _Timer:
         try:
             yield
         except Geo3dError as exc:
-            logger.error("stage %s failed: %s", name, exc)
+            # the caller reports the error itself (the CLI prints it once, cleanly)
+            logger.info("stage %s stopped: %s", name, exc)
             raise
         self.timings[name] = time.perf_counter() - start
         logger.info("stage %s: done in %.2f s", name, self.timings[name])
