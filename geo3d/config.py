@@ -417,8 +417,9 @@ class KrigingSection(_Section):
     drift: Literal["none", "linear_z"] = Field("none", description="none | linear_z.")
     max_distance: float | Auto = Field(
         "auto",
-        description="Beyond this anisotropy-scaled distance, in [units] length, a cell is left "
-        'empty; "auto" = chosen from the variogram.',
+        description="A cell with no sample within this anisotropy-scaled distance, in variogram "
+        "ranges (1 = one range along each axis; not a length), is left empty (NaN) rather "
+        'than given a distant mean; "auto" = no limit.',
     )
     chunk_size: int = Field(20000, gt=0, description="Cells per chunk.")
     scheduler: str = Field(
@@ -493,7 +494,6 @@ _LENGTHS = {
     "facies": ("min_thickness",),
     "grid": ("cell_size", "base", "padding"),
     "variogram": ("horizontal_range", "vertical_range", "elevation_tolerance"),
-    "kriging": ("max_distance",),
     "treatment": ("radius_of_influence",),
 }
 _PRESSURES = {"probe": ("sensor_noise", "pressure_limit", "atmospheric_pressure")}

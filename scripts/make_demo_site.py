@@ -707,7 +707,8 @@ elevation_tolerance = 0.5         # m, pairs between borings must be this close 
 neighbors = 32                    # samples per estimate
 max_per_boring = 8                # at most this many from one boring (0 = no limit)
 drift = "none"                    # none | linear_z
-max_distance = "auto"             # beyond this (scaled) distance a cell is left empty (NaN)
+max_distance = "auto"             # in variogram ranges (1 = one range); farther cells are left
+                                  # empty (NaN); "auto" = no limit
 chunk_size = 20000                # cells per chunk
 scheduler = ""                    # "" = local threads; or a dask.distributed address
 

@@ -65,6 +65,7 @@ def test_feet_and_psi_are_converted(tmp_path: Path):
         "[grid]\ncell_size = [10.0, 10.0, 1.0]\nbase = 100.0\npadding = 5.0\n"
         '[variogram]\nhorizontal_range = 100.0\nvertical_range = "auto"\n'
         "[treatment]\nradius_of_influence = 10.0\n"
+        "[kriging]\nmax_distance = 2.0\n"
     )
     config = load_config(write(tmp_path, text))
     assert config.probe.screen_length == pytest.approx(FT)
@@ -80,6 +81,8 @@ def test_feet_and_psi_are_converted(tmp_path: Path):
     assert config.variogram.vertical_range == "auto"
     assert config.treatment.radius_of_influence == pytest.approx(10 * FT)
     assert config.units.length == "ft"  # the declared units are kept for the readers
+    # max_distance counts variogram ranges, a ratio: no unit to convert
+    assert config.kriging.max_distance == 2.0
 
 
 def test_us_survey_feet(tmp_path: Path):
