@@ -399,13 +399,16 @@ def _run_stages(
     site: Path,
     out_dir: Path,
     *,
-    stages,
+    stages=None,
     overwrite: bool,
     realizations: int | None,
     no_progress: bool,
     title: str,
 ) -> None:
-    from geo3d.pipeline import planned_stages, run
+    """Run ``stages`` (default: the whole job, :data:`geo3d.pipeline.STAGES`) with progress."""
+    from geo3d.pipeline import STAGES, planned_stages, run
+
+    stages = STAGES if stages is None else stages
 
     with (
         _terminate_as_interrupt(),
@@ -458,7 +461,6 @@ def run_command(
     _run_stages(
         site,
         out_dir,
-        stages=("check", "logs", "model", "volumes", "export", "report"),
         overwrite=overwrite,
         realizations=realizations,
         no_progress=no_progress,
@@ -564,7 +566,6 @@ def demo(out_dir: Path, overwrite: bool, realizations: int | None, no_progress: 
     _run_stages(
         site,
         out_dir,
-        stages=("check", "logs", "model", "volumes", "export", "report"),
         overwrite=overwrite,
         realizations=realizations,
         no_progress=no_progress,
