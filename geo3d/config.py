@@ -34,6 +34,7 @@ __all__ = [
     "UnitsSection",
     "FilesSection",
     "LogsSection",
+    "LogColumns",
     "ProbeSection",
     "WaterSection",
     "FlagsSection",
@@ -173,6 +174,19 @@ class FilesSection(_Section):
         return value
 
 
+class LogColumns(_Section):
+    """``[logs.las]`` or ``[logs.csv]``: column names for one file format.
+
+    A name left out (or ``""``) falls back to the same key of ``[logs]``.
+    """
+
+    depth: str = Field("", description='Column (or LAS curve) holding depth; "" = as [logs].')
+    pressure: str = Field("", description='Column holding injection pressure; "" = as [logs].')
+    flow: str = Field("", description='Column holding injection flow; "" = as [logs].')
+    ec: str = Field("", description='Column holding electrical conductivity; "" = as [logs].')
+    time: str = Field("", description='Column holding time in seconds; "" = as [logs].')
+
+
 class LogsSection(_Section):
     """``[logs]``: how to read the injection-log files."""
 
@@ -193,6 +207,17 @@ class LogsSection(_Section):
         min_length=1,
     )
     delimiter: str = Field(",", description="CSV field delimiter.", min_length=1, max_length=1)
+    units_row: bool = Field(
+        False,
+        description="CSV only: the line under the column names states each column's unit; the "
+        "units of the mapped columns must agree with [units] (a blank cell is not checked).",
+    )
+    las: LogColumns = Field(
+        default_factory=LogColumns, description="Curve names of LAS files, where they differ."
+    )
+    csv: LogColumns = Field(
+        default_factory=LogColumns, description="Column names of CSV files, where they differ."
+    )
 
 
 class ProbeSection(_Section):
@@ -215,8 +240,15 @@ class ProbeSection(_Section):
     )
     atmospheric_pressure: float | Auto = Field(
         "auto",
-        description='"auto" = first reading above the water table; or a number in [units] '
-        "pressure.",
+        description='"auto" = flow-off readings at the collar, else barometric_pressure, else '
+        "readings of the same day's logs, else the ISO 2533 standard atmosphere at the collar "
+        "elevation; or a number in [units] pressure used for every boring.",
+    )
+    barometric_pressure: float | dict[str, float] | Literal["none"] = Field(
+        "none",
+        description="Barometric pressure in [units] pressure for logs without a flow-off "
+        "reading at the collar: one site-wide number, or a table of boring ids and/or days "
+        '("YYYY-MM-DD", matched to the borings\' date) to values; "none" = not measured.',
     )
     tool_loss: list[tuple[float, float]] = Field(
         default_factory=list,
@@ -229,6 +261,17 @@ class ProbeSection(_Section):
     def _positive_atm(cls, value: float | str) -> float | str:
         if not isinstance(value, str) and value <= 0:
             msg = 'expected a positive pressure or "auto"'
+            raise ValueError(msg)
+        return value
+
+    @field_validator("barometric_pressure")
+    @classmethod
+    def _positive_barometric(
+        cls, value: float | dict[str, float] | str
+    ) -> float | dict[str, float] | str:
+        values = value.values() if isinstance(value, dict) else [value]
+        if any(not isinstance(v, str) and v <= 0 for v in values):
+            msg = 'expected positive pressures (a number or a table of numbers) or "none"'
             raise ValueError(msg)
         return value
 
@@ -275,6 +318,12 @@ class FlagsSection(_Section):
     hampel_k: float = Field(4.0, gt=0, description="Spike threshold in scaled MADs.")
     ionic_sigma: float = Field(
         2.5, gt=0, description="EC this many residual SDs above the EC-vs-log10 K trend is ionic."
+    )
+    ec_min_thickness: float = Field(
+        0.2,
+        gt=0,
+        description="An EC-above-trend anomaly must hold over consecutive samples spanning at "
+        "least this thickness, in [units] length.",
     )
     min_slug_tests: int = Field(
         3, ge=0, description="Fewer slug tests than this: physics-only K, with a warning."
@@ -489,19 +538,23 @@ class SiteConfig(_Section):
 _LENGTHS = {
     "probe": ("screen_length", "screen_diameter"),
     "water": ("depth_to_water",),
-    "flags": ("hampel_window",),
+    "flags": ("hampel_window", "ec_min_thickness"),
     "composite": ("interval",),
     "facies": ("min_thickness",),
     "grid": ("cell_size", "base", "padding"),
     "variogram": ("horizontal_range", "vertical_range", "elevation_tolerance"),
     "treatment": ("radius_of_influence",),
 }
-_PRESSURES = {"probe": ("sensor_noise", "pressure_limit", "atmospheric_pressure")}
+_PRESSURES = {
+    "probe": ("sensor_noise", "pressure_limit", "atmospheric_pressure", "barometric_pressure")
+}
 
 
 def _convert(value: Any, unit: str, quantity: str) -> Any:
     if isinstance(value, str):
         return value
+    if isinstance(value, dict):
+        return {k: to_internal(float(v), unit, quantity) for k, v in value.items()}
     if isinstance(value, tuple | list):
         return type(value)(to_internal(float(v), unit, quantity) for v in value)
     return to_internal(float(value), unit, quantity)

@@ -599,8 +599,9 @@ def _write_las(log: pd.DataFrame, boring_id: str, path: Path, plan: BoringPlan) 
         las.write(fh, version=2.0, wrap=False, fmt="%.3f", STEP=0.0)
 
 
-def site_toml(*, las_id: str) -> str:
+def site_toml(*, las_id: str, day_levels: dict[str, float]) -> str:
     """Return the demo's site.toml: the template's keys, with this site's values."""
+    barometer = "{ " + ", ".join(f'"{d}" = {v:g}' for d, v in day_levels.items()) + " }"
     return f'''# geo3d site file of the invented demo site "Quillbrook Yard" (made by
 # scripts/make_demo_site.py; regenerate rather than edit). Every path is relative to this file's
 # folder. Units are declared once, here, and converted to SI when the files are read.
@@ -640,6 +641,24 @@ time = "time"                     # seconds since the start of the log
 header_rows = 0                   # lines to skip before the column-name line (CSV only)
 boring_id = "filename"            # the file stem is the boring id
 delimiter = ","
+units_row = false                 # CSV only: true if the line under the names gives units
+                                  # (checked against [units]; a conflict is refused)
+
+[logs.las]
+# LAS curve mnemonics where they differ from the names above; "" = as [logs].
+depth = ""
+pressure = ""
+flow = ""
+ec = ""
+time = ""
+
+[logs.csv]
+# CSV column names where they differ from the names above; "" = as [logs].
+depth = ""
+pressure = ""
+flow = ""
+ec = ""
+time = ""
 
 [probe]
 shape = "{PROBE["shape"]}"                # cylinder | sphere  (Hvorslev 1951 shape factor)
@@ -647,7 +666,9 @@ screen_length = {PROBE["screen_length"]}              # m
 screen_diameter = {PROBE["screen_diameter"]}            # m
 sensor_noise = {PROBE["pressure_noise"]}                # pressure noise, kPa (1 SD)
 pressure_limit = {PROBE["pressure_limit"]}            # sensor full scale, kPa
-atmospheric_pressure = "auto"     # "auto" = first reading above the water table; or a number
+atmospheric_pressure = "auto"     # "auto" = flow-off collar readings, else barometric_pressure
+# the logs run with the flow on from the collar: daily readings of the site barometer, kPa
+barometric_pressure = {barometer}
 tool_loss = [ ]                   # no open-water flow-vs-pressure check was made
 
 [water]
@@ -662,6 +683,7 @@ pressure_limit_fraction = 0.95    # pressure above this fraction of the sensor l
 hampel_window = 0.15              # m, half window of the EC spike filter
 hampel_k = 4.0                    # spike threshold in scaled MADs
 ionic_sigma = 2.5                 # EC this many residual SDs above the EC-vs-log10 K trend
+ec_min_thickness = 0.2            # m; EC above the trend must hold over this thickness
 min_slug_tests = 3                # fewer slug tests than this: physics-only K, with a warning
 
 [composite]
@@ -976,7 +998,8 @@ def build_demo_site(out: Path, *, seed: int = DEFAULT_SEED, write_truth_grid: bo
         assert boundary_local.contains(z), "a treatment zone leaves the boundary"
     zones.to_file(out / "zones.geojson", driver="GeoJSON", COORDINATE_PRECISION=2)
 
-    (out / "site.toml").write_text(site_toml(las_id=plans[las_idx].boring_id), newline="\n")
+    toml = site_toml(las_id=plans[las_idx].boring_id, day_levels=day_levels)
+    (out / "site.toml").write_text(toml, newline="\n")
 
     gx, gy, gz = truth_grid_axes(truth, plans, boundary_local)
     if write_truth_grid:

@@ -49,6 +49,11 @@ zones = "zones.geojson"
 
 [logs]
 time = "time"
+
+[probe]
+# the mini logs run with the flow on from their first reading: the reference pressure comes from
+# an invented site barometer reading, equal to the standard atmosphere (NIST SP 811)
+barometric_pressure = 101.325
 """
 
 

@@ -108,7 +108,9 @@ def test_pressure_below_atmospheric_when_absolute(mini_site: Path):
     assert f"{ABSOLUTE_PRESSURE_FLOOR:g} kPa, a plausibility floor" in message
     # With a declared atmospheric pressure, the message names it instead.
     (mini_site / "site.toml").write_text(
-        (mini_site / "site.toml").read_text() + "\n[probe]\natmospheric_pressure = 101.3\n"
+        (mini_site / "site.toml")
+        .read_text()
+        .replace("[probe]\n", "[probe]\natmospheric_pressure = 101.3\n")
     )
     with pytest.raises(LogFormatError, match=r"atmospheric_pressure 101.3 kPa"):
         read_site(mini_site)

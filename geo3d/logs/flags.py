@@ -11,12 +11,13 @@ Resolution flags (configurable limits):
 
 EC flags:
 
-* ``spike``: a narrow EC excursion (Hampel filter: beyond ``k`` scaled median absolute
-  deviations of the rolling median over a depth window) with no matching pressure change,
-  typically a metal contact.
+* ``spike``: a narrow EC rise above the levels on both sides (beyond ``k`` scaled median
+  absolute deviations of each side window, and at least a doubling) with no matching
+  hydraulic change, typically a metal contact; a step at a contact is not a spike.
 * ``ionic``: EC well above the site's EC-vs-log10 K trend (robust Huber fit of log10 EC on
   log10 K) while K is in the transmissive range: conductive pore water (an injected fluid,
-  brine, a plume), not fine grains.
+  brine, a plume), not fine grains; only over a run of consecutive samples at least
+  ``min_thickness`` thick.
 
 Flagged samples are kept and marked; compositing leaves each flag out of what it would distort.
 
@@ -44,6 +45,7 @@ __all__ = [
     "resolution_flags",
     "hampel",
     "spike_flags",
+    "keep_thick_runs",
     "ionic_flags",
 ]
 
@@ -171,6 +173,23 @@ def _half_window_samples(depth: np.ndarray, half_window_m: float) -> int:
     return max(1, int(round(half_window_m / float(np.median(steps)))))
 
 
+def _side_windows(x: np.ndarray, h: int, gap: int) -> tuple[np.ndarray, np.ndarray]:
+    """Windows of ``h`` samples on each side of every sample, ``gap`` samples away from it."""
+    pad = np.full(h + gap, np.nan)
+    windows = sliding_window_view(np.concatenate([pad, x, pad]), h)
+    n = x.size
+    return windows[:n], windows[h + 2 * gap + 1 : h + 2 * gap + 1 + n]
+
+
+def _side_level(windows: np.ndarray, min_count: int) -> tuple[np.ndarray, np.ndarray]:
+    with np.errstate(all="ignore"), warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN windows give NaN
+        level = np.nanmedian(windows, axis=1)
+        mad = np.nanmedian(np.abs(windows - level[:, None]), axis=1)
+    enough = np.isfinite(windows).sum(axis=1) >= min_count
+    return np.where(enough, level, np.nan), MAD_SCALE * mad
+
+
 def spike_flags(
     depth,
     ec,
@@ -181,8 +200,18 @@ def spike_flags(
     k: float = 4.0,
     pressure_k: float | None = None,
     relative_floor: float = 1.0,
+    gap: int = 2,
 ) -> np.ndarray:
-    """Flag EC spikes: Hampel outliers of EC with no hydraulic outlier at or next to them.
+    """Flag EC spikes: narrow EC rises above both neighbours, with no hydraulic change.
+
+    A spike stands out from both sides: its log10 EC exceeds the median log10 EC of the samples
+    on its left *and* on its right (windows of ``half_window``, starting ``gap`` samples away so
+    that a spike a few samples wide is not its own neighbour) by more than ``k`` scaled MADs of
+    those windows and by more than ``log10(1 + relative_floor)``.  A step at a contact has one
+    side at its own level, and the first or last readings of a log have no side to compare
+    with, so neither is a spike.  An EC rise with a hydraulic excursion at or next to it is a
+    real layer, not a spike.  Working in log10 EC makes the test scale-free under the
+    multiplicative noise of EC sensors.
 
     Parameters
     ----------
@@ -197,17 +226,19 @@ def spike_flags(
     groups
         Boring id of each sample; the filter runs within each boring.
     half_window
-        Half window of the filter, m.
+        Length of each side window, m.
     k
-        Threshold in scaled MADs for EC.
+        Threshold in scaled MADs of log10 EC.
     pressure_k
         Threshold (scaled MADs) of a hydraulic excursion that would explain an EC one; half of
         ``k`` when None, so that a modest matching change is enough to call it a layer.
     relative_floor
-        Smallest EC rise flagged, as a share of the local median EC: a metal contact
+        Smallest EC rise flagged, as a share of the higher side level: a metal contact
         short-circuits the electrodes and multiplies the reading, while bulk EC rarely doubles
         within a few centimetres without the hydraulic signal noticing.  Only rises are
         spikes.
+    gap
+        Samples skipped on each side between a sample and its side windows.
 
     Returns
     -------
@@ -215,20 +246,28 @@ def spike_flags(
 
     References
     ----------
-    .. [1] Hampel (1974); Pearson (2002).
+    .. [1] Hampel (1974); Pearson (2002) (median/MAD outlier identifiers).
     """
     depth = np.asarray(depth, dtype=float)
     ec = np.asarray(ec, dtype=float)
     pressure = np.asarray(pressure, dtype=float)
     groups = np.asarray(groups)
     pk = 0.5 * k if pressure_k is None else pressure_k
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lec = np.where(ec > 0, np.log10(ec), np.nan)
+    floor = np.log10(1.0 + relative_floor)
     out = np.zeros(depth.size, dtype=bool)
     for gid in np.unique(groups):
         idx = np.flatnonzero(groups == gid)
         h = _half_window_samples(depth[idx], half_window)
-        ec_out, ec_median, _ = hampel(ec[idx], half_window=h, k=k)
-        floor = relative_floor * np.abs(np.nan_to_num(ec_median))
-        ec_out &= ec[idx] - ec_median > np.maximum(floor, 0)
+        left, right = _side_windows(lec[idx], h, gap)
+        left_level, left_scale = _side_level(left, max(2, h // 2))
+        right_level, right_scale = _side_level(right, max(2, h // 2))
+        rise = lec[idx] - np.fmax(left_level, right_level)
+        scale = np.fmax(left_scale, right_scale)
+        with np.errstate(invalid="ignore"):
+            ec_out = (rise > k * scale) & (rise > floor)
+        ec_out &= np.isfinite(left_level) & np.isfinite(right_level)
         hydraulic = pressure[idx]
         _, p_median, p_scale = hampel(hydraulic, half_window=h, k=pk)
         # A real layer moves the hydraulic signal over consecutive samples: test the running
@@ -244,6 +283,50 @@ def spike_flags(
     return out
 
 
+def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
+    """Start and stop (exclusive) of each run of True in ``mask``."""
+    edges = np.diff(np.concatenate([[0], mask.astype(np.int8), [0]]))
+    return list(zip(np.flatnonzero(edges == 1), np.flatnonzero(edges == -1), strict=True))
+
+
+def keep_thick_runs(candidate, depth, *, min_thickness: float, unknown=None) -> np.ndarray:
+    """Keep only the runs of consecutive candidate samples at least ``min_thickness`` thick.
+
+    The thickness of a run is the depth span of its samples plus one sample step.  Samples of
+    ``unknown`` (no value to test, e.g. an unresolved K) do not break a run between candidates,
+    and are flagged with it; they never start or end one.
+
+    Parameters
+    ----------
+    candidate
+        Boolean mask of one log, in depth order.
+    depth
+        m, increasing.
+    min_thickness
+        m.
+    unknown
+        Boolean mask of samples that neither continue nor break a run on their own.
+
+    Returns
+    -------
+    ndarray of bool
+    """
+    candidate = np.asarray(candidate, dtype=bool)
+    depth = np.asarray(depth, dtype=float)
+    unknown = np.zeros_like(candidate) if unknown is None else np.asarray(unknown, bool)
+    steps = np.diff(depth)
+    step = float(np.median(steps[steps > 0])) if (steps > 0).any() else 0.0
+    out = np.zeros_like(candidate)
+    for start, stop in _runs(candidate | (unknown & ~candidate)):
+        inside = np.flatnonzero(candidate[start:stop]) + start
+        if inside.size == 0:
+            continue
+        first, last = int(inside[0]), int(inside[-1])
+        if depth[last] - depth[first] + step >= min_thickness - 1e-9:
+            out[first : last + 1] = True
+    return out
+
+
 def ionic_flags(
     log10_k,
     ec,
@@ -254,14 +337,18 @@ def ionic_flags(
     sigma: float = 2.5,
     exclude=None,
     smooth_window: float = 0.1,
+    min_thickness: float = 0.2,
 ) -> tuple[np.ndarray, dict]:
     """EC well above the site's EC-vs-log10 K trend where K is transmissive.
 
     The trend ``log10 EC = c0 + c1*log10 K`` is fitted robustly (Huber) on usable samples;
-    the residual scale is ``1.4826 * MAD`` of its residuals.  A sample is ionic when the
-    running median of its residual over ``smooth_window`` (within its boring; a single noisy
-    reading is not an anomaly) exceeds ``sigma`` scales and its log10 K is at least
-    ``transmissive_min``.  The trend is refitted once with ionic samples left out.
+    the residual scale is ``1.4826 * MAD`` of its residuals (a robust z-score).  EC stands above
+    the trend where the running median of the residual over ``smooth_window`` (within its
+    boring; a single noisy reading is not an anomaly) exceeds ``sigma`` scales over a run of
+    consecutive samples at least ``min_thickness`` thick (see :func:`keep_thick_runs`), so that
+    the few samples where EC and K change at slightly different depths across a sharp contact
+    are not an anomaly; the samples of such runs whose log10 K is at least ``transmissive_min``
+    are flagged.  The trend is refitted once with flagged samples left out.
 
     Parameters
     ----------
@@ -279,6 +366,8 @@ def ionic_flags(
         Boolean mask of samples to leave out of the trend (spikes, unresolved K).
     smooth_window
         m, full length of the running median of the residuals.
+    min_thickness
+        m, thinnest run of candidate samples that is flagged.
 
     Returns
     -------
@@ -319,7 +408,17 @@ def ionic_flags(
             r = np.where(np.isfinite(lk[idx]) & np.isfinite(lec[idx]), residual[idx], np.nan)
             _, med, _ = hampel(r, half_window=h)
             smoothed[idx] = np.where(np.isfinite(r), med, np.nan)
-        flags = (smoothed > sigma * scale) & (lk >= transmissive_min) & np.isfinite(lk)
+        above = smoothed > sigma * scale
+        thick = np.zeros(lk.size, dtype=bool)
+        for gid in np.unique(groups):
+            idx = np.flatnonzero(groups == gid)
+            thick[idx] = keep_thick_runs(
+                above[idx],
+                depth[idx],
+                min_thickness=min_thickness,
+                unknown=~np.isfinite(smoothed[idx]),
+            )
+        flags = thick & (lk >= transmissive_min) & np.isfinite(lk)
         fit_set = usable & ~flags
         trend = {
             "intercept": float(model.intercept_),

@@ -3,8 +3,9 @@
 :func:`process_logs` reads its options from ``site.config`` and chains the library functions of
 :mod:`geo3d.logs` and :mod:`geo3d.facies`:
 
-1. atmospheric pressure per boring (collar readings pooled over the logs of the same day, or
-   given; zero for gauge records);
+1. reference (atmospheric) pressure per boring and its source (flow-off collar readings, a
+   barometric value from site.toml, the same day's logs, or the ISO 2533 standard atmosphere;
+   zero for gauge records; see :mod:`geo3d.logs.reference`);
 2. static pressure of every dissipation test, depth to water, water-table elevation, the
    piezometric profiles and the site water-table surface;
 3. net injection pressure per sample (hydrostatic part from the boring's own water level, or
@@ -41,21 +42,18 @@ from geo3d.logs.calibration import calibrate
 from geo3d.logs.composite import FLAGS, K_EXCLUDING_FLAGS, composite
 from geo3d.logs.flags import ionic_flags, resolution_flags, spike_flags
 from geo3d.logs.hydraulic import shape_factor
-from geo3d.logs.pressure import (
-    STANDARD_ATMOSPHERE,
-    collar_readings,
-    fit_tool_loss,
-    hydrostatic_pressure,
-    is_atmospheric,
-    pooled_atmospheric_pressure,
-)
+from geo3d.logs.pressure import fit_tool_loss
+from geo3d.logs.reference import flow_off_collar_readings, reference_pressures
 from geo3d.logs.sensor_checks import evaluate_sensor_checks, sensor_check_flags
 from geo3d.logs.water_level import (
     WaterTableSurface,
     boring_water_levels,
     fit_water_table,
     piezometric_profiles,
+    static_pore_pressure,
+    vertical_gradients,
     water_levels,
+    water_table_tests,
 )
 
 __all__ = ["LogResults", "process_logs", "write_logs_outputs"]
@@ -92,6 +90,9 @@ class LogResults:
         Robust EC-vs-log10 K trend used for the ionic flag.
     shape_factor
         Hvorslev shape factor of the probe screen, m.
+    reference_pressure
+        One row per boring: ``boring_id, p_atm`` (kPa) and ``p_atm_source`` (see
+        :data:`geo3d.logs.reference.REFERENCE_SOURCES`).
     """
 
     samples: pd.DataFrame
@@ -105,6 +106,7 @@ class LogResults:
     facies_classes: list[FaciesClass] = field(default_factory=list)
     ec_trend: dict[str, float] = field(default_factory=dict)
     shape_factor: float = float("nan")
+    reference_pressure: pd.DataFrame = field(default_factory=pd.DataFrame)
 
 
 def _option(config: Any, section: str, key: str, default: Any) -> Any:
@@ -124,36 +126,32 @@ def _facies_classes(config: Any) -> list[FaciesClass]:
     ]
 
 
-def _atmospheric(site: Any, config: Any) -> dict[str, float]:
-    ids = [str(b) for b in site.borings["boring_id"]]
-    if _option(config, "units", "pressure_reference", "absolute") == "gauge":
-        return dict.fromkeys(ids, 0.0)
+def _atmospheric(site: Any, config: Any) -> pd.DataFrame:
+    """Find the reference pressure of every boring (``boring_id, p_atm, p_atm_source``)."""
+    barometric = _option(config, "probe", "barometric_pressure", "none")
     given = _option(config, "probe", "atmospheric_pressure", "auto")
-    if not isinstance(given, str):
-        return dict.fromkeys(ids, float(given))
-    readings = {
-        str(boring_id): collar_readings(
-            log["depth"].to_numpy(), log["pressure"].to_numpy(), boring_id=str(boring_id)
+    flow = site.samples["flow"].to_numpy(dtype=float)
+    positive = flow[np.isfinite(flow) & (flow > 0)]
+    flow_off = float(_option(config, "flags", "min_flow_fraction", 0.1)) * (
+        float(np.median(positive)) if positive.size else 0.0
+    )
+    collar = {
+        str(boring_id): flow_off_collar_readings(
+            log["depth"].to_numpy(),
+            log["pressure"].to_numpy(),
+            log["flow"].to_numpy(),
+            log["time_s"].to_numpy() if "time_s" in log else None,
+            flow_off=flow_off,
         )
         for boring_id, log in site.samples.groupby("boring_id", sort=False)
     }
-    good = {b: r for b, r in readings.items() if r.size and is_atmospheric(float(np.median(r)))}
-    found: dict[str, float] = {}
-    dates = site.borings.get("date")
-    if dates is not None and dates.notna().all():
-        # one barometric level per day: pool the collar readings of that day's logs
-        day_of = dict(zip(ids, dates.astype(str), strict=True))
-        for day in sorted(set(day_of.values())):
-            members = [b for b in ids if day_of[b] == day and b in readings]
-            pool = [good[b] for b in members if b in good]
-            if pool:
-                value = pooled_atmospheric_pressure(pool, label=f"logs of {day}")
-                found.update(dict.fromkeys(members, value))
-    for boring_id, values in readings.items():
-        if boring_id not in found:
-            found[boring_id] = pooled_atmospheric_pressure([values], label=f"boring {boring_id!r}")
-    fallback = float(np.median(list(found.values()))) if found else STANDARD_ATMOSPHERE
-    return {b: found.get(b, fallback) for b in ids}
+    return reference_pressures(
+        site.borings,
+        collar,
+        gauge=_option(config, "units", "pressure_reference", "absolute") == "gauge",
+        given=None if isinstance(given, str) else float(given),
+        barometric=None if isinstance(barometric, str) else barometric,
+    )
 
 
 def _water(site: Any, config: Any, p_atm: dict[str, float]):
@@ -192,6 +190,10 @@ def _water(site: Any, config: Any, p_atm: dict[str, float]):
             p_atm=p_atm,
             min_fraction_dissipated=float(_option(config, "water", "min_fraction_dissipated", 0.5)),
         )
+    levels["water_table_test"] = water_table_tests(levels)
+    levels["vertical_gradient"] = (
+        levels["boring_id"].astype(str).map(vertical_gradients(levels)).astype(float)
+    )
     per_boring = boring_water_levels(levels)
     surface = fit_water_table(
         per_boring["x"], per_boring["y"], per_boring["wt_elev"], method=method
@@ -241,8 +243,10 @@ def process_logs(site: Any) -> LogResults:
     sensor_noise = float(_option(config, "probe", "sensor_noise", 0.5))
     pressure_limit = float(_option(config, "probe", "pressure_limit", 1500.0))
 
-    p_atm = _atmospheric(site, config)
+    reference = _atmospheric(site, config)
+    p_atm = dict(zip(reference["boring_id"], reference["p_atm"], strict=True))
     levels, per_boring, surface, profiles = _water(site, config, p_atm)
+    levels = levels.merge(reference, on="boring_id", how="left")
 
     borings = site.borings.assign(boring_id=site.borings["boring_id"].astype(str))
     samples = site.samples.copy()
@@ -267,7 +271,15 @@ def process_logs(site: Any) -> LogResults:
     samples["depth_to_water"] = ground - wt
     samples["p_atm"] = ids.map(p_atm).to_numpy(dtype=float)
     depth = samples["depth"].to_numpy(dtype=float)
-    samples["p_hydrostatic"] = hydrostatic_pressure(depth, samples["depth_to_water"].to_numpy())
+    # static pore pressure: hydrostatic below the water table, or following the boring's
+    # vertical head gradient where direct readings at two or more depths measured one clearly
+    # (two standard errors); a gradient within the scatter of the levels is left out
+    gradient = pd.Series(
+        vertical_gradients(levels, direct_only=True, significance=2.0), dtype=float
+    )
+    samples["p_hydrostatic"] = static_pore_pressure(
+        depth, samples["depth_to_water"].to_numpy(), gradient.reindex(ids).to_numpy(dtype=float)
+    )
     tool_loss = fit_tool_loss(_option(config, "probe", "tool_loss", []))
     flow = samples["flow"].to_numpy(dtype=float)
     pressure = samples["pressure"].to_numpy(dtype=float)
@@ -335,6 +347,7 @@ def process_logs(site: Any) -> LogResults:
         depth,
         transmissive_min=transmissive_min,
         sigma=float(_option(config, "flags", "ionic_sigma", 2.5)),
+        min_thickness=float(_option(config, "flags", "ec_min_thickness", 0.2)),
         exclude=k_bad | samples["spike"].to_numpy(),
     )
     samples["ionic"] = ionic
@@ -382,6 +395,7 @@ def process_logs(site: Any) -> LogResults:
         facies_classes=classes,
         ec_trend=trend,
         shape_factor=f_m,
+        reference_pressure=reference,
     )
 
 

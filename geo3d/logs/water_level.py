@@ -47,6 +47,9 @@ __all__ = [
     "depth_to_water",
     "water_levels",
     "boring_water_levels",
+    "water_table_tests",
+    "vertical_gradients",
+    "static_pore_pressure",
     "piezometric_profiles",
     "gradient_plane",
     "WaterTableSurface",
@@ -396,30 +399,156 @@ def water_levels(
     return pd.DataFrame(rows, columns=_LEVEL_COLUMNS)
 
 
-def boring_water_levels(levels: pd.DataFrame) -> pd.DataFrame:
-    """One water-table elevation per boring: the mean over its best tests.
+def water_table_tests(levels: pd.DataFrame, *, depth_tolerance: float = 0.5) -> np.ndarray:
+    """Which tests of each boring the water table is read from: those nearest to it.
 
-    Tests that reached equilibrium (method ``"tail"``, a direct reading) are preferred: where a
-    boring has any, only they are averaged; otherwise all its accepted (extrapolated) tests are.
+    In a vertical head gradient each test depth gives a different ``wt_elev`` (the head at that
+    depth); only the tests nearest the water table read it.  Tests that reached equilibrium
+    (method ``"tail"``, a direct reading) are preferred over extrapolated ones wherever a boring
+    has any (an extrapolation that stopped early can be off by decimetres); of those, the tests
+    within ``depth_tolerance`` of the shallowest are kept.
+
+    Parameters
+    ----------
+    levels
+        Output of :func:`water_levels` (``boring_id, depth, method``).
+    depth_tolerance
+        m.
+
+    Returns
+    -------
+    ndarray of bool
+        One value per row of ``levels``.
+
+    References
+    ----------
+    .. [1] Freeze & Cherry (1979), ch. 2: hydraulic head varies with depth where water flows
+       vertically; the water table is where the pressure head is zero.
+    """
+    if levels.empty:
+        return np.zeros(0, dtype=bool)
+    boring = levels["boring_id"].astype(str).to_numpy()
+    depth = levels["depth"].to_numpy(dtype=float)
+    direct = levels["method"].eq("tail").to_numpy()
+    has_direct = pd.Series(direct).groupby(boring).transform("any").to_numpy()
+    best = direct | ~has_direct
+    candidate = pd.Series(np.where(best, depth, np.nan))
+    shallowest = candidate.groupby(boring).transform("min").to_numpy(dtype=float)
+    near = ~(depth > shallowest + depth_tolerance)  # NaN depths (given levels) are kept
+    return best & near
+
+
+def boring_water_levels(levels: pd.DataFrame, *, depth_tolerance: float = 0.5) -> pd.DataFrame:
+    """One water-table elevation per boring, from its tests nearest the water table.
+
+    The tests chosen by :func:`water_table_tests` are averaged; a deeper test in an upward or
+    downward head gradient does not shift the water table.  Where a boring has tests at two or
+    more depths, its vertical head gradient (:func:`piezometric_profiles`) is reported.
 
     Returns
     -------
     DataFrame
-        ``boring_id, x, y, wt_elev, depth_to_water, n_tests`` (tests averaged).
+        ``boring_id, x, y, wt_elev, depth_to_water, n_tests`` (tests averaged),
+        ``test_depth`` (mean depth of those tests) and ``vertical_gradient`` (dh/dz, NaN with
+        one test depth).
     """
     levels = levels.copy()
-    direct = levels["method"].eq("tail")
-    has_direct = direct.groupby(levels["boring_id"]).transform("any")
-    levels = levels[direct | ~has_direct]
-    grouped = levels.groupby("boring_id", sort=True)
+    levels["boring_id"] = levels["boring_id"].astype(str)
+    gradients = vertical_gradients(levels)
+    chosen = levels[water_table_tests(levels, depth_tolerance=depth_tolerance)]
+    grouped = chosen.groupby("boring_id", sort=True)
     out = grouped.agg(
         x=("x", "first"),
         y=("y", "first"),
         wt_elev=("wt_elev", "mean"),
         depth_to_water=("depth_to_water", "mean"),
         n_tests=("test_id", "size"),
-    )
-    return out.reset_index()
+        test_depth=("depth", "mean"),
+    ).reset_index()
+    out["vertical_gradient"] = out["boring_id"].map(gradients).astype(float)
+    return out
+
+
+def vertical_gradients(
+    levels: pd.DataFrame,
+    *,
+    min_separation: float = 0.5,
+    direct_only: bool = False,
+    significance: float = 0.0,
+    level_sd: float = 0.02,
+) -> dict[str, float]:
+    """Vertical head gradient ``dh/dz`` of each boring with tests at two or more depths.
+
+    The least-squares slope of head (``wt_elev`` of each test) against the test elevation.
+    Direct readings (method ``"tail"``) are used alone where they exist at two depths or more,
+    and always with ``direct_only`` (an extrapolation that stopped early can be off by
+    decimetres, which over a few metres is a gradient of several percent).
+    With elevation upward, ``dh/dz > 0`` means head rises upward: water flows downward
+    (recharge); ``dh/dz < 0`` means upward flow (discharge); 0 is hydrostatic.  Borings whose
+    tests span less than ``min_separation`` in depth get NaN, and so do gradients smaller than
+    ``significance`` standard errors, the standard error of the slope being
+    ``level_sd / sqrt(sum((z - mean z)**2))`` for independent levels of SD ``level_sd`` (m; 2 cm
+    by default, the repeatability of a direct-push water level, common practice).
+
+    Returns
+    -------
+    dict
+        Boring id -> dh/dz (m/m).
+
+    References
+    ----------
+    .. [1] Freeze & Cherry (1979), ch. 2 and 6 (piezometer nests, recharge and discharge
+       areas).
+    """
+    out: dict[str, float] = {}
+    for boring_id, group in levels.groupby(levels["boring_id"].astype(str)):
+        direct = group[group["method"].eq("tail")] if "method" in group else group
+        if direct_only or direct["depth"].nunique() >= 2:
+            group = direct  # direct readings only, where they span two depths
+        depth = group["depth"].to_numpy(dtype=float)
+        head = group["wt_elev"].to_numpy(dtype=float)
+        ok = np.isfinite(depth) & np.isfinite(head)
+        if ok.sum() < 2 or np.ptp(depth[ok]) < min_separation:
+            out[boring_id] = float("nan")
+            continue
+        # elevation = ground - depth, so dh/dz = -dh/d(depth)
+        slope = float(-np.polyfit(depth[ok], head[ok], 1)[0])
+        se = level_sd / np.sqrt(np.sum((depth[ok] - depth[ok].mean()) ** 2))
+        out[boring_id] = slope if abs(slope) >= significance * se else float("nan")
+    return out
+
+
+def static_pore_pressure(depth, depth_to_water, vertical_gradient=0.0):
+    """Compute the static pore pressure in a vertical head gradient, kPa.
+
+    With head ``h = z_wt + g * (z - z_wt)`` linear in elevation below the water table (``g =
+    dh/dz``), the pressure ``gamma_w * (h - z)`` is ``gamma_w * (1 - g) * (depth - dtw)``:
+    hydrostatic for ``g = 0``, higher in upward flow (``g < 0``).  Zero above the water table.
+
+    Parameters
+    ----------
+    depth, depth_to_water
+        m.
+    vertical_gradient
+        ``dh/dz``, m/m; NaN is taken as 0 (hydrostatic).
+
+    Returns
+    -------
+    float or ndarray
+
+    References
+    ----------
+    .. [1] Freeze & Cherry (1979), ch. 2 (h = z + psi).
+
+    Examples
+    --------
+    >>> round(static_pore_pressure(15.0, 5.0, -0.1), 4)
+    107.8732
+    """
+    g = np.nan_to_num(np.asarray(vertical_gradient, dtype=float), nan=0.0)
+    below = np.maximum(0.0, np.asarray(depth, dtype=float) - np.asarray(depth_to_water, float))
+    p = GAMMA_W * (1.0 - g) * below
+    return float(p) if p.ndim == 0 else p
 
 
 def piezometric_profiles(levels: pd.DataFrame, borings: pd.DataFrame) -> pd.DataFrame:
@@ -427,9 +556,9 @@ def piezometric_profiles(levels: pd.DataFrame, borings: pd.DataFrame) -> pd.Data
 
     The head at a test is ``elevation + (P_static - P_atm)/gamma_w``, which equals the
     ``wt_elev`` the test implies.  Where a boring has tests at two or more depths, the vertical
-    gradient ``dh/dz`` is the least-squares slope of head against elevation: zero for
-    hydrostatic conditions, positive when head increases upward (upward flow), negative when
-    it decreases upward (downward flow).
+    gradient ``dh/dz`` is the least-squares slope of head against elevation (see
+    :func:`vertical_gradients`: positive when head rises upward, i.e. downward flow; negative
+    for upward flow).
 
     Returns
     -------
@@ -446,14 +575,9 @@ def piezometric_profiles(levels: pd.DataFrame, borings: pd.DataFrame) -> pd.Data
     prof["elev"] = ground.reindex(prof["boring_id"]).to_numpy() - prof["depth"].to_numpy()
     prof["head"] = levels["wt_elev"].to_numpy()
     prof["n_tests"] = prof.groupby("boring_id")["test_id"].transform("size")
-    gradients = {}
-    for boring_id, group in prof.groupby("boring_id"):
-        if group["elev"].nunique() >= 2:
-            slope = np.polyfit(group["elev"].to_numpy(), group["head"].to_numpy(), 1)[0]
-            gradients[boring_id] = float(slope)
-        else:
-            gradients[boring_id] = float("nan")
-    prof["vertical_gradient"] = prof["boring_id"].map(gradients).astype(float)
+    prof["vertical_gradient"] = (
+        prof["boring_id"].astype(str).map(vertical_gradients(levels)).astype(float)
+    )
     return prof.sort_values(["boring_id", "depth"]).reset_index(drop=True)
 
 
