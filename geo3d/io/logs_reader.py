@@ -3,7 +3,10 @@
 Both readers return the same tidy table (``boring_id, depth, pressure, flow, ec [, time_s]``
 in internal units, sorted by depth), so a log stored as LAS reads exactly like the same log
 stored as CSV. Columns (or LAS curve mnemonics, matched case-insensitively) are named in the
-``[logs]`` section of ``site.toml``; units are those declared in ``[units]``.
+``[logs]`` section of ``site.toml``, and per format in ``[logs.csv]`` and ``[logs.las]`` where
+the two differ; units are those declared in ``[units]``.  A CSV log may state its units on the
+line under the column names (``[logs] units_row = true``): each stated unit of a mapped column
+must equal the declared one (compared through pint), or the log is refused.
 """
 
 from __future__ import annotations
@@ -19,9 +22,9 @@ import numpy as np
 import pandas as pd
 
 from geo3d.config import LogsSection, UnitsSection
-from geo3d.errors import Geo3dWarning, LogFormatError, where
+from geo3d.errors import Geo3dWarning, LogFormatError, UnitError, where
 from geo3d.io.readers import numeric_column, read_table
-from geo3d.units import to_internal
+from geo3d.units import factor, to_internal
 
 __all__ = ["read_log", "read_logs", "find_log_files", "LOG_COLUMNS"]
 
@@ -95,15 +98,65 @@ def _finish(
     return out
 
 
-def _mapping(logs: LogsSection) -> dict[str, str]:
-    names = {"depth": logs.depth, "pressure": logs.pressure, "flow": logs.flow, "ec": logs.ec}
-    if logs.time:
-        names["time_s"] = logs.time
+def _mapping(logs: LogsSection, layout: str) -> dict[str, str]:
+    """Column names for one file format: ``[logs.las]`` / ``[logs.csv]`` over ``[logs]``."""
+    own = getattr(logs, layout, None)
+
+    def name(key: str) -> str:
+        value = getattr(own, key, "") if own is not None else ""
+        return value or getattr(logs, key)
+
+    names = {key: name(key) for key in ("depth", "pressure", "flow", "ec")}
+    if name("time"):
+        names["time_s"] = name("time")
     return names
 
 
+#: Quantity of each log column, for the units line of a CSV log.
+_QUANTITY = {
+    "depth": "length",
+    "pressure": "pressure",
+    "flow": "flow",
+    "ec": "ec",
+    "time_s": "time",
+}
+
+
+def _declared(units: UnitsSection, key: str) -> str:
+    return "s" if key == "time_s" else getattr(units, _QUANTITY[key])
+
+
+def _check_units_row(
+    frame: pd.DataFrame, *, path: Path, names: dict[str, str], units: UnitsSection, line: int
+) -> None:
+    """Refuse a units line whose unit for a mapped column differs from ``[units]``."""
+    for key, column in names.items():
+        stated = str(frame[column].iloc[0]).strip()
+        if not stated:
+            continue
+        quantity = _QUANTITY[key]
+        declared = _declared(units, key)
+        place = where(path, line=line, column=column)
+        try:
+            same = np.isclose(factor(stated, quantity), factor(declared, quantity), rtol=1e-9)
+        except UnitError as exc:
+            msg = f"{place}: {exc} (units line under the column names)"
+            raise LogFormatError(msg) from None
+        if not same:
+            setting = (
+                "seconds (the time column)"
+                if key == "time_s"
+                else (f"[units] {quantity} = {declared!r}")
+            )
+            msg = (
+                f"{place}: the units line states {stated!r}, which conflicts with {setting}; "
+                f"expected {declared!r} (or a blank cell): convert the column or change [units]"
+            )
+            raise LogFormatError(msg)
+
+
 def _read_csv_log(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.DataFrame:
-    names = _mapping(logs)
+    names = _mapping(logs, "csv")
     required = list(names.values())
     if logs.boring_id != "filename":
         required.append(logs.boring_id)
@@ -115,6 +168,14 @@ def _read_csv_log(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.D
         error=LogFormatError,
     )
     first = frame.attrs["first_line"]
+    if logs.units_row:
+        _check_units_row(frame, path=path, names=names, units=units, line=first)
+        frame = frame.iloc[1:].reset_index(drop=True)
+        first += 1
+        frame.attrs["first_line"] = first
+        if frame.empty:
+            msg = f"{path}: the log has a units line but no data rows; expected readings"
+            raise LogFormatError(msg)
     values = {}
     for key, column in names.items():
         optional = key in ("ec", "time_s")
@@ -163,13 +224,13 @@ def _read_las_log(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.D
     if not mnemonics or len(las.index) == 0:
         msg = f"{path}: no curves or no data in ~ASCII; expected depth, pressure, flow and ec"
         raise LogFormatError(msg)
-    names = _mapping(logs)
+    names = _mapping(logs, "las")
     missing = [c for c in names.values() if c.lower() not in mnemonics]
     if missing:
         msg = (
             f"{path}, ~Curve: missing curve{'s' if len(missing) > 1 else ''} "
             f"{', '.join(map(repr, missing))}; expected curves "
-            f"{', '.join(names.values())} (names set in site.toml [logs]); found "
+            f"{', '.join(names.values())} (names set in site.toml [logs.las] or [logs]); found "
             f"{', '.join(c.mnemonic for c in las.curves)}"
         )
         raise LogFormatError(msg)

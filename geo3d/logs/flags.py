@@ -37,7 +37,6 @@ import warnings
 
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
-from scipy.ndimage import median_filter
 from sklearn.linear_model import HuberRegressor
 
 __all__ = [
@@ -201,16 +200,20 @@ def spike_flags(
     pressure_k: float | None = None,
     relative_floor: float = 1.0,
     gap: int = 2,
+    ceiling_quantile: float = 0.99,
+    hydraulic_floor: float = 0.1,
 ) -> np.ndarray:
     """Flag EC spikes: narrow EC rises above both neighbours, with no hydraulic change.
 
     A spike stands out from both sides: its log10 EC exceeds the median log10 EC of the samples
     on its left *and* on its right (windows of ``half_window``, starting ``gap`` samples away so
     that a spike a few samples wide is not its own neighbour) by more than ``k`` scaled MADs of
-    those windows and by more than ``log10(1 + relative_floor)``.  A step at a contact has one
-    side at its own level, and the first or last readings of a log have no side to compare
-    with, so neither is a spike.  An EC rise with a hydraulic excursion at or next to it is a
-    real layer, not a spike.  Working in log10 EC makes the test scale-free under the
+    those windows and by more than ``log10(1 + relative_floor)``, and its peak exceeds the
+    ``ceiling_quantile`` of the site's EC.  A step at a contact has one side at its own level,
+    and the first or last readings of a log have no side to compare with, so neither is a
+    spike.  An EC rise over which the median hydraulic signal differs from the levels on both
+    sides (by ``pressure_k`` scaled MADs and by ``hydraulic_floor``) is a real layer, not a
+    spike.  Working in log10 EC makes the test scale-free under the
     multiplicative noise of EC sensors.
 
     Parameters
@@ -230,8 +233,9 @@ def spike_flags(
     k
         Threshold in scaled MADs of log10 EC.
     pressure_k
-        Threshold (scaled MADs) of a hydraulic excursion that would explain an EC one; half of
-        ``k`` when None, so that a modest matching change is enough to call it a layer.
+        Threshold (scaled MADs of the hydraulic side windows) of a hydraulic change that would
+        explain an EC rise; half of ``k`` when None, so that a modest matching change is
+        enough to call it a layer.
     relative_floor
         Smallest EC rise flagged, as a share of the higher side level: a metal contact
         short-circuits the electrodes and multiplies the reading, while bulk EC rarely doubles
@@ -239,6 +243,13 @@ def spike_flags(
         spikes.
     gap
         Samples skipped on each side between a sample and its side windows.
+    ceiling_quantile
+        A spike's peak must exceed this quantile of every EC reading of the site: a metal
+        contact reads above anything the soil gives, while a thin clay lens, which the
+        injection may barely notice, reads like the site's other clays.
+    hydraulic_floor
+        Smallest change of the hydraulic signal that makes an EC rise a real layer, in its
+        units (0.1 log10 units of Q/P_net is a 26 % change of K).
 
     Returns
     -------
@@ -256,6 +267,8 @@ def spike_flags(
     with np.errstate(divide="ignore", invalid="ignore"):
         lec = np.where(ec > 0, np.log10(ec), np.nan)
     floor = np.log10(1.0 + relative_floor)
+    finite = ec[np.isfinite(ec)]
+    ceiling = float(np.quantile(finite, ceiling_quantile)) if finite.size else np.inf
     out = np.zeros(depth.size, dtype=bool)
     for gid in np.unique(groups):
         idx = np.flatnonzero(groups == gid)
@@ -269,17 +282,23 @@ def spike_flags(
             ec_out = (rise > k * scale) & (rise > floor)
         ec_out &= np.isfinite(left_level) & np.isfinite(right_level)
         hydraulic = pressure[idx]
-        _, p_median, p_scale = hampel(hydraulic, half_window=h, k=pk)
-        # A real layer moves the hydraulic signal over consecutive samples: test the running
-        # median of three against the window, so that one noisy reading (common where the net
-        # pressure is only a few noise units, as in gravel) cannot pass for a layer.
-        short = median_filter(hydraulic, size=3, mode="nearest")
-        p_out = np.abs(short - p_median) > pk * p_scale
-        # a hydraulic excursion at or next to the EC one explains it (a real layer)
-        near_p = p_out.copy()
-        near_p[1:] |= p_out[:-1]
-        near_p[:-1] |= p_out[1:]
-        out[idx] = ec_out & ~near_p
+        h_left, h_right = _side_windows(hydraulic, h, gap)
+        h_left_level, h_left_scale = _side_level(h_left, max(2, h // 2))
+        h_right_level, h_right_scale = _side_level(h_right, max(2, h // 2))
+        # a real layer moves the hydraulic signal over the EC rise away from both sides; a
+        # metal contact leaves it where it was; so does a peak within the EC range the soil of
+        # the site gives
+        flagged = np.zeros(idx.size, dtype=bool)
+        for start, stop in _runs(ec_out):
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                level = np.nanmedian(hydraulic[start:stop])
+            moved = min(abs(level - h_left_level[start]), abs(level - h_right_level[stop - 1]))
+            scale = max(h_left_scale[start], h_right_scale[stop - 1])
+            explained = moved > max(pk * scale, hydraulic_floor) or not np.isfinite(moved)
+            if not explained and np.nanmax(ec[idx][start:stop]) > ceiling:
+                flagged[start:stop] = True
+        out[idx] = flagged
     return out
 
 

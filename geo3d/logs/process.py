@@ -39,6 +39,7 @@ from geo3d.facies import (
     classify_thresholds,
 )
 from geo3d.logs.calibration import calibrate
+from geo3d.logs.censored import screen_ratios
 from geo3d.logs.composite import FLAGS, K_EXCLUDING_FLAGS, composite
 from geo3d.logs.flags import ionic_flags, resolution_flags, spike_flags
 from geo3d.logs.hydraulic import shape_factor
@@ -59,6 +60,10 @@ from geo3d.logs.water_level import (
 __all__ = ["LogResults", "process_logs", "write_logs_outputs"]
 
 logger = logging.getLogger(__name__)
+
+#: Net pressure, in sensor-noise SDs, above which a reading's Q/P_net is taken as read (the
+#: noise then biases 1/P_net by under 1 %, (sigma/P)**2).
+_RESOLVED_SNR = 10.0
 
 
 @dataclass
@@ -312,13 +317,22 @@ def process_logs(site: Any) -> LogResults:
     for name in K_EXCLUDING_FLAGS:
         k_bad |= samples[name].to_numpy(dtype=bool)
     bounds = _ratio_bounds(samples, config, flags)
-    # a slug test averages K over every sample of its screen: unresolved samples enter the
-    # screen mean at their bound (tight soil adds almost nothing to an arithmetic mean, but
-    # leaving it out would inflate the mean by the share of the screen it occupies)
-    ratio_for_screens = np.where(k_bad, bounds, samples["q_over_p"].to_numpy(dtype=float))
+    # a slug test averages K over every sample of its screen: samples near the pressure floor
+    # enter through the noise model, samples too tight to resolve as censored values, so that
+    # neither the noise nor the probe's range biases the screen mean
+    slug_tests = getattr(site, "slug_tests", None)
+    ratio_for_screens, slug_tests = screen_ratios(
+        samples,
+        slug_tests,
+        resolved=~k_bad & (p_net >= _RESOLVED_SNR * sensor_noise),
+        censored_below=np.where(flags["out_of_range_low"], bounds, np.nan),
+        usable=~flags["above_water"],
+        beyond=flags["out_of_range_high"] | flags["out_of_range_low"],
+        sensor_noise=sensor_noise,
+    )
     calibration = calibrate(
         samples.assign(q_over_p=ratio_for_screens),
-        getattr(site, "slug_tests", None),
+        slug_tests,
         shape_factor_m=f_m,
         min_slug_tests=int(_option(config, "flags", "min_slug_tests", 3)),
         usable=~flags["above_water"],
