@@ -199,7 +199,8 @@ def _boring_log(rng, opts, plan, truth: Truth, clock_start: pd.Timestamp):
         flow[:n_off] = 0.0
         pressure[:n_off] = p_atm[:n_off]
     pressure = pressure + rng.normal(0.0, opts.pressure_noise, n)
-    flow = np.clip(flow + rng.normal(0.0, 1.0, n), 0.0, None)
+    # flow-meter noise while the pump runs; a stopped pump reads zero
+    flow = np.where(flow > 0, np.clip(flow + rng.normal(0.0, 1.0, n), 0.0, None), 0.0)
     log10_ec = 1.2 - 0.22 * (np.clip(log10_k, -9, -2.5) + 5.0) + ec_off
     ec = 10.0**log10_ec * np.where(saturated, 1.0, 0.6)
     # topsoil or fill at the top of the log: 5-25 cm of higher EC (a real layer)
@@ -337,7 +338,7 @@ def make_site(root: Path, seed: int, opts: Options) -> Truth:
         dtw = float(ground[i] - wt[i])
         g = float(rng.uniform(*opts.vertical_gradient))
         if opts.start == "mixed":
-            start = "flow_off" if i % 2 == 0 else "flow_on"
+            start = "flow_off" if i % 4 in (0, 1) else "flow_on"  # both kinds each day
         else:
             start = opts.start
         total = float(rng.uniform(*opts.total_depth))
@@ -432,11 +433,14 @@ def _ionic_interval(rows, dtw: float, total: float) -> tuple[float, float] | Non
 
 
 def _spike_depth(rows, dtw: float, total: float, depth: np.ndarray) -> list[float]:
-    """A metal contact inside a unit, at least 0.25 m from its contacts, below the water table."""
-    for r in rows:
-        top, bottom = max(r[0], dtw + 0.3) + 0.25, min(r[1], total) - 0.25
-        if bottom > top:
-            return [round(0.5 * (top + bottom), 3)]
+    """A metal contact at least 0.25 m from any contact or lens, below the water table.
+
+    (At a contact the injection changes too, and nothing tells the two apart.)
+    """
+    edges = np.array([edge for r in rows for edge in r[:2]])
+    for candidate in np.arange(dtw + 0.6, total - 0.3, 0.05):
+        if np.all(np.abs(edges - candidate) >= 0.25):
+            return [round(float(candidate), 3)]
     return [round(0.5 * (dtw + total), 3)]
 
 

@@ -201,7 +201,7 @@ def spike_flags(
     relative_floor: float = 1.0,
     gap: int = 2,
     ceiling_quantile: float = 0.99,
-    hydraulic_floor: float = 0.1,
+    hydraulic_floor: float = 0.3,
 ) -> np.ndarray:
     """Flag EC spikes: narrow EC rises above both neighbours, with no hydraulic change.
 
@@ -249,7 +249,8 @@ def spike_flags(
         injection may barely notice, reads like the site's other clays.
     hydraulic_floor
         Smallest change of the hydraulic signal that makes an EC rise a real layer, in its
-        units (0.1 log10 units of Q/P_net is a 26 % change of K).
+        units (0.3 log10 units of Q/P_net is a factor of 2 in K: a layer that changes EC as
+        much as a spike does changes K by more, a slow drift of K within a unit by less).
 
     Returns
     -------

@@ -399,14 +399,31 @@ def water_levels(
     return pd.DataFrame(rows, columns=_LEVEL_COLUMNS)
 
 
+#: Share of the initial excess gone by the end of a record above which an extrapolated static
+#: pressure is as good as a direct reading (the extrapolated part is under 5 % of the excess).
+DIRECT_FRACTION = 0.95
+
+
+def _direct(levels: pd.DataFrame) -> np.ndarray:
+    """Mark the tests read directly: settled records, or nearly complete ones."""
+    if "method" not in levels:
+        return np.ones(len(levels), dtype=bool)
+    direct = levels["method"].eq("tail").to_numpy()
+    if "fraction_dissipated" in levels:
+        nearly = levels["fraction_dissipated"].to_numpy(dtype=float) >= DIRECT_FRACTION
+        direct = direct | nearly
+    return np.asarray(direct, dtype=bool)
+
+
 def water_table_tests(levels: pd.DataFrame, *, depth_tolerance: float = 0.5) -> np.ndarray:
     """Which tests of each boring the water table is read from: those nearest to it.
 
     In a vertical head gradient each test depth gives a different ``wt_elev`` (the head at that
-    depth); only the tests nearest the water table read it.  Tests that reached equilibrium
-    (method ``"tail"``, a direct reading) are preferred over extrapolated ones wherever a boring
-    has any (an extrapolation that stopped early can be off by decimetres); of those, the tests
-    within ``depth_tolerance`` of the shallowest are kept.
+    depth); only the tests nearest the water table read it.  Tests read directly (method
+    ``"tail"``, or records that dissipated at least :data:`DIRECT_FRACTION` of their excess) are
+    preferred over extrapolated ones wherever a boring has any (an extrapolation that stopped
+    early can be off by decimetres); of those, the tests within ``depth_tolerance`` of the
+    shallowest are kept.
 
     Parameters
     ----------
@@ -429,7 +446,7 @@ def water_table_tests(levels: pd.DataFrame, *, depth_tolerance: float = 0.5) -> 
         return np.zeros(0, dtype=bool)
     boring = levels["boring_id"].astype(str).to_numpy()
     depth = levels["depth"].to_numpy(dtype=float)
-    direct = levels["method"].eq("tail").to_numpy()
+    direct = _direct(levels)
     has_direct = pd.Series(direct).groupby(boring).transform("any").to_numpy()
     best = direct | ~has_direct
     candidate = pd.Series(np.where(best, depth, np.nan))
@@ -443,7 +460,9 @@ def boring_water_levels(levels: pd.DataFrame, *, depth_tolerance: float = 0.5) -
 
     The tests chosen by :func:`water_table_tests` are averaged; a deeper test in an upward or
     downward head gradient does not shift the water table.  Where a boring has tests at two or
-    more depths, its vertical head gradient (:func:`piezometric_profiles`) is reported.
+    more depths, its vertical head gradient (:func:`vertical_gradients`) is reported, and where
+    direct readings measured it clearly (two standard errors) the head of the chosen tests is
+    followed along it up to the water table, where the pressure head is zero.
 
     Returns
     -------
@@ -455,7 +474,9 @@ def boring_water_levels(levels: pd.DataFrame, *, depth_tolerance: float = 0.5) -
     levels = levels.copy()
     levels["boring_id"] = levels["boring_id"].astype(str)
     gradients = vertical_gradients(levels)
+    clear = vertical_gradients(levels, direct_only=True, significance=2.0)
     chosen = levels[water_table_tests(levels, depth_tolerance=depth_tolerance)]
+    chosen = chosen.assign(ground=chosen["wt_elev"] + chosen["depth_to_water"])
     grouped = chosen.groupby("boring_id", sort=True)
     out = grouped.agg(
         x=("x", "first"),
@@ -464,9 +485,22 @@ def boring_water_levels(levels: pd.DataFrame, *, depth_tolerance: float = 0.5) -
         depth_to_water=("depth_to_water", "mean"),
         n_tests=("test_id", "size"),
         test_depth=("depth", "mean"),
+        ground=("ground", "mean"),
     ).reset_index()
+    # in a clear vertical gradient g = dh/dz, the head at the test differs from the water-table
+    # elevation by g times the test's depth below it: follow the head line h(z) = h_t +
+    # g (z - z_t) up to where h = z, z_wt = (h_t - g z_t) / (1 - g)
+    g = out["boring_id"].map(clear).astype(float).to_numpy()
+    correct = np.isfinite(g) & np.isfinite(out["test_depth"].to_numpy(dtype=float))
+    if correct.any():
+        head = out["wt_elev"].to_numpy(dtype=float)
+        z_test = out["ground"].to_numpy(dtype=float) - out["test_depth"].to_numpy(dtype=float)
+        with np.errstate(invalid="ignore"):
+            z_wt = (head - g * z_test) / (1.0 - g)
+        out["wt_elev"] = np.where(correct, z_wt, head)
+        out["depth_to_water"] = out["ground"] - out["wt_elev"]
     out["vertical_gradient"] = out["boring_id"].map(gradients).astype(float)
-    return out
+    return out.drop(columns="ground")
 
 
 def vertical_gradients(
@@ -480,7 +514,8 @@ def vertical_gradients(
     """Vertical head gradient ``dh/dz`` of each boring with tests at two or more depths.
 
     The least-squares slope of head (``wt_elev`` of each test) against the test elevation.
-    Direct readings (method ``"tail"``) are used alone where they exist at two depths or more,
+    Direct readings (see :func:`water_table_tests`) are used alone where they exist at two
+    depths or more,
     and always with ``direct_only`` (an extrapolation that stopped early can be off by
     decimetres, which over a few metres is a gradient of several percent).
     With elevation upward, ``dh/dz > 0`` means head rises upward: water flows downward
@@ -502,7 +537,7 @@ def vertical_gradients(
     """
     out: dict[str, float] = {}
     for boring_id, group in levels.groupby(levels["boring_id"].astype(str)):
-        direct = group[group["method"].eq("tail")] if "method" in group else group
+        direct = group[_direct(group)]
         if direct_only or direct["depth"].nunique() >= 2:
             group = direct  # direct readings only, where they span two depths
         depth = group["depth"].to_numpy(dtype=float)
