@@ -174,3 +174,23 @@ def test_facies_classes_checked(tmp_path: Path):
 def test_folder_path_reads_site_toml(tmp_path: Path):
     write(tmp_path, MINIMAL)
     assert load_config(tmp_path).site.name == "S"
+
+
+def test_barometric_values_and_the_anomaly_thickness_are_converted(tmp_path: Path):
+    text = MINIMAL + (
+        '[units]\nlength = "ft"\npressure = "psi"\n'
+        '[probe]\nbarometric_pressure = { "2026-06-01" = 14.7, B07 = 14.6 }\n'
+        "[flags]\nec_min_thickness = 1.0\n"
+        '[logs]\nunits_row = true\n[logs.las]\npressure = "PRES"\n'
+    )
+    config = load_config(write(tmp_path, text))
+    # 1 psi = 6.894757 kPa, 1 ft = 0.3048 m (NIST SP 811)
+    assert config.probe.barometric_pressure == pytest.approx(
+        {"2026-06-01": 14.7 * PSI, "B07": 14.6 * PSI}
+    )
+    assert config.flags.ec_min_thickness == pytest.approx(FT)
+    assert config.logs.units_row and config.logs.las.pressure == "PRES"
+    assert config.logs.csv.pressure == ""
+    one = load_config(write(tmp_path, MINIMAL + "[probe]\nbarometric_pressure = 101.2\n"))
+    assert one.probe.barometric_pressure == pytest.approx(101.2)
+    assert load_config(write(tmp_path, MINIMAL)).probe.barometric_pressure == "none"

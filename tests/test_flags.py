@@ -3,7 +3,13 @@ import pandas as pd
 import pytest
 
 from geo3d.errors import Geo3dWarning, TableFormatError
-from geo3d.logs.flags import hampel, ionic_flags, resolution_flags, spike_flags
+from geo3d.logs.flags import (
+    hampel,
+    ionic_flags,
+    keep_thick_runs,
+    resolution_flags,
+    spike_flags,
+)
 from geo3d.logs.sensor_checks import evaluate_sensor_checks, sensor_check_flags
 
 
@@ -147,3 +153,35 @@ def test_a_two_sample_layer_is_not_a_spike():
     ec[200:202] += 40.0
     pressure[200:202] += 60.0  # a 3 cm layer seen by both sensors
     assert not spike_flags(depth, ec, pressure, np.full(depth.size, "B1")).any()
+
+
+def test_a_step_at_a_contact_and_the_first_readings_are_not_spikes():
+    # invented log: sand (10 mS/m) over clay (80 mS/m), sharp contact at 2 m, 12 %
+    # multiplicative noise; the log starts in topsoil (40 mS/m) for its first 6 readings
+    rng = np.random.default_rng(5)
+    depth = np.round(np.arange(0.0, 4.0, 0.02), 3)
+    ec = np.where(depth < 2.0, 10.0, 80.0)
+    ec[:6] = 40.0
+    ec = ec * (1 + rng.normal(0, 0.12, depth.size))
+    hydraulic = np.where(depth < 2.0, -4.5, -7.5) + rng.normal(0, 0.02, depth.size)
+    groups = np.full(depth.size, "B1")
+    assert not spike_flags(depth, ec, hydraulic, groups).any()
+    # the same contact with a flat hydraulic signal (held at the pressure limit) is a step,
+    # not a spike
+    assert not spike_flags(depth, ec, np.full(depth.size, -7.5), groups).any()
+    # a metal contact (x 30 over three readings, common practice) inside the sand is
+    ec[50:53] *= 30.0
+    assert spike_flags(depth, ec, hydraulic, groups)[50:53].all()
+
+
+def test_an_ec_anomaly_needs_a_run_of_the_minimum_thickness():
+    # three samples over the threshold (6 cm) are not an anomaly; fifteen (30 cm) are
+    depth = np.round(np.arange(0.0, 2.0, 0.02), 3)
+    short = (depth >= 0.5) & (depth < 0.56)
+    long = (depth >= 1.0) & (depth < 1.3)
+    kept = keep_thick_runs(short | long, depth, min_thickness=0.2)
+    assert not kept[short].any() and kept[long].all()
+    # an unresolved sample inside a run does not break it
+    unknown = depth == 1.1
+    kept = keep_thick_runs(long & ~unknown, depth, min_thickness=0.2, unknown=unknown)
+    assert kept[long].all()

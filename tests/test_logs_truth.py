@@ -76,8 +76,11 @@ def test_water_levels_whatever_the_flow_at_the_collar(tmp_path, start, barometer
 
 def test_standard_atmosphere_fallback_states_its_uncertainty(tmp_path):
     truth = make_site(tmp_path / "site", 21, Options(start="flow_on", n_borings=6))
-    with pytest.warns(Geo3dWarning, match=r"0\.10 m; the weather"):
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", Geo3dWarning)
         result = process_logs(read_site(truth.root))
+    messages = [str(w.message) for w in caught]
+    assert any("ISO 2533" in m and "0.10 m; the weather" in m for m in messages), messages
     assert set(result.reference_pressure["p_atm_source"]) == {"standard_atmosphere"}
     # physics: depth_to_water = depth - (P_static - P_atm)/gamma_w, so a reference that is off
     # by dP puts the water level off by -dP/gamma_w (ISO 2533 at the collar elevation)

@@ -9,10 +9,12 @@ from hypothesis import strategies as st
 from geo3d.errors import Geo3dWarning, WaterLevelError
 from geo3d.logs.water_level import (
     aitken_extrapolation,
+    boring_water_levels,
     depth_to_water,
     fit_water_table,
     gradient_plane,
     piezometric_profiles,
+    static_pore_pressure,
     static_pressure,
     water_levels,
 )
@@ -157,7 +159,7 @@ def test_untrusted_tests_are_left_out_with_a_warning():
 
 def test_piezometric_profile_gives_the_vertical_gradient():
     # two tests 5 m apart in one boring; heads 16.8 m (shallow) and 16.3 m (deep):
-    # dh/dz = (16.8 - 16.3) / 5 = +0.1 (head rises upward: upward flow), hand computation
+    # dh/dz = (16.8 - 16.3) / 5 = +0.1 (head rises upward: downward flow), hand computation
     dissipation = pd.concat([_record("A", 1, 6.0, 3.2), _record("A", 2, 11.0, 3.7)])
     levels = water_levels(dissipation, BORINGS, p_atm=P_ATM)
     prof = piezometric_profiles(levels, BORINGS)
@@ -248,3 +250,36 @@ def test_plane_through_exact_heads_is_recovered(a, b, c, seed):
     if magnitude > 1e-6:
         step = np.array([np.sin(np.radians(direction)), np.cos(np.radians(direction))])
         assert a * step[0] + b * step[1] == pytest.approx(-magnitude, rel=1e-6)
+
+
+def _gradient_record(boring_id, test_id, depth, dtw, g, ground=20.0):
+    # head h(z) = z_wt + g (z - z_wt) below the water table (Freeze & Cherry 1979, h = z + psi)
+    record = _record(boring_id, test_id, depth, dtw)
+    z_wt, z = ground - dtw, ground - depth
+    static = P_ATM + GAMMA_W * (z_wt + g * (z - z_wt) - z)
+    record["pressure"] = static + 35.0 * np.exp(-record["time_s"] / 25.0)
+    return record
+
+
+def test_a_deep_test_in_an_upward_gradient_does_not_shift_the_water_table():
+    # upward flow, dh/dz = -0.05; water table 3.0 m deep; tests 4.0 m and 10.0 m deep
+    dissipation = pd.concat(
+        [_gradient_record("A", 1, 4.0, 3.0, -0.05), _gradient_record("A", 2, 10.0, 3.0, -0.05)]
+    )
+    levels = water_levels(dissipation, BORINGS, p_atm=P_ATM)
+    # the deep test reads a head 0.35 m above the water table (0.05 * 7 m): averaging the two
+    # tests would put the water table 0.2 m too high
+    assert levels["wt_elev"].max() - levels["wt_elev"].min() == pytest.approx(0.3, abs=0.01)
+    per_boring = boring_water_levels(levels)
+    assert per_boring["vertical_gradient"].iloc[0] == pytest.approx(-0.05, abs=1e-3)
+    assert per_boring["test_depth"].iloc[0] == 4.0
+    # the shallow test's head followed along the measured gradient up to the water table
+    assert per_boring["depth_to_water"].iloc[0] == pytest.approx(3.0, abs=0.005)
+
+
+def test_static_pore_pressure_in_a_vertical_gradient():
+    # p = gamma_w (h - z): hydrostatic for g = 0, gamma_w (1 - g)(depth - dtw) in a gradient
+    assert static_pore_pressure(8.0, 3.0) == pytest.approx(GAMMA_W * 5.0)
+    assert static_pore_pressure(8.0, 3.0, -0.05) == pytest.approx(GAMMA_W * 5.0 * 1.05)
+    assert static_pore_pressure(2.0, 3.0, -0.05) == 0.0
+    assert static_pore_pressure(8.0, 3.0, np.nan) == pytest.approx(GAMMA_W * 5.0)
