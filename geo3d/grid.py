@@ -28,6 +28,7 @@ from scipy.ndimage import map_coordinates
 from scipy.spatial import QhullError, cKDTree
 
 from geo3d.errors import CRSError, GeometryError, ModelError
+from geo3d.facies import FaciesClasses
 
 __all__ = [
     "make_grid",
@@ -352,6 +353,11 @@ class VoxelAccessor:
         )
 
     @property
+    def facies_classes(self) -> FaciesClasses:
+        """The hydrofacies classes recorded in the attributes (see :meth:`FaciesClasses.attrs`)."""
+        return FaciesClasses.from_attrs(self._ds.attrs)
+
+    @property
     def ground(self) -> xr.DataArray:
         """Ground elevation per column (``ground_elev``)."""
         if "ground_elev" not in self._ds:
@@ -370,10 +376,6 @@ class VoxelAccessor:
         if z is None:
             z = self._ds["z"]
         return self.ground - z
-
-    def elevation_of(self, depth: Any) -> xr.DataArray:
-        """Elevation of a depth below the ground surface, for each column."""
-        return self.ground - depth
 
     def to_pyvista(self):
         """Convert to a :class:`pyvista.ImageData` with each ``(z, y, x)`` variable as cell data.

@@ -11,12 +11,11 @@ from scipy.stats import norm
 from geo3d.analysis.thickness import thickness_maps
 from geo3d.analysis.volumes import zone_volumes
 from geo3d.errors import ModelError
+from geo3d.facies import FaciesClasses
 from geo3d.model import (
     NormalScore,
     build_voxel_model,
-    classify_log10_k,
     facies_probabilities,
-    facies_table,
 )
 
 
@@ -160,8 +159,8 @@ def test_realizations_spread_as_the_kriging_variance(built):
     ratio = np.mean(departure**2) / np.mean(ds["log10_k_var"].values[mask])
     assert 0.5 < ratio < 1.5
     # the facies frequencies over the realizations are the prob_ variables (definition)
-    table = facies_table(CLASSES)
-    codes = classify_log10_k(ds["realizations"].values, table)
+    table = FaciesClasses.from_items(CLASSES)
+    codes = table.classify(ds["realizations"].values)
     share = (codes == table.transmissive).mean(axis=0)
     assert np.allclose(share[mask], ds["prob_transmissive"].values[mask])
 
@@ -191,7 +190,7 @@ def test_normal_score_realizations_keep_the_data_range():
     values = ds["realizations"].values[:, ds["mask"].values]
     assert values.min() >= intervals["log10_k"].min() - 1e-12
     assert values.max() <= intervals["log10_k"].max() + 1e-12
-    codes = classify_log10_k(values, facies_table(CLASSES))
+    codes = FaciesClasses.from_items(CLASSES).classify(values)
     shares = [(codes == i).mean() for i in range(3)]
     assert shares == pytest.approx([0.4, 0.3, 0.3], abs=0.1)
 
@@ -216,7 +215,7 @@ def test_normal_score_transform():
 
 
 def test_facies_probabilities_match_the_normal_law():
-    table = facies_table(CLASSES)
+    table = FaciesClasses.from_items(CLASSES)
     prob = facies_probabilities(np.array([-6.5]), np.array([0.25]), table)
     # N(-6.5, 0.5^2): P(< -7) = Phi(-1), P(-7..-5) = Phi(3) - Phi(-1), P(>= -5) = 1 - Phi(3)
     # (normal law; scipy.stats.norm as reference)

@@ -18,8 +18,9 @@ from geo3d.analysis.volumes import (
     zone_volumes,
 )
 from geo3d.errors import GeometryError
+from geo3d.facies import FaciesClasses
 from geo3d.grid import make_grid
-from geo3d.model import classify_log10_k, facies_probabilities, facies_table
+from geo3d.model import facies_probabilities
 
 
 def rows(table, zone="site", band="all"):
@@ -119,10 +120,10 @@ def test_volumes_converge_with_refinement():
         ds["ground_elev"] = (("y", "x"), np.full(shape[1:], 10.0))
         depth = np.broadcast_to(10.0 - ds["z"].values[:, None, None], shape)
         field = np.where((depth > 5.1) & (depth < 7.4), -4.0, -8.0)
-        table = facies_table(CLASSES)
+        table = FaciesClasses.from_items(CLASSES)
         ds["mask"] = (("z", "y", "x"), np.ones(shape, bool))
         ds["log10_k"] = (("z", "y", "x"), field)
-        ds["facies_code"] = (("z", "y", "x"), classify_log10_k(field, table))
+        ds["facies_code"] = (("z", "y", "x"), table.classify(field))
         ds.attrs.update(table.attrs())
         volume = rows(zone_volumes(ds, None)).loc["transmissive", "bulk_volume_m3"]
         errors.append(abs(volume - 460.0))
@@ -146,12 +147,12 @@ def test_volume_properties(seed, n_sims, x0, top, thick):
     ground = rng.uniform(2, 5, shape[1:])
     ds["ground_elev"] = (("y", "x"), ground)
     mask = ds["z"].values[:, None, None] <= ground[None]
-    table = facies_table(CLASSES)
+    table = FaciesClasses.from_items(CLASSES)
     mean = np.where(mask, rng.normal(-6, 2, shape), np.nan)
     var = rng.uniform(0, 2, shape)
     ds["mask"] = (("z", "y", "x"), mask)
     ds["log10_k"] = (("z", "y", "x"), mean)
-    ds["facies_code"] = (("z", "y", "x"), classify_log10_k(mean, table))
+    ds["facies_code"] = (("z", "y", "x"), table.classify(mean))
     prob = facies_probabilities(mean, var, table)
     for i, name in enumerate(table.names):
         ds[f"prob_{name}"] = (("z", "y", "x"), prob[i])

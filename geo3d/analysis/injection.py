@@ -35,7 +35,7 @@ from scipy.spatial import Voronoi, cKDTree
 from geo3d.analysis.thickness import _dataset
 from geo3d.analysis.volumes import Region, probability_stack, region_weights
 from geo3d.errors import Geo3dWarning, GeometryError, ModelError
-from geo3d.model import classify_log10_k, facies_table
+from geo3d.facies import FaciesClasses
 from geo3d.units import from_internal
 
 __all__ = [
@@ -307,7 +307,11 @@ def injection_plan(
        layers of a screened interval in proportion to their transmissivity K b.
     """
     ds = _dataset(model)
-    table = facies_table(facies_classes, model=ds)
+    table = (
+        ds.voxels.facies_classes
+        if facies_classes is None
+        else FaciesClasses.from_items(facies_classes)
+    )
     region = Region.from_zone(zone)
     polygon = region.geometry
     if polygon is None:
@@ -325,7 +329,7 @@ def injection_plan(
     codes = (
         ds["facies_code"].values.astype(int)
         if "facies_code" in ds
-        else classify_log10_k(ds["log10_k"].values, table).astype(int)
+        else table.classify(ds["log10_k"].values).astype(int)
     )
     hrange = None
     if isinstance(target, str):
@@ -384,7 +388,7 @@ def injection_plan(
     if "realizations" in ds and ds.sizes.get("realization", 0) > 0:
         designs = []
         for r in range(ds.sizes["realization"]):
-            sim = classify_log10_k(ds["realizations"].isel(realization=r).values, table)
+            sim = table.classify(ds["realizations"].isel(realization=r).values)
             sim_eff = np.where(sim >= 0, table.effective_porosity[np.clip(sim, 0, None)], 0.0)
             sw = target_weight(sim.astype(int))
             designs.append(float((sw * sim_eff).sum()) * cell_volume * design_fraction)

@@ -18,8 +18,8 @@ import numpy as np
 import xarray as xr
 
 from geo3d.errors import ModelError
+from geo3d.facies import FaciesClasses
 from geo3d.grid import height_fraction
-from geo3d.model import FaciesTable, classify_log10_k, facies_table
 
 __all__ = ["thickness_maps", "depth_range_fraction", "column_runs", "nan_percentiles"]
 
@@ -139,7 +139,7 @@ def _maps_from_codes(
     log10_k: np.ndarray,
     weight: np.ndarray,
     ds: xr.Dataset,
-    table: FaciesTable,
+    table: FaciesClasses,
 ) -> dict[str, np.ndarray]:
     """Compute the maps of one facies field (``weight``: covered height fraction per cell)."""
     _, _, dz = ds.voxels.cell_size
@@ -209,18 +209,22 @@ def thickness_maps(
        transmissivity T = K b, summed over layers for a layered aquifer.
     """
     ds = _dataset(model)
-    table = facies_table(facies_classes, model=ds)
+    table = (
+        ds.voxels.facies_classes
+        if facies_classes is None
+        else FaciesClasses.from_items(facies_classes)
+    )
     weight = depth_range_fraction(ds, depth_range)
     if "facies_code" in ds:
         codes = ds["facies_code"].values.astype(int)
     else:
-        codes = classify_log10_k(ds["log10_k"].values, table).astype(int)
+        codes = table.classify(ds["log10_k"].values).astype(int)
     maps = _maps_from_codes(codes, ds["log10_k"].values, weight, ds, table)
     if "realizations" in ds and ds.sizes.get("realization", 0) > 0:
         stacks: dict[str, list[np.ndarray]] = {name: [] for name in maps}
         for r in range(ds.sizes["realization"]):
             field = ds["realizations"].isel(realization=r).values
-            sim = _maps_from_codes(classify_log10_k(field, table), field, weight, ds, table)
+            sim = _maps_from_codes(table.classify(field), field, weight, ds, table)
             for name, values in sim.items():
                 stacks[name].append(values)
         for name, values in stacks.items():

@@ -30,8 +30,8 @@ import xarray as xr
 
 from geo3d.analysis.thickness import _dataset
 from geo3d.errors import GeometryError, ModelError
+from geo3d.facies import FaciesClasses
 from geo3d.grid import height_fraction
-from geo3d.model import FaciesTable, classify_log10_k, facies_table
 
 __all__ = [
     "Region",
@@ -338,7 +338,7 @@ def _regions(
     return regions
 
 
-def probability_stack(ds: xr.Dataset, table: FaciesTable) -> np.ndarray:
+def probability_stack(ds: xr.Dataset, table: FaciesClasses) -> np.ndarray:
     """Facies probabilities ``(n_classes, nz, ny, nx)`` of a model (0 where unknown).
 
     From the ``prob_<facies>`` variables, or the indicators of ``facies_code`` without them.
@@ -402,7 +402,11 @@ def zone_volumes(
        and effective porosity as void and drainable fractions of the bulk volume.
     """
     ds = _dataset(model)
-    table = facies_table(facies_classes, model=ds)
+    table = (
+        ds.voxels.facies_classes
+        if facies_classes is None
+        else FaciesClasses.from_items(facies_classes)
+    )
     nclass = len(table.names)
     cell_volume = ds.voxels.cell_volume
     cell_area = ds.voxels.cell_area
@@ -410,12 +414,12 @@ def zone_volumes(
     if "facies_code" in ds:
         codes = ds["facies_code"].values.astype(int)
     else:
-        codes = classify_log10_k(ds["log10_k"].values, table).astype(int)
+        codes = table.classify(ds["log10_k"].values).astype(int)
     known = codes >= 0
     sims: list[np.ndarray] = []
     if "realizations" in ds and ds.sizes.get("realization", 0) > 0:
         for r in range(ds.sizes["realization"]):
-            sims.append(classify_log10_k(ds["realizations"].isel(realization=r).values, table))
+            sims.append(table.classify(ds["realizations"].isel(realization=r).values))
     mask = ds.voxels.mask
     retardation = None
     n_mass = None
