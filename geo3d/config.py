@@ -19,6 +19,7 @@ from __future__ import annotations
 import difflib
 import re
 import tomllib
+from dataclasses import dataclass
 from os import PathLike
 from pathlib import Path
 from typing import Any, Literal
@@ -46,6 +47,8 @@ __all__ = [
     "SimulationSection",
     "TreatmentSection",
     "OutputSection",
+    "ModelOptions",
+    "VolumeOptions",
     "load_config",
     "config_from_dict",
     "TEMPLATE",
@@ -485,6 +488,14 @@ class SiteConfig(_Section):
     )
     output: OutputSection = Field(default_factory=OutputSection, description="Outputs.")
 
+    def model_options(self) -> ModelOptions:
+        """Return the settings of the model stage (see :class:`ModelOptions`)."""
+        return _model_options(self)
+
+    def volume_options(self) -> VolumeOptions:
+        """Return the settings of the volumes stage (see :class:`VolumeOptions`)."""
+        return _volume_options(self)
+
 
 _LENGTHS = {
     "probe": ("screen_length", "screen_diameter"),
@@ -699,3 +710,128 @@ def load_config(path: str | PathLike) -> SiteConfig:
         msg = f"{where(file, line=line)}: not valid TOML ({exc})"
         raise SiteFileError(msg) from None
     return config_from_dict(data, path=file, text=text)
+
+
+# --- model and volumes stage options --------------------------------------------------------
+# The settings of the model and volumes stages, built from a validated SiteConfig in one place.
+# Every value is read from the schema above (no default is repeated here); "auto" becomes None
+# and an empty scheduler becomes dask's local threads.
+
+
+@dataclass(frozen=True)
+class ModelOptions:
+    """Settings of the voxel model, in internal units (m).
+
+    Attributes
+    ----------
+    cell_size
+        ``(dx, dy, dz)`` of the grid (``[grid] cell_size``).
+    base
+        Base elevation of the grid; None = the bottom of the deepest interval (``[grid] base``).
+    padding
+        Grid padding beyond the boundary (``[grid] padding``).
+    variogram_model
+        ``'auto'`` or a covariance family (``[variogram] model``).
+    range_h, range_v
+        Major horizontal and vertical ranges; None = fitted (``[variogram]
+        horizontal_range``, ``vertical_range``).
+    azimuth
+        Degrees clockwise from north of the major horizontal axis.
+    minor_ratio
+        Minor/major horizontal range ratio (``[variogram] anisotropy_minor``).
+    elevation_tolerance
+        Elevation tolerance of horizontal variogram pairs.
+    neighbors
+        Samples per kriging estimate.
+    max_per_group
+        At most this many samples from one boring (0 = no limit; ``[kriging] max_per_boring``).
+    drift
+        ``'none'`` or ``'linear_z'``.
+    max_distance
+        Search distance in variogram ranges; None = no limit.
+    chunk_size
+        Cells per kriging chunk.
+    scheduler
+        Dask scheduler: ``'threads'`` (local threads) or a ``dask.distributed`` address.
+    n_realizations
+        Conditional simulations of log10 K (``[simulation] realizations``).
+    seed
+        Seed of the simulations.
+    """
+
+    cell_size: tuple[float, float, float]
+    base: float | None
+    padding: float
+    variogram_model: str
+    range_h: float | None
+    range_v: float | None
+    azimuth: float
+    minor_ratio: float
+    elevation_tolerance: float
+    neighbors: int
+    max_per_group: int
+    drift: str
+    max_distance: float | None
+    chunk_size: int
+    scheduler: str
+    n_realizations: int
+    seed: int
+
+
+@dataclass(frozen=True)
+class VolumeOptions:
+    """Settings of the volumes stage: the injection design defaults of ``[treatment]``.
+
+    Attributes
+    ----------
+    design_fraction
+        Fraction of the effective pore volume to inject (a zone's own value wins).
+    radius_of_influence
+        Radius of influence of an injection point, m (a zone's own value wins).
+    target
+        ``'transmissive'`` or ``'all'``: the material treated inside each zone.
+    """
+
+    design_fraction: float
+    radius_of_influence: float
+    target: str
+
+
+def _auto_none(value: float | str) -> float | None:
+    return None if isinstance(value, str) else value
+
+
+def _model_options(config: SiteConfig) -> ModelOptions:
+    grid, variogram, kriging = config.grid, config.variogram, config.kriging
+    dx, dy, dz = grid.cell_size
+    return ModelOptions(
+        cell_size=(dx, dy, dz),
+        base=_auto_none(grid.base),
+        padding=grid.padding,
+        variogram_model=variogram.model,
+        range_h=_auto_none(variogram.horizontal_range),
+        range_v=_auto_none(variogram.vertical_range),
+        azimuth=variogram.azimuth,
+        minor_ratio=variogram.anisotropy_minor,
+        elevation_tolerance=variogram.elevation_tolerance,
+        neighbors=kriging.neighbors,
+        max_per_group=kriging.max_per_boring,
+        drift=kriging.drift,
+        max_distance=_auto_none(kriging.max_distance),
+        chunk_size=kriging.chunk_size,
+        scheduler=kriging.scheduler or "threads",
+        n_realizations=config.simulation.realizations,
+        seed=config.simulation.seed,
+    )
+
+
+def _volume_options(config: SiteConfig) -> VolumeOptions:
+    treatment = config.treatment
+    return VolumeOptions(
+        design_fraction=treatment.design_fraction,
+        radius_of_influence=treatment.radius_of_influence,
+        target=treatment.target,
+    )
+
+
+# --- end of model and volumes stage options --------------------------------------------------
