@@ -34,6 +34,7 @@ __all__ = [
     "make_grid",
     "ground_surface",
     "build_mask",
+    "site_grid",
     "height_fraction",
     "VoxelAccessor",
 ]
@@ -62,6 +63,32 @@ def _check_polygon(boundary: Any, what: str = "boundary") -> shapely.Geometry:
         msg = f"grid: {what} is empty or has zero area; expected a polygon with positive area"
         raise GeometryError(msg)
     return boundary
+
+
+def _cell_size(cell_size: Sequence[float]) -> tuple[float, float, float]:
+    try:
+        dx, dy, dz = (float(v) for v in cell_size)
+    except (TypeError, ValueError) as exc:
+        msg = f"grid: cell_size must be three numbers (dx, dy, dz), got {cell_size!r}"
+        raise ModelError(msg) from exc
+    if min(dx, dy, dz) <= 0 or not all(map(math.isfinite, (dx, dy, dz))):
+        msg = f"grid: cell_size must be positive and finite, got {(dx, dy, dz)}"
+        raise ModelError(msg)
+    return dx, dy, dz
+
+
+def _plan_axes(
+    boundary: shapely.Geometry, cell_size: Sequence[float], padding: float
+) -> tuple[np.ndarray, np.ndarray]:
+    """Column-centre coordinates ``x`` and ``y`` over the padded bounds of the boundary."""
+    boundary = _check_polygon(boundary)
+    dx, dy, _ = _cell_size(cell_size)
+    minx, miny, maxx, maxy = boundary.bounds
+    minx, miny, maxx, maxy = minx - padding, miny - padding, maxx + padding, maxy + padding
+    # a tolerance keeps a boundary that is a whole number of cells from gaining a cell
+    nx = max(1, math.ceil((maxx - minx) / dx - 1e-9))
+    ny = max(1, math.ceil((maxy - miny) / dy - 1e-9))
+    return minx + dx * (np.arange(nx) + 0.5), miny + dy * (np.arange(ny) + 0.5)
 
 
 def make_grid(
@@ -95,26 +122,13 @@ def make_grid(
         Coordinates ``z``, ``y``, ``x`` at cell centres, ascending; attributes ``crs`` (WKT) and
         ``cell_size``.  No data variables yet.
     """
-    boundary = _check_polygon(boundary)
-    try:
-        dx, dy, dz = (float(v) for v in cell_size)
-    except (TypeError, ValueError) as exc:
-        msg = f"grid: cell_size must be three numbers (dx, dy, dz), got {cell_size!r}"
-        raise ModelError(msg) from exc
-    if min(dx, dy, dz) <= 0 or not all(map(math.isfinite, (dx, dy, dz))):
-        msg = f"grid: cell_size must be positive and finite, got {(dx, dy, dz)}"
-        raise ModelError(msg)
+    x, y = _plan_axes(boundary, cell_size, padding)
+    dx, dy, dz = _cell_size(cell_size)
     if not (math.isfinite(top) and math.isfinite(base)) or top <= base:
         msg = f"grid: top ({top}) must be above base ({base}); both are elevations in m"
         raise ModelError(msg)
-    minx, miny, maxx, maxy = boundary.bounds
-    minx, miny, maxx, maxy = minx - padding, miny - padding, maxx + padding, maxy + padding
-    # a tolerance keeps a boundary that is a whole number of cells from gaining a cell
-    nx = max(1, math.ceil((maxx - minx) / dx - 1e-9))
-    ny = max(1, math.ceil((maxy - miny) / dy - 1e-9))
+    nx, ny = x.size, y.size
     nz = max(1, math.ceil((top - base) / dz - 1e-9))
-    x = minx + dx * (np.arange(nx) + 0.5)
-    y = miny + dy * (np.arange(ny) + 0.5)
     z = base + dz * (np.arange(nz) + 0.5)
     ds = xr.Dataset(coords={"z": z, "y": y, "x": x})
     ds["x"].attrs.update(units="m", long_name="easting of cell centre")
@@ -265,6 +279,68 @@ def build_mask(
     ground = np.asarray(ground, float)
     mask = inside[None] & (z <= ground[None]) & (z >= base)
     return xr.DataArray(mask, dims=("z", "y", "x"), coords={k: grid[k] for k in ("z", "y", "x")})
+
+
+def site_grid(
+    boundary: shapely.Geometry,
+    *,
+    cell_size: Sequence[float],
+    base: float,
+    crs: Any,
+    padding: float,
+    borings: pd.DataFrame | None = None,
+    dem: tuple[np.ndarray, Any] | None = None,
+) -> xr.Dataset:
+    """Make the model grid of a site: from the base up to the highest ground, with its mask.
+
+    The column centres come from the boundary; the ground surface of each column
+    (:func:`ground_surface`, from the DEM or the collars) sets the top of the grid; the mask
+    (:func:`build_mask`) keeps the cells inside the boundary, below the ground and above the
+    base.
+
+    Parameters
+    ----------
+    boundary
+        Site boundary polygon.
+    cell_size
+        ``(dx, dy, dz)`` in m.
+    base
+        Elevation of the model base (m).
+    crs
+        Site CRS.
+    padding
+        Grid padding beyond the boundary (m).
+    borings
+        Collars: ``x``, ``y``, ``ground_elev`` (used without a DEM).
+    dem
+        ``(array, affine)`` ground raster.
+
+    Returns
+    -------
+    xarray.Dataset
+        A grid from :func:`make_grid` with ``ground_elev`` (y, x), ``mask`` (z, y, x) and the
+        attribute ``base``.
+
+    Raises
+    ------
+    ModelError
+        When the ground is not above the base or no cell is inside the mask.
+    """
+    x, y = _plan_axes(boundary, cell_size, padding)
+    ground = ground_surface(x, y, borings=borings, dem=dem)
+    top = float(np.nanmax(ground))
+    if top <= base:
+        msg = f"model: the ground ({top:.2f} m) is not above the base ({base:.2f} m)"
+        raise ModelError(msg)
+    ds = make_grid(boundary, cell_size=cell_size, top=top, base=base, crs=crs, padding=padding)
+    ds["ground_elev"] = (("y", "x"), ground)
+    ds["ground_elev"].attrs.update(units="m", long_name="ground elevation")
+    ds["mask"] = build_mask(ds, boundary, ground=ground, base=base)
+    if not ds["mask"].values.any():
+        msg = "model: no cell lies inside the boundary, below the ground and above the base"
+        raise ModelError(msg)
+    ds.attrs["base"] = base
+    return ds
 
 
 def _column_fraction(x: np.ndarray, y: np.ndarray, dx: float, dy: float, polygon) -> np.ndarray:
