@@ -131,6 +131,27 @@ def _farthest_candidates(polygon, points: np.ndarray) -> tuple[np.ndarray, np.nd
     return candidates, distance
 
 
+def _lattice(
+    polygon: shapely.Geometry, radius: float, origin: tuple[float, float] | None
+) -> np.ndarray:
+    """Nodes of the triangular lattice of spacing ``sqrt(3) r`` inside (or on) the polygon."""
+    minx, miny, maxx, maxy = polygon.bounds
+    x0, y0 = (minx, miny) if origin is None else origin
+    spacing = math.sqrt(3.0) * radius
+    row_step = 1.5 * radius
+    j0 = math.floor((miny - y0) / row_step) - 1
+    j1 = math.ceil((maxy - y0) / row_step) + 1
+    i0 = math.floor((minx - x0) / spacing) - 1
+    i1 = math.ceil((maxx - x0) / spacing) + 1
+    jj, ii = np.meshgrid(np.arange(j0, j1 + 1), np.arange(i0, i1 + 1), indexing="ij")
+    xs = x0 + ii * spacing + (jj % 2) * spacing / 2
+    ys = y0 + jj * row_step
+    # a relative tolerance keeps lattice nodes that sit on the edge up to rounding
+    tol = 1e-9 * max(radius, 1.0)
+    keep = shapely.intersects_xy(polygon.buffer(tol), xs, ys)
+    return np.column_stack([xs[keep], ys[keep]])
+
+
 def triangular_layout(
     polygon: shapely.Geometry,
     radius: float,
@@ -179,21 +200,7 @@ def triangular_layout(
     if not radius > 0:
         msg = f"injection: radius of influence must be > 0, got {radius}"
         raise ModelError(msg)
-    minx, miny, maxx, maxy = polygon.bounds
-    x0, y0 = (minx, miny) if origin is None else origin
-    spacing = math.sqrt(3.0) * radius
-    row_step = 1.5 * radius
-    j0 = math.floor((miny - y0) / row_step) - 1
-    j1 = math.ceil((maxy - y0) / row_step) + 1
-    i0 = math.floor((minx - x0) / spacing) - 1
-    i1 = math.ceil((maxx - x0) / spacing) + 1
-    jj, ii = np.meshgrid(np.arange(j0, j1 + 1), np.arange(i0, i1 + 1), indexing="ij")
-    xs = x0 + ii * spacing + (jj % 2) * spacing / 2
-    ys = y0 + jj * row_step
-    # a relative tolerance keeps lattice nodes that sit on the edge up to rounding
-    tol = 1e-9 * max(radius, 1.0)
-    keep = shapely.intersects_xy(polygon.buffer(tol), xs, ys)
-    points = np.column_stack([xs[keep], ys[keep]])
+    points = _lattice(polygon, radius, origin)
     n_lattice = len(points)
     limit = radius * (1 + 1e-9)
     for _ in range(max_rounds):
@@ -370,6 +377,20 @@ def _zone_summary(
         msg = f"injection: zone {region.name!r} holds no {target.name} material in the model"
         warnings.warn(msg, Geo3dWarning, stacklevel=3)
     return summary
+
+
+def _add_layout(summary: dict[str, Any], radius: float, n_points: int, n_added: int) -> None:
+    """Add the layout of the points and the volume per point to a zone summary."""
+    thickness, n_e = summary["mean_target_thickness_m"], summary["mean_effective_porosity"]
+    design_fraction, volume = summary["design_fraction"], summary["design_volume_m3"]
+    summary.update(
+        radius_of_influence_m=radius,
+        spacing_m=math.sqrt(3.0) * radius,
+        n_points=n_points,
+        n_gap_points=n_added,
+        volume_per_point_circle_m3=math.pi * radius**2 * thickness * n_e * design_fraction,
+        volume_per_point_share_m3=volume / n_points if n_points else math.nan,
+    )
 
 
 def _radius(
@@ -584,19 +605,11 @@ def injection_plan(
     codes = facies_codes(ds)
     spec = _Target.of(ds, region, target, ds.voxels.facies_classes.transmissive)
     summary = _zone_summary(ds, region, spec, (weight, colfrac), codes, design_fraction)
-    volume, thickness = summary["design_volume_m3"], summary["mean_target_thickness_m"]
-    n_e = summary["mean_effective_porosity"]
+    volume = summary["design_volume_m3"]
     radius = _radius(radius_of_influence, volume_per_point, summary)
     points, n_added = triangular_layout(polygon, radius)
     n_points = len(points)
-    summary.update(
-        radius_of_influence_m=radius,
-        spacing_m=math.sqrt(3.0) * radius,
-        n_points=n_points,
-        n_gap_points=n_added,
-        volume_per_point_circle_m3=math.pi * radius**2 * thickness * n_e * design_fraction,
-        volume_per_point_share_m3=volume / n_points if n_points else math.nan,
-    )
+    _add_layout(summary, radius, n_points, n_added)
 
     def point_volume(b_point: float, ne_point: float) -> float:
         if per_point == "share":

@@ -244,9 +244,8 @@ class OrdinaryKriging:
             msg = f"target coordinates must be an (m, 3) array of x, y, z; got {targets.shape}"
             raise ModelError(msg)
         m = len(targets)
-        cs = int(self.chunk_size)
-        slices = [slice(i, min(m, i + cs)) for i in range(0, m, cs)] or [slice(0, 0)]
-        results = _run_chunks(self._predict_chunk, [targets[s] for s in slices], scheduler)
+        chunks = _chunks(targets, int(self.chunk_size)) or [targets[:0]]
+        results = _run_chunks(self._predict_chunk, chunks, scheduler)
         est = np.concatenate([r[0] for r in results], axis=0)
         var = np.concatenate([r[1] for r in results], axis=0)
         n_nan = int(np.isnan(var).sum())
@@ -452,6 +451,12 @@ def _check_duplicates(scaled: np.ndarray) -> None:
             "nugget the kriging system is singular: average them or give the model a nugget"
         )
         raise ModelError(msg)
+
+
+def _chunks(targets: np.ndarray, size: int) -> list[np.ndarray]:
+    """Consecutive chunks of at most ``size`` target rows (none for no targets)."""
+    m = len(targets)
+    return [targets[i : min(m, i + size)] for i in range(0, m, size)]
 
 
 def _run_chunks(
