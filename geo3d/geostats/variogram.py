@@ -133,12 +133,8 @@ def experimental_vertical(
 
     Parameters
     ----------
-    coords
-        ``(n, 3)`` x, y, z.
-    values
-        ``(n,)`` values.
-    groups
-        ``(n,)`` boring labels.
+    coords, values, groups
+        Samples: ``(n, 3)`` x, y, z, ``(n,)`` values and ``(n,)`` boring labels.
     lag
         Bin width (m) of the elevation difference.
     max_lag
@@ -187,12 +183,9 @@ def experimental_horizontal(
 
     Parameters
     ----------
-    coords
-        ``(n, 3)`` x, y, z.
-    values
-        ``(n,)`` values.
-    groups
-        ``(n,)`` boring labels; pairs within one boring are not used.
+    coords, values, groups
+        Samples: ``(n, 3)`` x, y, z, ``(n,)`` values and ``(n,)`` boring labels (pairs
+        within one boring are not used).
     lags
         Bin edges (m, ascending), or a number of equal bins up to ``max_lag``.
     elevation_tolerance
@@ -450,12 +443,8 @@ def fit_anisotropic(
 
     Parameters
     ----------
-    coords
-        ``(n, 3)`` x, y, z.
-    values
-        ``(n,)`` values.
-    groups
-        ``(n,)`` boring labels.
+    coords, values, groups
+        Samples: ``(n, 3)`` x, y, z, ``(n,)`` values and ``(n,)`` boring labels.
     model
         A kind from :data:`~geo3d.geostats.covariance.KINDS`, or ``'auto'`` to try each of
         ``kinds`` and keep the lowest weighted misfit.
