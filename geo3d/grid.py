@@ -239,10 +239,10 @@ def height_fraction(
     [0.75, 0.5]
     """
     z = np.asarray(z, float)
-    lower = np.nan_to_num(np.asarray(lower, float), nan=-np.inf)
-    upper = np.nan_to_num(np.asarray(upper, float), nan=np.inf)
-    zz = z.reshape((-1,) + (1,) * lower.ndim)
-    covered = np.minimum(zz + dz / 2, upper) - np.maximum(zz - dz / 2, lower)
+    low = np.nan_to_num(np.asarray(lower, float), nan=-np.inf)
+    high = np.nan_to_num(np.asarray(upper, float), nan=np.inf)
+    zz = z.reshape((-1,) + (1,) * low.ndim)
+    covered = np.minimum(zz + dz / 2, high) - np.maximum(zz - dz / 2, low)
     return np.clip(covered / dz, 0.0, 1.0)
 
 

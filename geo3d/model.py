@@ -565,9 +565,9 @@ class VoxelModel:
                 ds[f"prob_{name}"] = (_DIMS, prob_kriging[i], {"long_name": _PROB_KRIGING % name})
         saturated, source = saturated_cells(ds, self.water_table_)
         ds["saturated"] = (_DIMS, saturated)
-        for name in ds.data_vars:
-            if ds[name].dtype.kind == "f" and ds[name].dims[-3:] == _DIMS:
-                ds[name] = ds[name].where(ds["mask"])
+        for var in ds.data_vars:
+            if ds[var].dtype.kind == "f" and ds[var].dims[-3:] == _DIMS:
+                ds[var] = ds[var].where(ds["mask"])
         ds.attrs = self._attrs(grid, saturated_source=source)
         return ds
 

@@ -93,7 +93,9 @@ def radius_for_volume(
     return math.sqrt(volume_per_point / denominator)
 
 
-def _farthest_candidates(polygon, points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def _farthest_candidates(
+    polygon: shapely.Geometry, points: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """Places where the distance to the nearest point can peak, with that distance.
 
     Over a polygon, the distance to the nearest of a set of points is largest at a Voronoi
@@ -101,7 +103,7 @@ def _farthest_candidates(polygon, points: np.ndarray) -> tuple[np.ndarray, np.nd
     polygon vertex (the largest empty circle with its centre constrained to a polygon).
     """
     boundary_vertices = shapely.get_coordinates(polygon.boundary)
-    candidates = [boundary_vertices]
+    found = [boundary_vertices]
     if len(points) >= 1:
         minx, miny, maxx, maxy = polygon.bounds
         size = max(maxx - minx, maxy - miny, 1.0)
@@ -114,7 +116,7 @@ def _farthest_candidates(polygon, points: np.ndarray) -> tuple[np.ndarray, np.nd
         vor = Voronoi(np.vstack([points, dummies]))
         vertices = vor.vertices
         inside = shapely.intersects_xy(polygon, vertices[:, 0], vertices[:, 1])
-        candidates.append(vertices[inside])
+        found.append(vertices[inside])
         ridges = np.array([r for r in vor.ridge_vertices if -1 not in r], dtype=int)
         if len(ridges):
             segments = shapely.linestrings(
@@ -123,8 +125,8 @@ def _farthest_candidates(polygon, points: np.ndarray) -> tuple[np.ndarray, np.nd
             crossings = shapely.intersection(segments, polygon.boundary)
             crossings = crossings[~shapely.is_empty(crossings)]
             if len(crossings):
-                candidates.append(shapely.get_coordinates(crossings))
-    candidates = np.vstack(candidates)
+                found.append(shapely.get_coordinates(crossings))
+    candidates = np.vstack(found)
     if len(points) == 0:
         return candidates, np.full(len(candidates), np.inf)
     distance, _ = cKDTree(points).query(candidates)

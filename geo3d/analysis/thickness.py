@@ -204,9 +204,9 @@ def thickness_maps(
         sim = _maps_from_codes(classes.classify(field), field, weight, ds, classes)
         for name, values in sim.items():
             stacks[name].append(values)
-    for name, values in stacks.items():
-        if values:
-            p10, p50, p90 = nan_percentiles(np.stack(values), (10, 50, 90))
+    for name, stack in stacks.items():
+        if stack:
+            p10, p50, p90 = nan_percentiles(np.stack(stack), (10, 50, 90))
             maps[f"{name}_p10"], maps[f"{name}_p50"], maps[f"{name}_p90"] = p10, p50, p90
     result = {}
     for name, values in maps.items():

@@ -24,7 +24,7 @@ from scipy.spatial import cKDTree
 
 from geo3d.errors import ModelError
 from geo3d.geostats.covariance import CovarianceModel, _matern_scale
-from geo3d.geostats.kriging import OrdinaryKriging, _chunks, _run_chunks
+from geo3d.geostats.kriging import OrdinaryKriging, Scheduler, _chunks, _run_chunks
 
 __all__ = ["conditional_simulation", "unconditional_fields"]
 
@@ -212,7 +212,7 @@ def conditional_simulation(
     n_realizations: int,
     seed: int,
     groups: np.ndarray | None = None,
-    scheduler: str | object | None = None,
+    scheduler: Scheduler = None,
     mode_no: int = 1000,
     **kriging_options,
 ) -> np.ndarray:

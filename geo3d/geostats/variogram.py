@@ -340,11 +340,11 @@ def _fit(
         gs.append(table["gamma"].to_numpy(float))
         ws.append(w / w.sum())
         rs.append(np.full(len(table), r))
-    h, g, w, r = (np.concatenate(a) for a in (hs, gs, ws, rs))
+    h, g, w, rr = (np.concatenate(a) for a in (hs, gs, ws, rs))
     sw = np.sqrt(w)
     g_scale = max(float(np.max(g)), 1e-300)
     free = [i for i in range(n_ranges) if i not in fixed_ranges]
-    h_max = [float(h[r == i].max()) for i in range(n_ranges)]
+    h_max = [float(h[rr == i].max()) for i in range(n_ranges)]
 
     def unpack(x):
         nug = x[0] if fit_nugget else 0.0
@@ -357,10 +357,10 @@ def _fit(
 
     def resid(x):
         nug, sill, ranges = unpack(x)
-        model = nug + sill * (1.0 - correlation(kind, h / ranges[r], nu=nu))
+        model = nug + sill * (1.0 - correlation(kind, h / ranges[rr], nu=nu))
         return sw * (model - g) / g_scale
 
-    best = None
+    best: optimize.OptimizeResult | None = None
     g_hi = float(np.max(g))
     for frac in (0.25, 0.5, 1.0):
         x0 = ([0.1 * g_hi] if fit_nugget else []) + [0.9 * g_hi]
@@ -373,6 +373,7 @@ def _fit(
         )
         if best is None or res.cost < best.cost:
             best = res
+    assert best is not None  # three starts ran
     nug, sill, ranges = unpack(best.x)
     rmse = float(np.sqrt(2.0 * best.cost / len(series))) * g_scale
     return np.array([nug, sill, *ranges]), rmse
@@ -478,10 +479,13 @@ def fit_anisotropic(
     tried = _check_fit(coords, detrend, model, kinds)
     trend = linear_trend_z(coords[:, 2], values) if detrend == "linear_z" else None
     resid = values if trend is None else values - (trend[0] + trend[1] * coords[:, 2])
-    lags = {"vertical": (vertical_lag, max_vertical_lag)}
-    lags["horizontal"] = (horizontal_lags, max_horizontal_lag)
     vertical, horizontal = _experimental_pair(
-        coords, resid, groups, elevation_tolerance=elevation_tolerance, **lags
+        coords,
+        resid,
+        groups,
+        vertical=(vertical_lag, max_vertical_lag),
+        horizontal=(horizontal_lags, max_horizontal_lag),
+        elevation_tolerance=elevation_tolerance,
     )
     fixed = {"range_h": range_h, "range_v": range_v}
     candidates, kind, (nugget, sill, rh, rv) = _fit_directions(horizontal, vertical, tried, **fixed)
