@@ -16,7 +16,7 @@ from __future__ import annotations
 import logging
 import math
 from collections.abc import Sequence
-from typing import Any
+from typing import TYPE_CHECKING, TypeAlias
 
 import numpy as np
 import pandas as pd
@@ -30,7 +30,12 @@ from scipy.spatial import QhullError, cKDTree
 from geo3d.errors import CRSError, GeometryError, ModelError
 from geo3d.facies import FaciesClasses
 
+if TYPE_CHECKING:
+    from affine import Affine
+
 __all__ = [
+    "CRSInput",
+    "Raster",
     "make_grid",
     "ground_surface",
     "build_mask",
@@ -41,8 +46,15 @@ __all__ = [
 
 logger = logging.getLogger(__name__)
 
+#: A CRS as :meth:`pyproj.CRS.from_user_input` takes it: ``"EPSG:32633"``, an EPSG code, WKT,
+#: a PROJ string or a :class:`pyproj.CRS`; None or ``""`` = no CRS.
+CRSInput: TypeAlias = "pyproj.CRS | str | int | None"
 
-def _crs_wkt(crs: Any) -> str:
+#: A 2D raster and its affine transform (pixel corner to map coordinates).
+Raster: TypeAlias = "tuple[np.ndarray, Affine]"
+
+
+def _crs_wkt(crs: CRSInput) -> str:
     if crs is None or crs == "":
         return ""
     try:
@@ -52,7 +64,7 @@ def _crs_wkt(crs: Any) -> str:
         raise CRSError(msg) from exc
 
 
-def _check_polygon(boundary: Any, what: str = "boundary") -> shapely.Geometry:
+def _check_polygon(boundary: object, what: str = "boundary") -> shapely.Geometry:
     if not isinstance(boundary, shapely.Geometry) or boundary.geom_type not in (
         "Polygon",
         "MultiPolygon",
@@ -97,7 +109,7 @@ def make_grid(
     cell_size: Sequence[float],
     top: float,
     base: float,
-    crs: Any = None,
+    crs: CRSInput = None,
     padding: float = 0.0,
 ) -> xr.Dataset:
     """Make an empty voxel grid over the bounds of a boundary polygon.
@@ -145,7 +157,7 @@ def ground_surface(
     y: np.ndarray,
     *,
     borings: pd.DataFrame | None = None,
-    dem: tuple[np.ndarray, Any] | None = None,
+    dem: Raster | None = None,
 ) -> np.ndarray:
     """Ground elevation at the centres of the grid columns.
 
@@ -286,10 +298,10 @@ def site_grid(
     *,
     cell_size: Sequence[float],
     base: float,
-    crs: Any,
+    crs: CRSInput,
     padding: float,
     borings: pd.DataFrame | None = None,
-    dem: tuple[np.ndarray, Any] | None = None,
+    dem: Raster | None = None,
 ) -> xr.Dataset:
     """Make the model grid of a site: from the base up to the highest ground, with its mask.
 
@@ -441,7 +453,7 @@ class VoxelAccessor:
             raise ModelError(msg)
         return self._ds["ground_elev"]
 
-    def depth_of(self, z: Any = None) -> xr.DataArray:
+    def depth_of(self, z: xr.DataArray | np.ndarray | float | None = None) -> xr.DataArray:
         """Depth below the ground surface of an elevation, for each column.
 
         Parameters

@@ -30,7 +30,7 @@ from geo3d.geostats.crossval import CrossValidation, leave_one_group_out
 from geo3d.geostats.kriging import OrdinaryKriging
 from geo3d.geostats.simulation import conditional_simulation
 from geo3d.geostats.variogram import VariogramFit, fit_anisotropic
-from geo3d.grid import site_grid
+from geo3d.grid import CRSInput, Raster, site_grid
 
 __all__ = [
     "VoxelModel",
@@ -668,11 +668,11 @@ def build_voxel_model(
     *,
     boundary: shapely.Geometry,
     borings: pd.DataFrame,
-    crs: Any,
+    crs: CRSInput,
     cell_size: tuple[float, float, float],
     base: float | None,
     padding: float,
-    dem: tuple[np.ndarray, Any] | None = None,
+    dem: Raster | None = None,
     water_table: WaterTable | None = None,
     progress: Callable[[float, str], None] | None = None,
 ) -> ModelResult:

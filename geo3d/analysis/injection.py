@@ -40,7 +40,7 @@ from geo3d.analysis.fields import (
     realization_fields,
     require_model,
 )
-from geo3d.analysis.volumes import Region, region_weights
+from geo3d.analysis.volumes import Region, ZoneLike, region_weights
 from geo3d.errors import Geo3dWarning, GeometryError, ModelError
 from geo3d.units import from_internal
 
@@ -344,6 +344,7 @@ def _zone_summary(
     prob_bulk = target.expected_bulk(probability_stack(ds), weight)
     bulk = float(prob_bulk.sum()) * cell_volume
     pore_eff = float(prob_bulk @ classes.effective_porosity) * cell_volume
+    assert region.geometry is not None  # checked by _check_plan
     area = float(region.geometry.area)
     thickness = bulk / area if area > 0 else 0.0
     n_e = pore_eff / bulk if bulk > 0 else 0.0
@@ -557,7 +558,7 @@ def _add_volume_unit(
 
 def injection_plan(
     ds: xr.Dataset,
-    zone: Any,
+    zone: ZoneLike,
     *,
     design_fraction: float,
     radius_of_influence: float | None = None,

@@ -21,7 +21,7 @@ import logging
 import math
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, TypeAlias
 
 import numpy as np
 import pandas as pd
@@ -40,6 +40,8 @@ from geo3d.grid import height_fraction
 
 __all__ = [
     "Region",
+    "ZoneLike",
+    "Zones",
     "StoredMassInputs",
     "partition_coefficient",
     "retardation_factor",
@@ -183,14 +185,14 @@ class Region:
     """
 
     name: str
-    geometry: Any = None
+    geometry: shapely.Geometry | None = None
     top: float | None = None
     bottom: float | None = None
     reference: str = "depth"
     band: str = "all"
 
     @classmethod
-    def from_zone(cls, zone: Any) -> Region:
+    def from_zone(cls, zone: ZoneLike) -> Region:
         """Make a region from a zone row (mapping or Series with name, top, bottom, ...)."""
         if isinstance(zone, Region):
             return zone
@@ -234,6 +236,14 @@ class Region:
             msg = f"zone {self.name!r}: bottom is above top"
             raise GeometryError(msg)
         return lower, upper
+
+
+#: One treatment zone: a :class:`Region`, or a mapping or row (pandas Series, named tuple)
+#: with ``name``, ``top``, ``bottom``, ``reference`` and ``geometry``.
+ZoneLike: TypeAlias = Region | Mapping[str, Any] | pd.Series | tuple[Any, ...]
+
+#: Treatment zones: a (Geo)DataFrame of zone rows, one zone, several, or None.
+Zones: TypeAlias = pd.DataFrame | ZoneLike | Iterable[ZoneLike] | None
 
 
 def region_weights(ds: xr.Dataset, region: Region) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -310,13 +320,13 @@ def interface_area(
 
 
 def _regions(
-    zones: Any, bands: Iterable[Sequence[float]] | None, include_site: bool
+    zones: Zones, bands: Iterable[Sequence[float]] | None, include_site: bool
 ) -> list[Region]:
     regions: list[Region] = []
     if include_site:
         regions.append(Region("site"))
     if zones is not None:
-        rows: Iterable[Any]
+        rows: Iterable[ZoneLike]
         if isinstance(zones, pd.DataFrame):
             rows = (row for _, row in zones.iterrows())
         elif isinstance(zones, Region | Mapping):
@@ -486,7 +496,7 @@ def _total_row(
 
 def zone_volumes(
     ds: xr.Dataset,
-    zones: Any = None,
+    zones: Zones = None,
     *,
     bands: Iterable[Sequence[float]] | None = None,
     mass: StoredMassInputs | None = None,

@@ -16,7 +16,7 @@ import pandas as pd
 import xarray as xr
 
 from geo3d.analysis.fields import plan_map, require_model
-from geo3d.analysis.volumes import Region, _regions, region_weights
+from geo3d.analysis.volumes import Region, Zones, _regions, region_weights
 from geo3d.errors import WaterLevelError
 from geo3d.model import WaterTable
 
@@ -139,7 +139,7 @@ def saturated_fraction(ds: xr.Dataset, water_table: WaterTable) -> np.ndarray:
     return np.clip((wt[None] - (z - dz / 2)) / dz, 0.0, 1.0)
 
 
-def saturated_thickness(ds: xr.Dataset, zones: Any, *, water_table: WaterTable) -> pd.DataFrame:
+def saturated_thickness(ds: xr.Dataset, zones: Zones, *, water_table: WaterTable) -> pd.DataFrame:
     """Saturated thickness of each treatment zone (and of the whole model).
 
     The saturated thickness of a column is the height of its zone interval below the water
