@@ -2,14 +2,14 @@
 
 :func:`read_site` reads a site folder (``site.toml`` and the files it names), validates every
 file, converts units once and returns a :class:`Site`. Problems found in different files are
-collected, so one run reports them all (:class:`SiteValidationError`).
+collected, so one run reports them all (:class:`~geo3d.errors.SiteValidationError`).
 """
 
 from __future__ import annotations
 
 import contextlib
 import warnings
-from collections.abc import Iterable, Iterator
+from collections.abc import Iterator
 from dataclasses import dataclass
 from os import PathLike
 from pathlib import Path
@@ -28,6 +28,7 @@ from geo3d.errors import (
     Geo3dWarning,
     GeometryError,
     LogFormatError,
+    SiteValidationError,
     TableFormatError,
     WaterLevelError,
     where,
@@ -37,24 +38,7 @@ from geo3d.io.readers import read_borings, read_dissipation, read_sensor_checks,
 from geo3d.io.vector import ZONE_COLUMNS, parse_crs, read_boundary, read_zones
 from geo3d.units import from_internal, to_internal
 
-__all__ = ["Site", "SiteValidationError", "read_site", "ABSOLUTE_PRESSURE_FLOOR"]
-
-
-class SiteValidationError(Geo3dError, ValueError):
-    """Several problems were found in a site folder.
-
-    Parameters
-    ----------
-    problems
-        One message per problem; each names the file, row or line, column and what was
-        expected.
-    """
-
-    def __init__(self, problems: Iterable[str]):
-        self.problems: list[str] = list(problems)
-        count = len(self.problems)
-        header = f"{count} problem{'s' if count != 1 else ''} found in the site:"
-        super().__init__("\n".join([header, *(f"- {p}" for p in self.problems)]))
+__all__ = ["Site", "read_site", "ABSOLUTE_PRESSURE_FLOOR"]
 
 
 #: Plausibility floor for absolute pressure when [probe] atmospheric_pressure is "auto": the

@@ -12,7 +12,7 @@ from hypothesis import strategies as st
 from geo3d.config import LogsSection, UnitsSection
 from geo3d.errors import Geo3dWarning, LogFormatError
 from geo3d.io.logs_reader import read_log, read_logs
-from geo3d.site import SiteValidationError
+from geo3d.errors import SiteValidationError
 
 FT = 0.3048  # m (NIST SP 811)
 PSI = 6.894757  # kPa (NIST SP 811)

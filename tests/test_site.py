@@ -11,10 +11,11 @@ from geo3d.errors import (
     CRSError,
     Geo3dWarning,
     LogFormatError,
+    SiteValidationError,
     TableFormatError,
     WaterLevelError,
 )
-from geo3d.site import ABSOLUTE_PRESSURE_FLOOR, Site, SiteValidationError, read_site
+from geo3d.site import ABSOLUTE_PRESSURE_FLOOR, Site, read_site
 
 US_FT = 1200 / 3937  # m, US survey foot (NIST SP 811)
 

@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 from geo3d.config import LogsSection, UnitsSection
-from geo3d.errors import Geo3dWarning, LogFormatError, where
+from geo3d.errors import Geo3dWarning, LogFormatError, SiteValidationError, where
 from geo3d.io.readers import numeric_column, read_table
 from geo3d.units import to_internal
 
@@ -322,8 +322,6 @@ def read_logs(
     if len(problems) == 1:
         raise problems[0]
     if problems:
-        from geo3d.site import SiteValidationError
-
         raise SiteValidationError(str(p) for p in problems)
     samples = pd.concat(tables, ignore_index=True)
     samples = samples.sort_values(["boring_id", "depth"], kind="stable").reset_index(drop=True)

@@ -40,9 +40,9 @@ import xarray as xr
 
 from geo3d.errors import GeometryError
 from geo3d.io.geotiff import axis_spacing
+from geo3d.logs.flags import FLAGS
 
 __all__ = [
-    "FLAG_COLUMNS",
     "model_to_image",
     "borings_to_polydata",
     "zone_outlines",
@@ -54,16 +54,6 @@ __all__ = [
 ]
 
 logger = logging.getLogger(__name__)
-
-#: Boolean per-sample flags carried onto the boring polylines.
-FLAG_COLUMNS: tuple[str, ...] = (
-    "above_water",
-    "out_of_range_high",
-    "out_of_range_low",
-    "spike",
-    "ionic",
-    "sensor_check_failed",
-)
 
 
 def _cell_sizes(ds: xr.Dataset) -> tuple[float, float, float]:
@@ -161,7 +151,7 @@ def borings_to_polydata(
     ----------
     samples
         Per-sample table: ``boring_id``, ``x``, ``y``, ``elev``, ``depth`` and, when present,
-        ``log10_k``, ``ec`` and the boolean flags of :data:`FLAG_COLUMNS`.
+        ``log10_k``, ``ec`` and the boolean flags of :data:`geo3d.logs.flags.FLAGS`.
     intervals
         Composited intervals with ``boring_id``, ``top``, ``bottom``, ``facies_code``; gives
         each sample the facies code of the interval holding it (-1 where none).
@@ -197,7 +187,7 @@ def borings_to_polydata(
         values = samples[name].to_numpy(float) if name in samples else np.full(len(samples), np.nan)
         poly.point_data[name] = values
     poly.point_data["facies_code"] = _facies_at(samples, intervals)
-    for flag in FLAG_COLUMNS:
+    for flag in FLAGS:
         if flag in samples:
             poly.point_data[flag] = samples[flag].fillna(False).to_numpy(bool).astype(np.uint8)
     poly.point_data["boring_index"] = boring_index

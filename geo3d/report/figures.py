@@ -35,7 +35,7 @@ from matplotlib.lines import Line2D  # noqa: E402
 from matplotlib.patches import Patch, Rectangle  # noqa: E402
 
 # One Okabe & Ito (2008) palette for every figure of the report.
-from geo3d.report.log_figure import OKABE_ITO  # noqa: E402
+from geo3d.report.log_figure import OKABE_ITO, facies_colour  # noqa: E402
 
 __all__ = [
     "OKABE_ITO",
@@ -86,8 +86,6 @@ def facies_colors(n_classes: int) -> list[str]:
     Okabe, M., Ito, K. (2008) Color Universal Design (CUD): how to make figures and
     presentations that are friendly to colorblind people.
     """
-    from geo3d.report.log_figure import facies_colour
-
     return [facies_colour(code) for code in range(n_classes)]
 
 
