@@ -7,8 +7,9 @@ ascending.  Its attributes hold the CRS (WKT) and the cell size ``(dx, dy, dz)``
 elevations (:meth:`VoxelAccessor.depth_of`) without the 3D model ever storing depth.
 
 Domain methods live on the ``voxels`` accessor (``ds.voxels.cell_volume``,
-``ds.voxels.centres()``, ``ds.voxels.column_fraction(polygon)``, ``ds.voxels.to_pyvista()``) so
-that slicing, plotting and NetCDF come from xarray.
+``ds.voxels.centres()``, ``ds.voxels.column_fraction(polygon)``,
+``ds.voxels.facies_classes``) so that slicing, plotting and NetCDF come from xarray; the VTK
+image of a model is :func:`geo3d.io.vtk.model_to_image`.
 """
 
 from __future__ import annotations
@@ -464,31 +465,3 @@ class VoxelAccessor:
         if z is None:
             z = self._ds["z"]
         return self.ground - z
-
-    def to_pyvista(self):
-        """Convert to a :class:`pyvista.ImageData` with each ``(z, y, x)`` variable as cell data.
-
-        Booleans become uint8; the ``ground_elev`` map and realizations are left out.
-        """
-        import pyvista as pv
-
-        dx, dy, dz = self.cell_size
-        nz, ny, nx = (self._ds.sizes[d] for d in ("z", "y", "x"))
-        image = pv.ImageData(
-            dimensions=(nx + 1, ny + 1, nz + 1),
-            spacing=(dx, dy, dz),
-            origin=(
-                float(self._ds["x"][0]) - dx / 2,
-                float(self._ds["y"][0]) - dy / 2,
-                float(self._ds["z"][0]) - dz / 2,
-            ),
-        )
-        for name, var in self._ds.data_vars.items():
-            if var.dims != ("z", "y", "x"):
-                continue
-            values = np.asarray(var.values)
-            if values.dtype == bool:
-                values = values.astype(np.uint8)
-            # VTK orders cells with x fastest, then y, then z: C order of (z, y, x)
-            image.cell_data[str(name)] = values.ravel(order="C")
-        return image
