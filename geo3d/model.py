@@ -1,8 +1,9 @@
 """The site-wide voxel model: kriged log10 K and EC, hydrofacies probabilities, simulations.
 
-Coordinates are ``(x, y, z)`` in the site CRS, ``z`` the elevation, upward.  The model is a
-``VoxelModel``: an :class:`xarray.Dataset` on a grid from :func:`geo3d.grid.make_grid` with the
-variables listed in the contributor guide (``mask``, ``log10_k``, ``log10_k_var``, ``ec``,
+Coordinates are ``(x, y, z)`` in the site CRS, ``z`` the elevation, upward.  The gridder
+:class:`VoxelModel` is fitted to the composited intervals and grids them on a grid from
+:func:`geo3d.grid.site_grid`; the result (the VoxelModel Dataset) is an :class:`xarray.Dataset`
+with the variables listed in the contributor guide (``mask``, ``log10_k``, ``log10_k_var``, ``ec``,
 ``ec_var``, ``k``, ``facies_code``, ``prob_<facies>``, ``saturated`` and, when simulations are
 run, ``realizations``).  The facies classes are recorded in the attributes ``facies_names``,
 ``facies_log10_k_max``, ``facies_porosity`` and ``facies_effective_porosity`` (in code order,
@@ -47,6 +48,31 @@ __all__ = [
 ]
 
 logger = logging.getLogger(__name__)
+
+_DIMS = ("z", "y", "x")
+
+#: Attributes of the kriged variables: name -> (units, long_name).
+_KRIGED_ATTRS = {
+    "log10_k": ("log10(m/s)", "kriged log10 hydraulic conductivity"),
+    "log10_k_var": ("log10(m/s)^2", "kriging variance of log10 K"),
+    "ec": ("mS/m", "kriged bulk electrical conductivity"),
+    "ec_var": ("(mS/m)^2", "kriging variance of EC"),
+}
+
+
+class WaterTable(Protocol):
+    """A water-table surface: elevation (m) at points."""
+
+    def elevation(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+        """Water-table elevation at the points ``(x, y)``."""
+        ...
+
+
+_PROB_KRIGING = "probability of %s (Gaussian, kriging mean and variance)"
+_PROB_SIM = "probability of %s (frequency over the realizations)"
+
+#: Called with the name of each finished step.
+Progress = Callable[[str], None]
 
 
 def facies_probabilities(
@@ -313,25 +339,6 @@ def saturated_cells(grid: xr.Dataset, water_table: WaterTable | None) -> tuple[n
     xx, yy = np.meshgrid(grid["x"].values, grid["y"].values)
     wt = np.asarray(water_table.elevation(xx.ravel(), yy.ravel()), float).reshape(xx.shape)
     return mask & (grid["z"].values[:, None, None] <= wt[None]), "water table"
-
-
-_DIMS = ("z", "y", "x")
-
-#: Attributes of the kriged variables: name -> (units, long_name).
-_KRIGED_ATTRS = {
-    "log10_k": ("log10(m/s)", "kriged log10 hydraulic conductivity"),
-    "log10_k_var": ("log10(m/s)^2", "kriging variance of log10 K"),
-    "ec": ("mS/m", "kriged bulk electrical conductivity"),
-    "ec_var": ("(mS/m)^2", "kriging variance of EC"),
-}
-
-
-class WaterTable(Protocol):
-    """A water-table surface: elevation (m) at points."""
-
-    def elevation(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
-        """Water-table elevation at the points ``(x, y)``."""
-        ...
 
 
 class VoxelModel:
@@ -642,13 +649,6 @@ class VoxelModel:
             f"{self.n_realizations} realizations (seed {self.seed})"
         )
         return attrs
-
-
-_PROB_KRIGING = "probability of %s (Gaussian, kriging mean and variance)"
-_PROB_SIM = "probability of %s (frequency over the realizations)"
-
-#: Called with the name of each finished step.
-Progress = Callable[[str], None]
 
 
 def _given(settings: Mapping[str, Any]) -> dict[str, Any]:
