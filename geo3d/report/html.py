@@ -37,6 +37,7 @@ from geo3d.geostats.covariance import CovarianceModel
 from geo3d.io.atomic import atomic_file
 from geo3d.logs.flags import FLAGS
 from geo3d.logs.process import LogResults
+from geo3d.logs.water_level import LEVEL_COLUMNS
 from geo3d.model import ModelResult
 from geo3d.report import figures as fg
 from geo3d.report.log_figure import log_figure_pngs
@@ -433,21 +434,8 @@ def _section_water(ctx: _Context) -> str:
     if levels is None or not len(levels):
         parts.append(_note("No water levels from dissipation tests are available."))
     else:
-        columns = [
-            c
-            for c in (
-                "boring_id",
-                "test_id",
-                "depth",
-                "p_static",
-                "depth_to_water",
-                "wt_elev",
-                "fraction_dissipated",
-                "method",
-                "fit_rmse",
-            )
-            if c in levels
-        ]
+        hidden = ("x", "y", "aitken", "p_static_se")
+        columns = [c for c in LEVEL_COLUMNS if c in levels and c not in hidden]
         parts.append(
             _table(
                 levels[columns],
