@@ -126,7 +126,7 @@ def test_calibration_with_a_unit_at_the_probe_limit(tmp_path):
         ]
         assert max(beyond) > 0.3  # the case is hard: screens largely beyond the probe's limit
         calibration = result.calibration
-        assert calibration["method"] == "slug_tests"
+        assert calibration.method == "slug_tests"
         # truth: log10 K = a + log10(Q/P_net), a = log10(gamma_w / F) with the Hvorslev (1951)
         # shape factor of the screen. A fitted slope b may differ a little from 1, so the offset
         # is compared where the data are: at the median injection ratio of the screens
@@ -136,7 +136,7 @@ def test_calibration_with_a_unit_at_the_probe_limit(tmp_path):
                 t.top_depth, t.bottom_depth
             )
         x = float(np.nanmedian(np.log10(s.loc[inside, "q_over_p"])))
-        fitted = calibration["a"] + calibration["b"] * x
+        fitted = calibration.a + calibration.b * x
         assert fitted - x == pytest.approx(truth.offset, abs=0.05), seed
 
 

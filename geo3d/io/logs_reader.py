@@ -22,7 +22,7 @@ import numpy as np
 import pandas as pd
 
 from geo3d.config import LogsSection, UnitsSection
-from geo3d.errors import Geo3dWarning, LogFormatError, UnitError, where
+from geo3d.errors import Geo3dWarning, LogFormatError, SiteValidationError, UnitError, where
 from geo3d.io.readers import numeric_column, read_table
 from geo3d.units import factor, to_internal
 
@@ -155,6 +155,23 @@ def _check_units_row(
             raise LogFormatError(msg)
 
 
+def _numeric_values(
+    table: pd.DataFrame, names: dict[str, str], *, path: Path
+) -> dict[str, np.ndarray]:
+    """Read the mapped columns as numbers (EC and time may be empty; flow must be >= 0)."""
+    return {
+        key: numeric_column(
+            table,
+            column,
+            path=path,
+            allow_empty=key in ("ec", "time_s"),
+            minimum=0.0 if key == "flow" else None,
+            error=LogFormatError,
+        )
+        for key, column in names.items()
+    }
+
+
 def _read_csv_log(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.DataFrame:
     names = _mapping(logs, "csv")
     required = list(names.values())
@@ -176,17 +193,7 @@ def _read_csv_log(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.D
         if frame.empty:
             msg = f"{path}: the log has a units line but no data rows; expected readings"
             raise LogFormatError(msg)
-    values = {}
-    for key, column in names.items():
-        optional = key in ("ec", "time_s")
-        values[key] = numeric_column(
-            frame,
-            column,
-            path=path,
-            allow_empty=optional,
-            minimum=0.0 if key == "flow" else None,
-            error=LogFormatError,
-        )
+    values = _numeric_values(frame, names, path=path)
     if logs.boring_id == "filename":
         boring_id = path.stem
     else:
@@ -253,17 +260,7 @@ def _read_las_log(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.D
                 break
     table.columns = [str(c).strip().lower() for c in table.columns]
     table.attrs["first_line"] = first_line
-    values = {}
-    for key, column in names.items():
-        optional = key in ("ec", "time_s")
-        values[key] = numeric_column(
-            table,
-            column.lower(),
-            path=path,
-            allow_empty=optional,
-            minimum=0.0 if key == "flow" else None,
-            error=LogFormatError,
-        )
+    values = _numeric_values(table, {k: c.lower() for k, c in names.items()}, path=path)
     if logs.boring_id == "filename":
         boring_id = path.stem
     else:
@@ -383,8 +380,6 @@ def read_logs(
     if len(problems) == 1:
         raise problems[0]
     if problems:
-        from geo3d.site import SiteValidationError
-
         raise SiteValidationError(str(p) for p in problems)
     samples = pd.concat(tables, ignore_index=True)
     samples = samples.sort_values(["boring_id", "depth"], kind="stable").reset_index(drop=True)
