@@ -3,16 +3,12 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from geo3d.errors import Geo3dWarning, LogFormatError
+from geo3d.errors import LogFormatError
 from geo3d.logs.pressure import (
-    STANDARD_ATMOSPHERE,
     ToolLoss,
-    atmospheric_pressure,
-    collar_readings,
     fit_tool_loss,
     hydrostatic_pressure,
     net_pressure,
-    pooled_atmospheric_pressure,
 )
 
 PSI = 6.894757  # kPa per psi, NIST SP 811
@@ -75,32 +71,3 @@ def test_tool_loss_rejects_malformed_points():
         fit_tool_loss([[1.0, 2.0, 3.0]])
     with pytest.raises(LogFormatError, match=">= 0"):
         fit_tool_loss([[-1e-6, 2.0]])
-
-
-def test_atmospheric_pressure_is_the_median_near_the_collar():
-    depth = np.array([0.0, 0.01, 0.02, 0.03, 0.5, 1.0])
-    pressure = np.array([101.2, 101.3, 150.0, 101.4, 130.0, 140.0])
-    assert atmospheric_pressure(depth, pressure) == pytest.approx(101.35)
-
-
-def test_atmospheric_pressure_falls_back_when_the_top_reading_is_not_atmospheric():
-    # 101.325 kPa: standard atmosphere (NIST SP 811)
-    with pytest.warns(Geo3dWarning, match="not atmospheric"):
-        value = atmospheric_pressure([0.5, 0.52], [143.0, 144.0], boring_id="B9")
-    assert value == STANDARD_ATMOSPHERE == 101.325
-
-
-def test_atmospheric_pressure_refuses_an_empty_log():
-    with pytest.raises(LogFormatError, match="B2"):
-        atmospheric_pressure([np.nan], [np.nan], boring_id="B2")
-
-
-def test_collar_readings_of_one_day_are_pooled():
-    rng = np.random.default_rng(4)
-    depth = np.array([0.01, 0.025, 0.04, 0.3])
-    logs = [np.r_[101.2 + rng.normal(0, 0.5, 3), 180.0] for _ in range(8)]
-    readings = [collar_readings(depth, p) for p in logs]
-    assert all(r.size == 3 for r in readings)  # the reading at 0.3 m is in the soil
-    value = pooled_atmospheric_pressure(readings)
-    # 24 readings of SD 0.5 kPa (invented): the median is within 3 standard errors
-    assert value == pytest.approx(101.2, abs=3 * 1.25 * 0.5 / np.sqrt(24))

@@ -19,22 +19,17 @@ References
 from __future__ import annotations
 
 import logging
-import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
 
-from geo3d.errors import Geo3dWarning, LogFormatError
+from geo3d.errors import LogFormatError
 from geo3d.logs.hydraulic import GAMMA_W
 
 __all__ = [
     "STANDARD_ATMOSPHERE",
     "ToolLoss",
-    "atmospheric_pressure",
-    "collar_readings",
-    "is_atmospheric",
-    "pooled_atmospheric_pressure",
     "hydrostatic_pressure",
     "fit_tool_loss",
     "net_pressure",
@@ -42,123 +37,9 @@ __all__ = [
 
 logger = logging.getLogger(__name__)
 
-#: Standard atmosphere, kPa (ISO 2533; NIST SP 811: 1 atm = 101.325 kPa).
+#: Standard atmosphere at sea level, kPa (ISO 2533; NIST SP 811: 1 atm = 101.325 kPa).  The
+#: reference pressure of each log is found by :mod:`geo3d.logs.reference`.
 STANDARD_ATMOSPHERE: float = 101.325
-
-
-def atmospheric_pressure(
-    depth: np.ndarray,
-    pressure: np.ndarray,
-    *,
-    window: float = 0.03,
-    plausible: tuple[float, float] = (60.0, 110.0),
-    boring_id: str | None = None,
-) -> float:
-    """Atmospheric pressure read by the logger at the collar, before the probe enters soil.
-
-    The readings taken within ``window`` metres of the first recorded depth (the probe at or
-    near the surface, above the water table) are averaged with a median, which ignores a stray
-    reading.  The standard atmosphere is 101.325 kPa (ISO 2533; NIST SP 811).
-
-    Parameters
-    ----------
-    depth
-        Sample depths of one log, m, increasing.
-    pressure
-        Recorded absolute pressure, kPa.
-    window
-        Depth span, m, from the first reading, over which readings are taken as atmospheric.
-    plausible
-        Range of atmospheric pressure, kPa (sea level to about 4000 m of altitude).  A reading
-        outside it is not atmospheric (flow already on, or the log starts below the collar):
-        the standard atmosphere is used instead, with a :class:`Geo3dWarning`.
-    boring_id
-        Used in messages only.
-
-    Returns
-    -------
-    float
-        Atmospheric pressure, kPa.
-
-    Raises
-    ------
-    LogFormatError
-        If the log has no finite pressure near its top.
-    """
-    readings = collar_readings(depth, pressure, window=window, boring_id=boring_id)
-    return pooled_atmospheric_pressure(
-        [readings], plausible=plausible, label=f"boring {boring_id!r}"
-    )
-
-
-def collar_readings(
-    depth: np.ndarray, pressure: np.ndarray, *, window: float = 0.03, boring_id: str | None = None
-) -> np.ndarray:
-    """Pressure readings within ``window`` metres of the first recorded depth of a log.
-
-    Raises
-    ------
-    LogFormatError
-        If the log has no finite pressure.
-    """
-    depth = np.asarray(depth, dtype=float)
-    pressure = np.asarray(pressure, dtype=float)
-    ok = np.isfinite(depth) & np.isfinite(pressure)
-    if not ok.any():
-        msg = (
-            f"log of boring {boring_id!r}, column 'pressure': no finite reading to take "
-            "atmospheric pressure from"
-        )
-        raise LogFormatError(msg)
-    top = depth[ok].min()
-    return pressure[ok & (depth <= top + window)]
-
-
-def is_atmospheric(value: float, plausible: tuple[float, float] = (60.0, 110.0)) -> bool:
-    """Whether a pressure (kPa) is a plausible atmospheric pressure (sea level to ~4000 m)."""
-    return bool(plausible[0] <= value <= plausible[1])
-
-
-def pooled_atmospheric_pressure(
-    readings: Sequence[np.ndarray],
-    *,
-    plausible: tuple[float, float] = (60.0, 110.0),
-    label: str = "logs",
-) -> float:
-    """Median of collar readings pooled over several logs made on the same day.
-
-    Barometric pressure changes by a fraction of a kPa over a day, less than the scatter of a
-    few readings of a pressure sensor; pooling the collar readings of the logs of one day
-    averages that scatter out.
-
-    Parameters
-    ----------
-    readings
-        Collar readings of each log (see :func:`collar_readings`), kPa.
-    plausible
-        Range of atmospheric pressure, kPa; a median outside it falls back to the standard
-        atmosphere with a :class:`Geo3dWarning`.
-    label
-        Names the logs in messages.
-
-    Returns
-    -------
-    float
-        kPa.
-    """
-    values = np.concatenate([np.asarray(r, dtype=float) for r in readings])
-    value = float(np.median(values)) if values.size else float("nan")
-    if not is_atmospheric(value, plausible):
-        warnings.warn(
-            f"{label}: the pressure read at the top of the log is {value:.2f} kPa, "
-            f"outside {plausible[0]:g}-{plausible[1]:g} kPa, so it is not atmospheric (the log "
-            f"starts below the collar or with flow on); using the standard atmosphere "
-            f"{STANDARD_ATMOSPHERE} kPa. Give [probe] atmospheric_pressure to override",
-            Geo3dWarning,
-            stacklevel=2,
-        )
-        return STANDARD_ATMOSPHERE
-    return value
 
 
 def hydrostatic_pressure(depth, depth_to_water):
