@@ -302,6 +302,65 @@ def _write_las_log(path: Path, log: pd.DataFrame, las_names: dict[str, str], opt
         las.write(handle, version=2.0)
 
 
+#: LAS curve names of the "mixed" layout (CSV files use other names)
+LAS_NAMES = {"depth": "DEPT", "pressure": "PRES", "flow": "QINJ", "ec": "COND", "time": "ETIM"}
+
+
+def _plan(rng, opts: Options, i: int, boring_id: str, dtw: float, test_id: int, limit: float):
+    """What varies per boring: gradient, start, depth, test depths, flow and anomaly sizes."""
+    g = float(rng.uniform(*opts.vertical_gradient))
+    if opts.start == "mixed":
+        start = "flow_off" if i % 4 in (0, 1) else "flow_on"  # both kinds each day
+    else:
+        start = opts.start
+    total = float(rng.uniform(*opts.total_depth))
+    tests = [round(dtw + float(rng.uniform(0.8, 1.5)), 2)]
+    if opts.test_depths == "two":
+        tests.append(round(min(total - 0.5, dtw + float(rng.uniform(6.0, 8.0))), 2))
+    return {
+        "id": boring_id,
+        "dtw": dtw,
+        "g": g,
+        "start": start,
+        "total_depth": total,
+        "tests": tests,
+        "test_ids": list(range(test_id, test_id + len(tests))),
+        "flow_ml_min": float(rng.uniform(250.0, 400.0)),
+        "limit": limit,
+        "ionic_factor": float(rng.uniform(3.0, 5.0)),
+        # a metal contact reads hundreds of mS/m (common practice)
+        "spike_size": float(rng.uniform(250.0, 500.0)),
+        "topsoil": float(rng.uniform(0.05, 0.25)),
+        "topsoil_factor": float(rng.uniform(2.0, 4.0)),
+    }
+
+
+def _log_with_anomalies(rng, opts, plan, truth: Truth, clock, *, ionic: bool, spike: bool):
+    """Simulate one log; where it carries anomalies, place them once the geology is known."""
+    state = rng.bit_generator.state
+    out = _boring_log(rng, opts, plan, truth, clock)
+    if not (ionic or spike):
+        return out
+    depth, rows = out[2][0], out[2][3]
+    interval = _ionic_interval(rows, plan["dtw"], plan["total_depth"]) if ionic else None
+    if interval is not None:
+        truth.ionic[plan["id"]] = interval
+    if spike:
+        truth.spikes[plan["id"]] = _spike_depth(rows, plan["dtw"], plan["total_depth"], depth)
+    rng.bit_generator.state = state  # the same geology and noise, now with the anomalies
+    return _boring_log(rng, opts, plan, truth, clock)
+
+
+def _write_log(root: Path, opts: Options, log: pd.DataFrame, boring_id: str, *, las: bool):
+    written = log.copy()
+    if opts.pressure_unit == "psi":
+        written["pressure"] = written["pressure"] / PSI
+    if las:
+        _write_las_log(root / "logs" / f"{boring_id}.las", written, LAS_NAMES, opts)
+    else:
+        _write_csv_log(root / "logs" / f"{boring_id}.csv", written, opts)
+
+
 def make_site(root: Path, seed: int, opts: Options) -> Truth:
     """Write a synthetic site into ``root`` and return its truth."""
     rng = np.random.default_rng(seed)
@@ -329,65 +388,31 @@ def make_site(root: Path, seed: int, opts: Options) -> Truth:
         truth.day_levels_at_site[d] = float(iso2533(mean_ground)) + weather[d]
     ionic_ids = list(rng.choice(ids, opts.ionic, replace=False)) if opts.ionic else []
     spike_ids = list(rng.choice(ids, opts.spikes, replace=False)) if opts.spikes else []
-    borings, dissipation, las_names = [], [], {}
-    las_names = {"depth": "DEPT", "pressure": "PRES", "flow": "QINJ", "ec": "COND", "time": "ETIM"}
+    borings, dissipation = [], []
     test_id = 1
     slug_candidates = []
     for i, boring_id in enumerate(ids):
         day = days[i % len(days)]
         dtw = float(ground[i] - wt[i])
-        g = float(rng.uniform(*opts.vertical_gradient))
-        if opts.start == "mixed":
-            start = "flow_off" if i % 4 in (0, 1) else "flow_on"  # both kinds each day
-        else:
-            start = opts.start
-        total = float(rng.uniform(*opts.total_depth))
-        tests = [round(dtw + float(rng.uniform(0.8, 1.5)), 2)]
-        if opts.test_depths == "two":
-            tests.append(round(min(total - 0.5, dtw + float(rng.uniform(6.0, 8.0))), 2))
-        plan = {
-            "id": boring_id,
-            "dtw": dtw,
-            "g": g,
-            "start": start,
-            "total_depth": total,
-            "tests": tests,
-            "test_ids": list(range(test_id, test_id + len(tests))),
-            "flow_ml_min": float(rng.uniform(250.0, 400.0)),
-            "limit": truth.probe["limit"],
-            "ionic_factor": float(rng.uniform(3.0, 5.0)),
-            # a metal contact reads hundreds of mS/m (common practice)
-            "spike_size": float(rng.uniform(250.0, 500.0)),
-            "topsoil": float(rng.uniform(0.05, 0.25)),
-            "topsoil_factor": float(rng.uniform(2.0, 4.0)),
-        }
-        test_id += len(tests)
+        plan = _plan(rng, opts, i, boring_id, dtw, test_id, truth.probe["limit"])
+        test_id += len(plan["tests"])
         # this boring's barometric pressure: the day's level at its own elevation
         truth.p_atm_base[boring_id] = float(iso2533(ground[i])) + weather[day]
+        truth.p_atm[boring_id] = truth.p_atm_base[boring_id]
         truth.depth_to_water[boring_id] = dtw
-        truth.vertical_gradient[boring_id] = g
+        truth.vertical_gradient[boring_id] = plan["g"]
         clock = pd.Timestamp(f"{day} 08:00") + pd.Timedelta(hours=float(rng.uniform(0, 8)))
-        # anomalies: placed once the geology is known (second pass below)
-        state = rng.bit_generator.state
-        log, records, (depth, log10_k, unit, rows) = _boring_log(rng, opts, plan, truth, clock)
-        if boring_id in ionic_ids or boring_id in spike_ids:
-            interval = _ionic_interval(rows, dtw, total) if boring_id in ionic_ids else None
-            if interval is not None:
-                truth.ionic[boring_id] = interval
-            if boring_id in spike_ids:
-                truth.spikes[boring_id] = _spike_depth(rows, dtw, total, depth)
-            rng.bit_generator.state = state
-            log, records, (depth, log10_k, unit, rows) = _boring_log(rng, opts, plan, truth, clock)
-        truth.p_atm[boring_id] = float(truth.p_atm_base[boring_id])
+        log, records, (depth, log10_k, unit, rows) = _log_with_anomalies(
+            rng,
+            opts,
+            plan,
+            truth,
+            clock,
+            ionic=boring_id in ionic_ids,
+            spike=boring_id in spike_ids,
+        )
         dissipation += records
-        layout_las = opts.layout == "mixed" and i % 2 == 1
-        written = log.copy()
-        if opts.pressure_unit == "psi":
-            written["pressure"] = written["pressure"] / PSI
-        if layout_las:
-            _write_las_log(root / "logs" / f"{boring_id}.las", written, las_names, opts)
-        else:
-            _write_csv_log(root / "logs" / f"{boring_id}.csv", written, opts)
+        _write_log(root, opts, log, boring_id, las=opts.layout == "mixed" and i % 2 == 1)
         borings.append(
             {
                 "boring_id": boring_id,
@@ -410,7 +435,7 @@ def make_site(root: Path, seed: int, opts: Options) -> Truth:
         table["k"] = table["k"] * 10.0 ** rng.normal(0.0, 0.02, len(table))
         table.to_csv(root / "slug_tests.csv", index=False, float_format="%.6g")
         truth.slug_tests = table
-    (root / "site.toml").write_text(_site_toml(opts, truth, las_names=las_names))
+    (root / "site.toml").write_text(_site_toml(opts, truth, las_names=LAS_NAMES))
     return truth
 
 
