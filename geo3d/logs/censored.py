@@ -78,6 +78,24 @@ def _noisy_loglik(x_nodes: np.ndarray, p_net: np.ndarray, flow: np.ndarray, sigm
     return norm.logpdf(p_net[:, None], loc=predicted, scale=sigma)
 
 
+def _expected_ratios(p, q, x, c, resolved, tight, noisy, *, mu: float, s: float, sigma: float):
+    """Return the expected Q/P_net of each sample given its reading and the screen's law."""
+    ratio = np.full(p.size, np.nan)
+    ratio[resolved] = 10.0 ** x[resolved]
+    if noisy.any():
+        nodes = mu + np.sqrt(2.0) * s * _NODES
+        ll = _noisy_loglik(nodes, p[noisy], q[noisy], sigma) + _LOG_PRIOR[None, :]
+        posterior = np.exp(ll - logsumexp(ll, axis=1)[:, None])
+        ratio[noisy] = posterior @ (10.0**nodes)
+    if tight.any():
+        # E[10**x | x <= c] for x ~ N(mu, s) (mean of a truncated lognormal)
+        z = (c[tight] - mu) / s
+        log_mean = mu * _LN10 + 0.5 * (s * _LN10) ** 2
+        log_share = log_ndtr(z - s * _LN10) - log_ndtr(z)
+        ratio[tight] = np.exp(log_mean + log_share)
+    return ratio
+
+
 def fit_screen(
     p_net,
     flow,
@@ -149,22 +167,20 @@ def fit_screen(
         bounds=[(start_mu - 4.0, start_mu + 4.0), (np.log(0.01), np.log(2.0))],
     )
     mu, s = float(result.x[0]), float(np.exp(result.x[1]))
-    ratio = np.full(p.size, np.nan)
-    ratio[resolved] = 10.0 ** x[resolved]
-    if noisy.any():
-        nodes = mu + np.sqrt(2.0) * s * _NODES
-        ll = _noisy_loglik(nodes, p[noisy], q[noisy], sigma) + _LOG_PRIOR[None, :]
-        posterior = np.exp(ll - logsumexp(ll, axis=1)[:, None])
-        ratio[noisy] = posterior @ (10.0**nodes)
-    if tight.any():
-        # E[10**x | x <= c] for x ~ N(mu, s) (mean of a truncated lognormal)
-        z = (c[tight] - mu) / s
-        log_mean = mu * _LN10 + 0.5 * (s * _LN10) ** 2
-        log_share = log_ndtr(z - s * _LN10) - log_ndtr(z)
-        ratio[tight] = np.exp(log_mean + log_share)
+    ratio = _expected_ratios(p, q, x, c, resolved, tight, noisy, mu=mu, s=s, sigma=sigma)
     used = resolved | tight | noisy
     unresolved = float((used & ~resolved).sum() / max(used.sum(), 1))
     return ScreenFit(mu, s, ratio, unresolved)
+
+
+def _warn_left_out(test, share: float, limit: float) -> None:
+    warnings.warn(
+        f"slug test in boring {test.boring_id} ({test.top_depth:g}-{test.bottom_depth:g} m): "
+        f"{share:.0%} of the log samples over its screen are beyond the probe's range, more "
+        f"than {limit:.0%}; left out of the calibration",
+        Geo3dWarning,
+        stacklevel=3,
+    )
 
 
 def screen_ratios(
@@ -193,14 +209,11 @@ def screen_ratios(
         ``boring_id, top_depth, bottom_depth, k``; may be None or empty.
     resolved, censored_below
         Per sample, see :func:`fit_screen`.
-    usable
-        Samples that may enter a screen (e.g. below the water table).
-    beyond
-        Samples flagged beyond the probe's range (too permeable or too tight).
-    sensor_noise
-        kPa.
-    max_beyond_fraction
-        0..1.
+    usable, beyond
+        Samples that may enter a screen (e.g. below the water table); samples flagged beyond
+        the probe's range (too permeable or too tight).
+    sensor_noise, max_beyond_fraction
+        kPa; 0..1.
 
     Returns
     -------
@@ -240,25 +253,9 @@ def screen_ratios(
         )
         share = float(beyond[inside].mean())
         if share > max_beyond_fraction:
-            warnings.warn(
-                f"slug test in boring {test.boring_id} ({test.top_depth:g}-"
-                f"{test.bottom_depth:g} m): {share:.0%} of the log samples over its screen are "
-                f"beyond the probe's range, more than {max_beyond_fraction:.0%}; left out of "
-                "the calibration",
-                Geo3dWarning,
-                stacklevel=2,
-            )
+            _warn_left_out(test, share, max_beyond_fraction)
             keep.append(False)
             continue
         keep.append(True)
         ratio[inside] = fit.ratio
-        logger.debug(
-            "screen %s %.2f-%.2f m: mu %.3f s %.3f, %.0f%% unresolved",
-            test.boring_id,
-            test.top_depth,
-            test.bottom_depth,
-            fit.mu,
-            fit.s,
-            100 * fit.unresolved_fraction,
-        )
     return ratio, slug_tests[np.array(keep, dtype=bool)].reset_index(drop=True)

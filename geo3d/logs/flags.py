@@ -200,6 +200,48 @@ def _side_level(windows: np.ndarray, min_count: int) -> tuple[np.ndarray, np.nda
     return np.where(enough, level, np.nan), MAD_SCALE * mad
 
 
+def _spikes_in_log(
+    lec: np.ndarray,
+    ec: np.ndarray,
+    pressure: np.ndarray,
+    *,
+    h: int,
+    gap: int,
+    k: float,
+    pk: float,
+    floor: float,
+    ceiling: float,
+    hydraulic_floor: float,
+) -> np.ndarray:
+    """Spikes of one log (see :func:`spike_flags`); ``lec`` is log10 EC."""
+    left, right = _side_windows(lec, h, gap)
+    left_level, left_scale = _side_level(left, max(2, h // 2))
+    right_level, right_scale = _side_level(right, max(2, h // 2))
+    rise = lec - np.fmax(left_level, right_level)
+    scale = np.fmax(left_scale, right_scale)
+    with np.errstate(invalid="ignore"):
+        ec_out = (rise > k * scale) & (rise > floor)
+    ec_out &= np.isfinite(left_level) & np.isfinite(right_level)
+    hydraulic = pressure
+    h_left, h_right = _side_windows(hydraulic, h, gap)
+    h_left_level, h_left_scale = _side_level(h_left, max(2, h // 2))
+    h_right_level, h_right_scale = _side_level(h_right, max(2, h // 2))
+    # a real layer moves the hydraulic signal over the EC rise away from both sides; a
+    # metal contact leaves it where it was; so does a peak within the EC range the soil of
+    # the site gives
+    flagged = np.zeros(lec.size, dtype=bool)
+    for start, stop in _runs(ec_out):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            level = np.nanmedian(hydraulic[start:stop])
+        moved = min(abs(level - h_left_level[start]), abs(level - h_right_level[stop - 1]))
+        scale = max(h_left_scale[start], h_right_scale[stop - 1])
+        explained = moved > max(pk * scale, hydraulic_floor) or not np.isfinite(moved)
+        if not explained and np.nanmax(ec[start:stop]) > ceiling:
+            flagged[start:stop] = True
+    return flagged
+
+
 def spike_flags(
     depth,
     ec,
@@ -216,52 +258,30 @@ def spike_flags(
 ) -> np.ndarray:
     """Flag EC spikes: narrow EC rises above both neighbours, with no hydraulic change.
 
-    A spike stands out from both sides: its log10 EC exceeds the median log10 EC of the samples
-    on its left *and* on its right (windows of ``half_window``, starting ``gap`` samples away so
-    that a spike a few samples wide is not its own neighbour) by more than ``k`` scaled MADs of
-    those windows and by more than ``log10(1 + relative_floor)``, and its peak exceeds the
-    ``ceiling_quantile`` of the site's EC.  A step at a contact has one side at its own level,
-    and the first or last readings of a log have no side to compare with, so neither is a
-    spike.  An EC rise over which the median hydraulic signal differs from the levels on both
-    sides (by ``pressure_k`` scaled MADs and by ``hydraulic_floor``) is a real layer, not a
-    spike.  Working in log10 EC makes the test scale-free under the
-    multiplicative noise of EC sensors.
+    A spike's log10 EC exceeds the median log10 EC of the windows on its left *and* right
+    (``half_window`` long, ``gap`` samples away so that a spike a few samples wide is not its
+    own neighbour) by ``k`` scaled MADs and by ``log10(1 + relative_floor)``, and its peak
+    exceeds the ``ceiling_quantile`` of the site's EC (a metal contact reads above anything the
+    soil gives; a thin clay lens reads like the site's other clays).  A step at a contact, or
+    the first readings of a log, has no higher side on both sides, so is no spike; nor is a
+    rise over which the median hydraulic signal differs from both sides by ``pressure_k``
+    (default ``k / 2``) scaled MADs and by ``hydraulic_floor`` (a real layer).  Log10 EC makes
+    the test scale-free under the multiplicative noise of EC sensors.
 
     Parameters
     ----------
-    depth
-        Sample depth, m (sorted within each group).
-    ec
-        Bulk EC, mS/m.
+    depth, ec, groups
+        Depth (m, sorted within each group), bulk EC (mS/m) and boring id of each sample.
     pressure
-        The hydraulic signal that a real layer would also change: recorded or net pressure,
-        or better the log10 injection ratio log10(Q/P_net), which also tracks layers where
-        the pressure is held at the sensor limit and the flow drops instead.
-    groups
-        Boring id of each sample; the filter runs within each boring.
-    half_window
-        Length of each side window, m.
-    k
-        Threshold in scaled MADs of log10 EC.
-    pressure_k
-        Threshold (scaled MADs of the hydraulic side windows) of a hydraulic change that would
-        explain an EC rise; half of ``k`` when None, so that a modest matching change is
-        enough to call it a layer.
-    relative_floor
-        Smallest EC rise flagged, as a share of the higher side level: a metal contact
-        short-circuits the electrodes and multiplies the reading, while bulk EC rarely doubles
-        within a few centimetres without the hydraulic signal noticing.  Only rises are
-        spikes.
-    gap
-        Samples skipped on each side between a sample and its side windows.
-    ceiling_quantile
-        A spike's peak must exceed this quantile of every EC reading of the site: a metal
-        contact reads above anything the soil gives, while a thin clay lens, which the
-        injection may barely notice, reads like the site's other clays.
+        The hydraulic signal a real layer also changes, best log10(Q/P_net) (it also tracks
+        layers where the pressure is held at the sensor limit and the flow drops).
+    half_window, gap
+        Side-window length, m, and samples skipped between a sample and its windows.
+    k, pressure_k, relative_floor, ceiling_quantile
+        Thresholds (see above); only rises are spikes.
     hydraulic_floor
-        Smallest change of the hydraulic signal that makes an EC rise a real layer, in its
-        units (0.3 log10 units of Q/P_net is a factor of 2 in K: a layer that changes EC as
-        much as a spike does changes K by more, a slow drift of K within a unit by less).
+        In the units of ``pressure``: 0.3 log10 units of Q/P_net is a factor of 2 in K (a layer
+        that changes EC as much as a spike changes K by more, a drift within a unit by less).
 
     Returns
     -------
@@ -285,32 +305,18 @@ def spike_flags(
     for gid in np.unique(groups):
         idx = np.flatnonzero(groups == gid)
         h = _half_window_samples(depth[idx], half_window)
-        left, right = _side_windows(lec[idx], h, gap)
-        left_level, left_scale = _side_level(left, max(2, h // 2))
-        right_level, right_scale = _side_level(right, max(2, h // 2))
-        rise = lec[idx] - np.fmax(left_level, right_level)
-        scale = np.fmax(left_scale, right_scale)
-        with np.errstate(invalid="ignore"):
-            ec_out = (rise > k * scale) & (rise > floor)
-        ec_out &= np.isfinite(left_level) & np.isfinite(right_level)
-        hydraulic = pressure[idx]
-        h_left, h_right = _side_windows(hydraulic, h, gap)
-        h_left_level, h_left_scale = _side_level(h_left, max(2, h // 2))
-        h_right_level, h_right_scale = _side_level(h_right, max(2, h // 2))
-        # a real layer moves the hydraulic signal over the EC rise away from both sides; a
-        # metal contact leaves it where it was; so does a peak within the EC range the soil of
-        # the site gives
-        flagged = np.zeros(idx.size, dtype=bool)
-        for start, stop in _runs(ec_out):
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore", RuntimeWarning)
-                level = np.nanmedian(hydraulic[start:stop])
-            moved = min(abs(level - h_left_level[start]), abs(level - h_right_level[stop - 1]))
-            scale = max(h_left_scale[start], h_right_scale[stop - 1])
-            explained = moved > max(pk * scale, hydraulic_floor) or not np.isfinite(moved)
-            if not explained and np.nanmax(ec[idx][start:stop]) > ceiling:
-                flagged[start:stop] = True
-        out[idx] = flagged
+        out[idx] = _spikes_in_log(
+            lec[idx],
+            ec[idx],
+            pressure[idx],
+            h=h,
+            gap=gap,
+            k=k,
+            pk=pk,
+            floor=floor,
+            ceiling=ceiling,
+            hydraulic_floor=hydraulic_floor,
+        )
     return out
 
 
@@ -358,6 +364,33 @@ def keep_thick_runs(candidate, depth, *, min_thickness: float, unknown=None) -> 
     return out
 
 
+def _running_median(
+    values: np.ndarray, groups: np.ndarray, depth: np.ndarray, window: float
+) -> np.ndarray:
+    """Return the running median of ``values`` over ``window`` m of depth in each group."""
+    smoothed = np.full(values.size, np.nan)
+    for gid in np.unique(groups):
+        idx = np.flatnonzero(groups == gid)
+        h = _half_window_samples(depth[idx], window / 2.0)
+        r = values[idx]
+        _, med, _ = hampel(r, half_window=h)
+        smoothed[idx] = np.where(np.isfinite(r), med, np.nan)
+    return smoothed
+
+
+def _thick_runs(
+    above: np.ndarray, groups: np.ndarray, depth: np.ndarray, min_thickness: float, values
+) -> np.ndarray:
+    """Keep, within each boring, the runs of ``above`` at least ``min_thickness`` thick."""
+    thick = np.zeros(above.size, dtype=bool)
+    for gid in np.unique(groups):
+        idx = np.flatnonzero(groups == gid)
+        thick[idx] = keep_thick_runs(
+            above[idx], depth[idx], min_thickness=min_thickness, unknown=~np.isfinite(values[idx])
+        )
+    return thick
+
+
 def ionic_flags(
     log10_k,
     ec,
@@ -373,13 +406,10 @@ def ionic_flags(
     """EC well above the site's EC-vs-log10 K trend where K is transmissive.
 
     The trend ``log10 EC = c0 + c1*log10 K`` is fitted robustly (Huber) on usable samples;
-    the residual scale is ``1.4826 * MAD`` of its residuals (a robust z-score).  EC stands above
-    the trend where the running median of the residual over ``smooth_window`` (within its
-    boring; a single noisy reading is not an anomaly) exceeds ``sigma`` scales over a run of
-    consecutive samples at least ``min_thickness`` thick (see :func:`keep_thick_runs`), so that
-    the few samples where EC and K change at slightly different depths across a sharp contact
-    are not an anomaly; the samples of such runs whose log10 K is at least ``transmissive_min``
-    are flagged.  The trend is refitted once with flagged samples left out.
+    the residual scale is ``1.4826 * MAD`` of its residuals (a robust z-score).  Flagged: the
+    samples with log10 K at least ``transmissive_min`` in runs at least ``min_thickness`` thick
+    (not the few samples at a sharp contact) where the running median of the residual over
+    ``smooth_window`` exceeds ``sigma`` scales.  The trend is refitted once without them.
 
     Parameters
     ----------
@@ -395,10 +425,8 @@ def ionic_flags(
         Threshold in residual scales.
     exclude
         Boolean mask of samples to leave out of the trend (spikes, unresolved K).
-    smooth_window
-        m, full length of the running median of the residuals.
-    min_thickness
-        m, thinnest run of candidate samples that is flagged.
+    smooth_window, min_thickness
+        m: full length of the running median of the residuals; thinnest run flagged.
 
     Returns
     -------
@@ -408,8 +436,7 @@ def ionic_flags(
 
     References
     ----------
-    .. [1] Huber (1964); Archie, G.E. (1942) Trans. AIME 146 (bulk EC rises with pore-water
-       EC at a given porosity).
+    .. [1] Huber (1964); Archie (1942) Trans. AIME 146 (bulk EC rises with pore-water EC).
     """
     lk = np.asarray(log10_k, dtype=float)
     ec = np.asarray(ec, dtype=float)
@@ -432,23 +459,9 @@ def ionic_flags(
         resid_fit = residual[fit_set]
         scale = MAD_SCALE * float(np.median(np.abs(resid_fit - np.median(resid_fit))))
         scale = max(scale, 1e-6)
-        smoothed = np.full(lk.size, np.nan)
-        for gid in np.unique(groups):
-            idx = np.flatnonzero(groups == gid)
-            h = _half_window_samples(depth[idx], smooth_window / 2.0)
-            r = np.where(np.isfinite(lk[idx]) & np.isfinite(lec[idx]), residual[idx], np.nan)
-            _, med, _ = hampel(r, half_window=h)
-            smoothed[idx] = np.where(np.isfinite(r), med, np.nan)
-        above = smoothed > sigma * scale
-        thick = np.zeros(lk.size, dtype=bool)
-        for gid in np.unique(groups):
-            idx = np.flatnonzero(groups == gid)
-            thick[idx] = keep_thick_runs(
-                above[idx],
-                depth[idx],
-                min_thickness=min_thickness,
-                unknown=~np.isfinite(smoothed[idx]),
-            )
+        valid = np.isfinite(lk) & np.isfinite(lec)
+        smoothed = _running_median(np.where(valid, residual, np.nan), groups, depth, smooth_window)
+        thick = _thick_runs(smoothed > sigma * scale, groups, depth, min_thickness, smoothed)
         flags = thick & (lk >= transmissive_min) & np.isfinite(lk)
         fit_set = usable & ~flags
         trend = {

@@ -208,6 +208,25 @@ def _site_file_value(
     return float(barometric)
 
 
+def _warn_standard_atmosphere(table: pd.DataFrame) -> None:
+    """Warn once, naming the borings whose reference is the standard atmosphere."""
+    fallback = table["p_atm_source"].eq("standard_atmosphere")
+    if not fallback.any():
+        return
+    names = ", ".join(table.loc[fallback, "boring_id"])
+    per_kpa = 1.0 / GAMMA_W
+    warnings.warn(
+        f"boring(s) {names}: no flow-off reading at the collar and no barometric value in "
+        "site.toml ([probe] barometric_pressure), so the reference pressure is the ISO 2533 "
+        "standard atmosphere at the collar elevation. Each kPa the real barometric pressure "
+        f"differs from it moves the water level by {per_kpa:.2f} m; the weather moves it by "
+        f"up to about +-{WEATHER_SPREAD_KPA:g} kPa, so these water levels are uncertain by "
+        f"up to about +-{WEATHER_SPREAD_KPA * per_kpa:.1f} m",
+        Geo3dWarning,
+        stacklevel=3,
+    )
+
+
 def reference_pressures(
     borings: pd.DataFrame,
     collar: Mapping[str, CollarReadings],
@@ -244,9 +263,10 @@ def reference_pressures(
     .. [1] ISO 2533:1975 (standard atmosphere); NIST SP 811 (gamma_w = 9.80665 kPa/m).
     """
     ids = [str(b) for b in borings["boring_id"]]
-    if gauge or given is not None:
-        value, source = (0.0, "gauge") if gauge else (float(given), "given")
-        return pd.DataFrame({"boring_id": ids, "p_atm": value, "p_atm_source": source})
+    if gauge:
+        return pd.DataFrame({"boring_id": ids, "p_atm": 0.0, "p_atm_source": "gauge"})
+    if given is not None:
+        return pd.DataFrame({"boring_id": ids, "p_atm": float(given), "p_atm_source": "given"})
     dates: list[str | None] = [None] * len(ids)
     if "date" in borings and borings["date"].notna().all():
         days = pd.to_datetime(borings["date"], errors="coerce")
@@ -275,20 +295,7 @@ def reference_pressures(
             values.append(standard_atmosphere_pressure(elev))
             sources.append("standard_atmosphere")
     table = pd.DataFrame({"boring_id": ids, "p_atm": values, "p_atm_source": sources})
-    fallback = table["p_atm_source"].eq("standard_atmosphere")
-    if fallback.any():
-        names = ", ".join(table.loc[fallback, "boring_id"])
-        per_kpa = 1.0 / GAMMA_W
-        warnings.warn(
-            f"boring(s) {names}: no flow-off reading at the collar and no barometric value in "
-            "site.toml ([probe] barometric_pressure), so the reference pressure is the ISO 2533 "
-            "standard atmosphere at the collar elevation. Each kPa the real barometric pressure "
-            f"differs from it moves the water level by {per_kpa:.2f} m; the weather moves it by "
-            f"up to about +-{WEATHER_SPREAD_KPA:g} kPa, so these water levels are uncertain by "
-            f"up to about +-{WEATHER_SPREAD_KPA * per_kpa:.1f} m",
-            Geo3dWarning,
-            stacklevel=2,
-        )
+    _warn_standard_atmosphere(table)
     logger.info(
         "reference pressure sources: %s",
         ", ".join(f"{k} {v}" for k, v in table["p_atm_source"].value_counts().items()),
