@@ -108,8 +108,15 @@ def handle_errors(function: F) -> F:
                 _print_error(str(exc))
             sys.exit(EXIT_INPUT)
         except KeyboardInterrupt:
-            _print_error("interrupted")
+            _print_error("interrupted; nothing was written to the output folder")
             sys.exit(130)
+        except MemoryError:
+            _print_error(
+                "ran out of memory; nothing was written to the output folder. Run 'geo3d "
+                "check' for the estimated memory of the model and make [grid] cell_size "
+                "larger or [simulation] realizations smaller"
+            )
+            sys.exit(EXIT_FAILURE)
         except Exception as exc:
             if _verbosity() > 0:
                 import traceback

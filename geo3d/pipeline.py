@@ -4,8 +4,9 @@ Each stage is a plain function usable from a notebook; :func:`run` chains them a
 output into one folder.  This is the only module that reads the :class:`~geo3d.config.SiteConfig`
 to choose options for the library functions.
 
-Outputs are built in a staging folder (:func:`geo3d.io.atomic.output_folder`) that replaces the
-output folder only when the whole run succeeded, so a failed run leaves nothing half-written.
+Outputs are built in a staging folder (:func:`geo3d.io.outdir.safe_output_folder`) that replaces
+the output folder only when the whole run succeeded, so a failed run leaves nothing half-written;
+an output folder that is or holds an input, or files geo3d did not write, is refused first.
 The folder holds a ``run.log`` (every log record and warning of the run) and ``run.json``
 (timings per stage, the files written, the headline figures).
 """
@@ -716,11 +717,13 @@ def run(
     Raises
     ------
     OutputExistsError
-        If ``out_dir`` exists, is not empty and ``overwrite`` is false (checked first).
+        If ``out_dir`` exists, is not empty and ``overwrite`` is false (checked first); an
+        :class:`~geo3d.io.outdir.UnsafeOutputError` if it is, holds or lies inside an input
+        folder, holds files no geo3d run wrote, or appeared or changed during the run.
     Geo3dError
         Any input or modelling problem; the output folder is then left untouched.
     """
-    from geo3d.io.atomic import output_folder
+    from geo3d.io.outdir import safe_output_folder
     from geo3d.io.tables import write_json
 
     planned = planned_stages(stages)
@@ -737,7 +740,10 @@ def run(
     timer = _Timer(timings, callback)
     started = datetime.now(UTC)
     total_start = time.perf_counter()
-    with output_folder(final, overwrite=overwrite) as staging, _run_log(staging / "run.log"):
+    with (
+        safe_output_folder(final, site_path=site_path, overwrite=overwrite) as staging,
+        _run_log(staging / "run.log"),
+    ):
         logger.info("geo3d %s: run of %s into %s", __version__, site_path, final)
         with timer.stage("check"):
             site = run_check(site_path)
