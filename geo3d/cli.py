@@ -265,12 +265,21 @@ def site_summary(site) -> Any:
 @click.argument("site", type=SITE_PATH)
 @handle_errors
 def check(site: Path) -> None:
-    """Read and validate the site folder SITE, and summarise it (or list every problem)."""
-    from geo3d.site import read_site
+    """Read and validate the site folder SITE, and summarise it (or list every problem).
 
-    result = read_site(site)
+    Besides the file formats, checks that the data are plausible (coordinates, units, sensor
+    values, tests, layout of the borings, settings) and estimates the cells, memory and time
+    of the model, refusing a run that would not fit.
+    """
+    from geo3d.checks.resources import estimate_resources
+    from geo3d.pipeline import run_check
+
+    result = run_check(site)
     out = console()
     out.print(site_summary(result))
+    estimate = estimate_resources(result)
+    if estimate is not None:
+        out.print(f"Model estimate: {estimate.describe()}", markup=False)
     out.print("[green]Site is valid.[/green]")
 
 

@@ -102,21 +102,39 @@ class RunResults:
 # --------------------------------------------------------------------------- stages
 
 
-def run_check(site_path: str | PathLike) -> Any:
-    """Read and validate a site folder.
+def run_check(
+    site_path: str | PathLike,
+    *,
+    n_realizations: int | None = None,
+    stages: Sequence[str] = STAGES,
+) -> Any:
+    """Read and validate a site folder, then run the plausibility checks and resource estimate.
 
     Parameters
     ----------
     site_path
         Site folder (or its ``site.toml``).
+    n_realizations
+        Overrides ``[simulation] realizations`` in the resource estimate.
+    stages
+        Stages the run will go through (checks about the 3D model are errors only when a
+        model is built).
 
     Returns
     -------
     geo3d.site.Site
+
+    Raises
+    ------
+    geo3d.checks.PlausibilityError
+        Well-formed but implausible data, or settings that cannot work or would not fit.
     """
+    from geo3d.checks import check_site, report
     from geo3d.site import read_site
 
-    return read_site(site_path)
+    site = read_site(site_path)
+    report(check_site(site, n_realizations=n_realizations, stages=planned_stages(stages)))
+    return site
 
 
 def run_logs(site: Any) -> Any:
@@ -746,7 +764,7 @@ def run(
     ):
         logger.info("geo3d %s: run of %s into %s", __version__, site_path, final)
         with timer.stage("check"):
-            site = run_check(site_path)
+            site = run_check(site_path, n_realizations=n_realizations, stages=stages)
         results = RunResults(site=site, timings=timings)
         chosen_formats = list(site.config.output.formats if formats is None else formats)
         written: list[Path] = []

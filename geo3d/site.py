@@ -10,7 +10,7 @@ from __future__ import annotations
 import contextlib
 import warnings
 from collections.abc import Iterable, Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from os import PathLike
 from pathlib import Path
 from typing import Any
@@ -94,6 +94,8 @@ class Site:
         radius_of_influence, geometry``; may be empty.
     dem
         ``(elevation array, rasterio Affine)`` when a DEM is given, else None.
+    log_files
+        Boring id -> the log file it was read from.
     """
 
     name: str
@@ -108,6 +110,7 @@ class Site:
     boundary: Polygon
     zones: gpd.GeoDataFrame
     dem: tuple[np.ndarray, Any] | None = None
+    log_files: dict[str, Path] = field(default_factory=dict)
 
 
 class _Problems:
@@ -393,6 +396,7 @@ def read_site(path: str | PathLike) -> Site:
         boundary=boundary,
         zones=zones,
         dem=dem,
+        log_files=sources,
     )
 
 

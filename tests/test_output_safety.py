@@ -128,9 +128,7 @@ def test_folder_appearing_during_the_run_is_not_replaced(mini_site, tmp_path, mo
     assert sorted(p.name for p in tmp_path.iterdir()) == ["mini_site", "out"]
 
 
-def test_earlier_results_changed_during_the_run_are_not_replaced(
-    mini_site, tmp_path, monkeypatch
-):
+def test_earlier_results_changed_during_the_run_are_not_replaced(mini_site, tmp_path, monkeypatch):
     import geo3d.pipeline
 
     out = tmp_path / "out"

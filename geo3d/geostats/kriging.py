@@ -470,11 +470,20 @@ def _run_chunks(
     from dask.distributed import Client
 
     if isinstance(scheduler, str):
+        from geo3d.checks.settings import scheduler_problem
+
+        # probe first: a Client that fails half-way prints a traceback when it is collected
+        problem = scheduler_problem(scheduler)
         try:
-            client = Client(scheduler, set_as_default=False)
-        except OSError as exc:
-            msg = f"cannot reach the dask scheduler at {scheduler!r}: {exc}"
-            raise ModelError(msg) from exc
+            if problem is not None:
+                raise OSError(problem)
+            client = Client(scheduler, set_as_default=False, timeout=10)
+        except (OSError, ValueError, TimeoutError) as exc:
+            msg = (
+                f"site.toml, [kriging] scheduler: {exc}; expected the address of a running "
+                'dask.distributed scheduler (such as "tcp://host:8786"), or "" for local threads'
+            )
+            raise ModelError(msg) from None
         try:
             return list(client.gather(client.compute(tasks)))
         finally:
