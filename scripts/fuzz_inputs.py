@@ -349,8 +349,13 @@ def main(argv: list[str] | None = None) -> int:
     with tempfile.TemporaryDirectory(prefix="geo3d-fuzz-template-") as tmp:
         template = small_demo(Path(tmp) / "demo", args.borings)
         jobs = [(i, args.seed, str(template), 0) for i in range(args.n)]
+        results = []
         with ProcessPoolExecutor(max_workers=args.jobs) as pool:
-            results = list(pool.map(run_one, jobs, chunksize=4))
+            for result in pool.map(run_one, jobs, chunksize=4):
+                results.append(result)
+                if len(results) % 100 == 0:
+                    bad = sum(r[2] in ("traceback", "silent") for r in results)
+                    print(f"{len(results)} done, {bad} bad", file=sys.stderr, flush=True)
     verdicts = Counter(v for _, _, v, _, _ in results)
     by_mutation = Counter((m, v) for _, m, v, _, _ in results)
     for index, name, verdict, _, text in results:

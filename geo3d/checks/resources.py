@@ -17,17 +17,19 @@ from geo3d.checks import Finding
 
 __all__ = ["ResourceEstimate", "estimate_resources", "check_resources", "available_memory"]
 
-#: Bytes per grid cell held by the model without realizations: five float64 fields (log10 K,
-#: its variance, K, EC, its variance), one float64 probability per facies class, the cell
-#: centres of estimated cells and the kriging outputs, and the copies made while writing
-#: NetCDF and VTK (counted twice).
-BYTES_PER_CELL = 2 * (5 * 8 + 3 * 8 + 3 * 8 + 2 * 8 + 3)
-#: Bytes per cell and realization: the float32 realization array and the float64 simulated
-#: values before they are placed in the grid.
-BYTES_PER_CELL_REALIZATION = 4 + 8
-#: Seconds per estimated cell for a kriging system of 32 neighbours, measured on the demo site
-#: (2 cores, shared); scaled by (neighbors / 32) ** 2 for other neighbourhoods.
-SECONDS_PER_CELL = 1.5e-4
+#: Bytes per grid cell held by the model stage without realizations: measured as the peak
+#: resident memory of the demo site's model (about 850 MB for 1.03 million cells and 4
+#: realizations, less about 250 MB for the libraries), rounded up.
+BYTES_PER_CELL = 500
+#: Bytes per cell and realization: the float32 realization array, the float64 simulated values
+#: before they are placed in the grid, and a float32 copy while writing.
+BYTES_PER_CELL_REALIZATION = 4 + 8 + 4 + 8
+#: Seconds per cell for one kriging pass (log10 K and EC are kriged once each) and per cell and
+#: realization, measured on the demo site (942,289 cells, 32 neighbours) on 2 cores shared
+#: with other work (1.8e-4 and 2.2e-4 s), divided by the load of about 6 at the time; scaled
+#: by (neighbors / 32) ** 2 for other neighbourhoods.
+SECONDS_PER_CELL_PASS = 3.0e-5
+SECONDS_PER_CELL_REALIZATION = 3.7e-5
 
 
 @dataclass(frozen=True)
@@ -137,9 +139,9 @@ def estimate_resources(site: Any, *, n_realizations: int | None = None) -> Resou
     cells = shape[0] * shape[1] * shape[2]
     memory = float(cells) * (BYTES_PER_CELL + BYTES_PER_CELL_REALIZATION * realizations)
     neighbours = max(3, int(site.config.kriging.neighbors))
-    rate = SECONDS_PER_CELL * (neighbours / 32.0) ** 2
-    # EC and log10 K are kriged once each; every realization is kriged again for conditioning
-    seconds = float(cells) * rate * (2 + realizations)
+    scale = (neighbours / 32.0) ** 2
+    per_cell = 2 * SECONDS_PER_CELL_PASS + realizations * SECONDS_PER_CELL_REALIZATION
+    seconds = float(cells) * per_cell * scale
     return ResourceEstimate(shape, cells, memory, seconds, realizations)
 
 
