@@ -6,9 +6,9 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
+from conftest import write_log_csv
 
 import geo3d.io.logs_reader as logs_reader
-from conftest import write_log_csv
 from geo3d.config import LogsSection
 from geo3d.errors import LogFormatError
 from geo3d.io.logs_reader import read_log

@@ -14,7 +14,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from conftest import MINI_BORINGS, P_ATM, mini_log, polygon_feature, write_geojson
+from conftest import MINI_BORINGS, mini_log, polygon_feature, write_geojson
 
 __all__ = ["Case", "CASES", "write_las"]
 

@@ -10,9 +10,9 @@ from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
+from conftest import make_site
 
 from bad_input.cases import CASES, Case
-from conftest import make_site
 from geo3d.cli import main
 
 _LOCATED = re.compile(r"(line \d+|row \d+|feature \d+|data row \d+)")
