@@ -23,6 +23,8 @@ __all__ = ["check_coordinates", "check_zones", "check_layout", "area_of_use"]
 #: Margin (degrees) around a CRS's area of use within which coordinates are still accepted;
 #: projected zones are routinely used a little beyond their nominal edges (common practice).
 AREA_MARGIN_DEG = 1.0
+#: A boring farther outside the boundary than this many times the boundary's size is refused.
+FAR_FACTOR = 10.0
 #: Metres per international foot (exact, NIST SP 811).
 FOOT = 0.3048
 
@@ -135,7 +137,9 @@ def _boundary_findings(site: Any, path: Path, borings: Any) -> list[Finding]:
     inside = np.array([boundary.covers(p) for p in points])
     minx, miny, maxx, maxy = boundary.bounds
     size = max(maxx - minx, maxy - miny, 1.0)
-    far = np.array([boundary.distance(p) > size for p in points])
+    # a boring a little outside is only warned about when the site is read; one more than ten
+    # times the boundary's size away is a typing or CRS mistake
+    far = np.array([boundary.distance(p) > FAR_FACTOR * size for p in points])
     boundary_file = _file(site, site.config.files.boundary)
     if inside.any() and not far.any():
         return []

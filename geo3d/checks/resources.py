@@ -173,9 +173,9 @@ def check_resources(site: Any, *, n_realizations: int | None = None) -> list[Fin
     if estimate.memory_bytes > cap:
         found = f"the model would need {estimate.describe()}"
         expected = f"at most {source}: {how}"
-        findings.append(
-            Finding("error", "resources-memory", f"{toml}, [grid] cell_size", found, expected)
-        )
+        by_realizations = BYTES_PER_CELL_REALIZATION * estimate.realizations > BYTES_PER_CELL
+        key = "[simulation] realizations" if by_realizations else "[grid] cell_size"
+        findings.append(Finding("error", "resources-memory", f"{toml}, {key}", found, expected))
     elif estimate.seconds > limits.warn_time:
         found = f"the model would take {estimate.describe()}"
         expected = f"less than [limits] warn_time = {limits.warn_time:g} s; to go faster, {how}"

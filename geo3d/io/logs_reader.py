@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 
 from geo3d.config import LogsSection, UnitsSection
-from geo3d.errors import Geo3dWarning, LogFormatError, where
+from geo3d.errors import Geo3dWarning, LogFormatError, SiteValidationError, where
 from geo3d.io.readers import numeric_column, read_table
 from geo3d.units import to_internal
 
@@ -109,10 +109,13 @@ STREAM_BYTES = 8 * 2**20
 CHUNK_ROWS = 200_000
 
 
-def _chunk_values(chunk: pd.DataFrame, path: Path, names: dict[str, str]) -> dict[str, np.ndarray]:
+def _numeric_values(
+    table: pd.DataFrame, names: dict[str, str], *, path: Path
+) -> dict[str, np.ndarray]:
+    """Read the mapped columns as numbers (EC and time may be empty; flow must be >= 0)."""
     return {
         key: numeric_column(
-            chunk,
+            table,
             column,
             path=path,
             allow_empty=key in ("ec", "time_s"),
@@ -169,7 +172,7 @@ def _read_csv_streaming(path: Path, *, logs: LogsSection, units: UnitsSection) -
     offset = 0
     try:
         for chunk in _csv_chunks(path, logs, dtype=dtype, na_values=[""]):
-            for key, array in _chunk_values(chunk, path, names).items():
+            for key, array in _numeric_values(chunk, names, path=path).items():
                 parts[key].append(array)
             if id_column:
                 ids.update(chunk[id_column].astype(str).str.strip().unique())
@@ -180,7 +183,7 @@ def _read_csv_streaming(path: Path, *, logs: LogsSection, units: UnitsSection) -
         except ValueError:  # not even text: the whole-file reader names the problem
             text = None
         if text is not None:
-            _chunk_values(text, path, names)  # raises, naming the line and column
+            _numeric_values(text, names, path=path)  # raises, naming the line and column
         return _read_csv_log(path, logs=logs, units=units, stream=False)
     if id_column and (len(ids) != 1 or not next(iter(ids))):
         msg = (
@@ -213,17 +216,7 @@ def _read_csv_log(
         error=LogFormatError,
     )
     first = frame.attrs["first_line"]
-    values = {}
-    for key, column in names.items():
-        optional = key in ("ec", "time_s")
-        values[key] = numeric_column(
-            frame,
-            column,
-            path=path,
-            allow_empty=optional,
-            minimum=0.0 if key == "flow" else None,
-            error=LogFormatError,
-        )
+    values = _numeric_values(frame, names, path=path)
     if logs.boring_id == "filename":
         boring_id = path.stem
     else:
@@ -290,17 +283,7 @@ def _read_las_log(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.D
                 break
     table.columns = [str(c).strip().lower() for c in table.columns]
     table.attrs["first_line"] = first_line
-    values = {}
-    for key, column in names.items():
-        optional = key in ("ec", "time_s")
-        values[key] = numeric_column(
-            table,
-            column.lower(),
-            path=path,
-            allow_empty=optional,
-            minimum=0.0 if key == "flow" else None,
-            error=LogFormatError,
-        )
+    values = _numeric_values(table, {k: c.lower() for k, c in names.items()}, path=path)
     if logs.boring_id == "filename":
         boring_id = path.stem
     else:
@@ -420,8 +403,6 @@ def read_logs(
     if len(problems) == 1:
         raise problems[0]
     if problems:
-        from geo3d.site import SiteValidationError
-
         raise SiteValidationError(str(p) for p in problems)
     samples = pd.concat(tables, ignore_index=True)
     samples = samples.sort_values(["boring_id", "depth"], kind="stable").reset_index(drop=True)

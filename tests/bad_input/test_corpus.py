@@ -58,7 +58,7 @@ def test_check_outcome(case: Case, template_site: Path, tmp_path: Path):
             assert "Warning" in output, output
     if case.name in ("absurd-cell-size", "million-realizations"):
         # resource refusals come from an estimate, before any work
-        assert seconds < 10, seconds
+        assert seconds < 30, seconds
 
 
 _RUN_LEVEL = ["xy-swapped", "neighbors-1", "million-realizations", "scheduler-unreachable"]
