@@ -274,8 +274,7 @@ def check(site: Path) -> None:
     values, tests, layout of the borings, settings) and estimates the cells, memory and time
     of the model, refusing a run that would not fit.
     """
-    from geo3d.checks.resources import estimate_resources
-    from geo3d.pipeline import run_check
+    from geo3d.pipeline import estimate_resources, run_check
 
     result = run_check(site)
     out = console()

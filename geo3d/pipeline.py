@@ -36,6 +36,7 @@ from geo3d.analysis.thickness import thickness_maps
 from geo3d.analysis.volumes import zone_volumes
 from geo3d.analysis.water_table import depth_to_water_map, water_table_map
 from geo3d.checks import check_site, report
+from geo3d.checks.resources import estimate_resources
 from geo3d.errors import Geo3dError, Geo3dWarning, ModelError
 from geo3d.geostats.variogram import VariogramFit
 from geo3d.io import geotiff, gpkg, netcdf, tables, vtk
@@ -49,6 +50,7 @@ from geo3d.results import RunResults
 from geo3d.site import Site, read_site
 
 __all__ = [
+    "estimate_resources",
     "STAGES",
     "RunResults",
     "run",

@@ -16,62 +16,17 @@ from __future__ import annotations
 
 import warnings
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass
-from typing import Any, Literal
+from typing import Any
 
-from geo3d.errors import Geo3dError, Geo3dWarning
+from geo3d.checks import coordinates, logs, records, resources, settings
+from geo3d.checks.findings import Finding, PlausibilityError
+from geo3d.errors import Geo3dWarning
 
 __all__ = ["Finding", "PlausibilityError", "check_site", "report", "MODEL_STAGES"]
 
 #: Stages that need a 3D model: geometry, kriging and resource findings are errors only when
 #: one of them is planned.
 MODEL_STAGES = frozenset({"model", "volumes", "export", "report"})
-
-
-@dataclass(frozen=True)
-class Finding:
-    """One problem found by a plausibility check.
-
-    Attributes
-    ----------
-    level
-        ``"error"`` (the run is refused) or ``"warning"`` (shown, the run goes on).
-    check
-        Short name of the check, such as ``"flow-units"``.
-    place
-        File, row or line and column (built with :func:`geo3d.errors.where`).
-    found
-        What was found.
-    expected
-        What was expected, and how to fix it.
-    """
-
-    level: Literal["error", "warning"]
-    check: str
-    place: str
-    found: str
-    expected: str
-
-    @property
-    def message(self) -> str:
-        """The one-line message shown to the user."""
-        return f"{self.place}: {self.found}; expected {self.expected} [{self.check}]"
-
-
-class PlausibilityError(Geo3dError, ValueError):
-    """The data are well-formed but implausible, or the settings cannot work.
-
-    Parameters
-    ----------
-    findings
-        The error findings; ``.problems`` lists their messages when there are several.
-    """
-
-    def __init__(self, findings: Sequence[Finding]):
-        self.findings = list(findings)
-        messages = [f.message for f in self.findings]
-        self.problems: list[str] = messages if len(messages) > 1 else []
-        super().__init__("\n".join(messages))
 
 
 def check_site(
@@ -93,8 +48,6 @@ def check_site(
     -------
     list of Finding
     """
-    from geo3d.checks import coordinates, logs, records, resources, settings
-
     findings: list[Finding] = []
     findings += settings.check_settings(site)
     findings += coordinates.check_coordinates(site)

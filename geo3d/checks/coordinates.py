@@ -15,7 +15,7 @@ import numpy as np
 import pyproj
 from shapely.geometry import Point
 
-from geo3d.checks import Finding
+from geo3d.checks.findings import Finding
 from geo3d.errors import where
 
 __all__ = ["check_coordinates", "check_zones", "check_layout", "area_of_use"]

@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from geo3d.checks import Finding
+from geo3d.checks.findings import Finding
 from geo3d.errors import where
 from geo3d.units import from_internal
 

@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from geo3d.checks import Finding
+from geo3d.checks.findings import Finding
 from geo3d.errors import where
 
 __all__ = ["check_dissipation", "check_slug_tests", "check_hydrostatic", "GAMMA_W"]

@@ -13,7 +13,7 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
-from geo3d.checks import Finding
+from geo3d.checks.findings import Finding
 
 __all__ = ["ResourceEstimate", "estimate_resources", "check_resources", "available_memory"]
 

@@ -5,7 +5,8 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from geo3d.checks import Finding
+from geo3d.checks.findings import Finding
+from geo3d.geostats.kriging import scheduler_problem
 
 __all__ = ["check_settings", "scheduler_problem"]
 
@@ -23,36 +24,6 @@ def _non_finite(value: Any, path: tuple[str, ...]):
 
 def _key(path: tuple[str, ...]) -> str:
     return f"[{'.'.join(path[:-1])}] {path[-1]}" if len(path) > 1 else path[0]
-
-
-def scheduler_problem(address: str, *, timeout: float = 3.0) -> str | None:
-    """Return why a ``dask.distributed`` scheduler address cannot be used, or None.
-
-    Parameters
-    ----------
-    address
-        Such as ``"tcp://10.0.0.5:8786"``; ``""`` means local threads and is always fine.
-    timeout
-        Seconds to wait for a TCP connection.
-    """
-    if not address.strip():
-        return None
-    import socket
-
-    try:
-        from distributed.comm import parse_address, parse_host_port
-
-        scheme, location = parse_address(address)
-        if scheme not in ("tcp", "tls"):
-            return None  # other transports are checked when the client connects
-        host, port = parse_host_port(location)
-    except (ImportError, ValueError, TypeError) as exc:
-        return f"{address!r} is not a scheduler address ({exc})"
-    try:
-        socket.create_connection((host, int(port)), timeout=timeout).close()
-    except OSError as exc:
-        return f"cannot reach the scheduler at {address!r} ({exc})"
-    return None
 
 
 def check_settings(site: Any) -> list[Finding]:

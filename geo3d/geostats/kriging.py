@@ -491,8 +491,6 @@ def _run_chunks(
     from dask.distributed import Client
 
     if isinstance(scheduler, str):
-        from geo3d.checks.settings import scheduler_problem
-
         # probe first: a Client that fails half-way prints a traceback when it is collected
         problem = scheduler_problem(scheduler)
         try:
@@ -510,3 +508,33 @@ def _run_chunks(
         finally:
             client.close()
     return list(scheduler.gather(scheduler.compute(tasks)))  # a dask.distributed Client
+
+
+def scheduler_problem(address: str, *, timeout: float = 3.0) -> str | None:
+    """Return why a ``dask.distributed`` scheduler address cannot be used, or None.
+
+    Parameters
+    ----------
+    address
+        Such as ``"tcp://10.0.0.5:8786"``; ``""`` means local threads and is always fine.
+    timeout
+        Seconds to wait for a TCP connection.
+    """
+    if not address.strip():
+        return None
+    import socket
+
+    try:
+        from distributed.comm import parse_address, parse_host_port
+
+        scheme, location = parse_address(address)
+        if scheme not in ("tcp", "tls"):
+            return None  # other transports are checked when the client connects
+        host, port = parse_host_port(location)
+    except (ImportError, ValueError, TypeError) as exc:
+        return f"{address!r} is not a scheduler address ({exc})"
+    try:
+        socket.create_connection((host, int(port)), timeout=timeout).close()
+    except OSError as exc:
+        return f"cannot reach the scheduler at {address!r} ({exc})"
+    return None

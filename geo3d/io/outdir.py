@@ -29,6 +29,7 @@ from collections.abc import Iterator
 from os import PathLike
 from pathlib import Path
 
+from geo3d.config import load_config
 from geo3d.errors import Geo3dWarning, OutputExistsError
 from geo3d.io.atomic import output_folder
 
@@ -79,8 +80,6 @@ def input_folders(site_path: str | PathLike) -> list[Path]:
     root = (given.parent if given.is_file() else given).resolve()
     folders = [root]
     try:
-        from geo3d.config import load_config
-
         files = load_config(given).files
     except Exception:  # a broken site file is reported by the check stage
         return folders
