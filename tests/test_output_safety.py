@@ -174,7 +174,7 @@ _SLOW_RUN = textwrap.dedent(
     import geo3d.pipeline
     from geo3d.cli import main
 
-    def slow_stage(site_path):
+    def slow_stage(site_path, **kwargs):
         # stands for a long stage writing into the staging folder
         for staging in Path(sys.argv[2]).parent.glob(".geo3d-staging-*"):
             (staging / "half_written.vti").write_text("half")

@@ -26,7 +26,7 @@ __all__ = ["Finding", "PlausibilityError", "check_site", "report", "MODEL_STAGES
 
 #: Stages that need a 3D model: geometry, kriging and resource findings are errors only when
 #: one of them is planned.
-MODEL_STAGES = frozenset({"model", "volumes", "export", "report"})
+MODEL_STAGES = frozenset({"model", "volumes", "report"})
 
 
 def check_site(
