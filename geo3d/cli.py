@@ -111,8 +111,15 @@ def handle_errors(function: F) -> F:
                 _print_error(str(exc))
             sys.exit(EXIT_INPUT)
         except KeyboardInterrupt:
-            _print_error("interrupted")
+            _print_error("interrupted; nothing was written to the output folder")
             sys.exit(130)
+        except MemoryError:
+            _print_error(
+                "ran out of memory; nothing was written to the output folder. Run 'geo3d "
+                "check' for the estimated memory of the model and make [grid] cell_size "
+                "larger or [simulation] realizations smaller"
+            )
+            sys.exit(EXIT_FAILURE)
         except Exception as exc:
             if _verbosity() > 0:
                 import traceback
@@ -261,12 +268,20 @@ def site_summary(site) -> Any:
 @click.argument("site", type=SITE_PATH)
 @handle_errors
 def check(site: Path) -> None:
-    """Read and validate the site folder SITE, and summarise it (or list every problem)."""
-    from geo3d.site import read_site
+    """Read and validate the site folder SITE, and summarise it (or list every problem).
 
-    result = read_site(site)
+    Besides the file formats, checks that the data are plausible (coordinates, units, sensor
+    values, tests, layout of the borings, settings) and estimates the cells, memory and time
+    of the model, refusing a run that would not fit.
+    """
+    from geo3d.pipeline import estimate_resources, run_check
+
+    result = run_check(site)
     out = console()
     out.print(site_summary(result))
+    estimate = estimate_resources(result)
+    if estimate is not None:
+        out.print(f"Model estimate: {estimate.describe()}", markup=False)
     out.print("[green]Site is valid.[/green]")
 
 

@@ -60,6 +60,7 @@ __all__ = [
     "SimulationSection",
     "TreatmentSection",
     "OutputSection",
+    "LimitsSection",
     "LogsOptions",
     "OutputOptions",
     "ModelOptions",
@@ -521,6 +522,30 @@ class OutputSection(_Section):
     )
 
 
+class LimitsSection(_Section):
+    """``[limits]``: refuse or warn about a model too large for the machine or the user's time."""
+
+    max_cells: int = Field(
+        200_000_000, gt=0, description="Refuse a voxel grid of more cells than this."
+    )
+    max_memory: float | Auto = Field(
+        "auto",
+        description='Refuse a model estimated to need more memory than this, in GB; "auto" = '
+        "the memory available when the run starts.",
+    )
+    warn_time: float = Field(
+        1800.0, gt=0, description="Warn when the model stage is estimated to take longer, in s."
+    )
+
+    @field_validator("max_memory")
+    @classmethod
+    def _positive_memory(cls, value: float | str) -> float | str:
+        if not isinstance(value, str) and not value > 0:
+            msg = 'expected a positive number of GB or "auto"'
+            raise ValueError(msg)
+        return value
+
+
 class SiteConfig(_Section):
     """The whole site file; each attribute is one ``[section]``.
 
@@ -548,6 +573,7 @@ class SiteConfig(_Section):
         default_factory=TreatmentSection, description="Treatment design."
     )
     output: OutputSection = Field(default_factory=OutputSection, description="Outputs.")
+    limits: LimitsSection = Field(default_factory=LimitsSection, description="Resource limits.")
 
     def facies_classes(self) -> FaciesClasses:
         """Return the ``[[facies.classes]]`` as the one facies-class type."""

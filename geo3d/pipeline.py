@@ -5,8 +5,9 @@ chains them and writes every output into one folder.  Stage settings come from t
 through the options objects of :mod:`geo3d.config` (``logs_options``, ``model_options``,
 ``volume_options``); this module passes them on as keyword arguments.
 
-Outputs are built in a staging folder (:func:`geo3d.io.atomic.output_folder`) that replaces the
-output folder only when the whole run succeeded, so a failed run leaves nothing half-written.
+Outputs are built in a staging folder (:func:`geo3d.io.outdir.safe_output_folder`) that replaces
+the output folder only when the whole run succeeded, so a failed run leaves nothing half-written;
+an output folder that is or holds an input, or files geo3d did not write, is refused first.
 The folder holds a ``run.log`` (every log record and warning of the run) and ``run.json``
 (timings per stage, the files written, the headline figures).
 """
@@ -34,10 +35,13 @@ from geo3d.analysis.injection import InjectionPlan, injection_plan
 from geo3d.analysis.thickness import thickness_maps
 from geo3d.analysis.volumes import zone_volumes
 from geo3d.analysis.water_table import depth_to_water_map, water_table_map
+from geo3d.checks import check_site, report
+from geo3d.checks.resources import estimate_resources
 from geo3d.errors import Geo3dError, Geo3dWarning, ModelError
 from geo3d.geostats.variogram import VariogramFit
 from geo3d.io import geotiff, gpkg, netcdf, tables, vtk
-from geo3d.io.atomic import atomic_file, output_folder
+from geo3d.io.atomic import atomic_file
+from geo3d.io.outdir import safe_output_folder
 from geo3d.logs.process import LogResults, process_logs
 from geo3d.model import ModelResult, VoxelModel, build_voxel_model
 from geo3d.report import write_report
@@ -46,6 +50,7 @@ from geo3d.results import RunResults
 from geo3d.site import Site, read_site
 
 __all__ = [
+    "estimate_resources",
     "STAGES",
     "RunResults",
     "run",
@@ -71,19 +76,36 @@ ProgressCallback = Callable[[str, float, str], None]
 # --------------------------------------------------------------------------- stages
 
 
-def run_check(site_path: str | PathLike) -> Site:
-    """Read and validate a site folder.
+def run_check(
+    site_path: str | PathLike,
+    *,
+    n_realizations: int | None = None,
+    stages: Sequence[str] = STAGES,
+) -> Site:
+    """Read and validate a site folder, then run the plausibility checks and resource estimate.
 
     Parameters
     ----------
     site_path
         Site folder (or its ``site.toml``).
+    n_realizations
+        Overrides ``[simulation] realizations`` in the resource estimate.
+    stages
+        Stages the run will go through (checks about the 3D model are errors only when a
+        model is built).
 
     Returns
     -------
     geo3d.site.Site
+
+    Raises
+    ------
+    geo3d.checks.PlausibilityError
+        Well-formed but implausible data, or settings that cannot work or would not fit.
     """
-    return read_site(site_path)
+    site = read_site(site_path)
+    report(check_site(site, n_realizations=n_realizations, stages=planned_stages(stages)))
+    return site
 
 
 def run_logs(site: Site) -> LogResults:
@@ -596,7 +618,9 @@ def run(
     Raises
     ------
     OutputExistsError
-        If ``out_dir`` exists, is not empty and ``overwrite`` is false (checked first).
+        If ``out_dir`` exists, is not empty and ``overwrite`` is false (checked first); an
+        :class:`~geo3d.io.outdir.UnsafeOutputError` if it is, holds or lies inside an input
+        folder, holds files no geo3d run wrote, or appeared or changed during the run.
     Geo3dError
         Any input or modelling problem; the output folder is then left untouched.
     """
@@ -607,10 +631,13 @@ def run(
     timer = _Timer(timings, callback)
     started = datetime.now(UTC)
     total_start = time.perf_counter()
-    with output_folder(final, overwrite=overwrite) as staging, _run_log(staging / "run.log"):
+    with (
+        safe_output_folder(final, site_path=site_path, overwrite=overwrite) as staging,
+        _run_log(staging / "run.log"),
+    ):
         logger.info("geo3d %s: run of %s into %s", __version__, site_path, final)
         with timer.stage("check"):
-            site = run_check(site_path)
+            site = run_check(site_path, n_realizations=n_realizations, stages=stages)
         results = RunResults(site=site, timings=timings)
         _compute(results, planned, timer, n_realizations=n_realizations, progress=callback)
         chosen_formats = list(site.config.output_options().formats if formats is None else formats)

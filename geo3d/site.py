@@ -10,7 +10,7 @@ from __future__ import annotations
 import contextlib
 import warnings
 from collections.abc import Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from os import PathLike
 from pathlib import Path
 from typing import Any
@@ -78,6 +78,8 @@ class Site:
         radius_of_influence, geometry``; may be empty.
     dem
         ``(elevation array, rasterio Affine)`` when a DEM is given, else None.
+    log_files
+        Boring id -> the log file it was read from.
     """
 
     name: str
@@ -92,6 +94,7 @@ class Site:
     boundary: Polygon
     zones: gpd.GeoDataFrame
     dem: tuple[np.ndarray, Any] | None = None
+    log_files: dict[str, Path] = field(default_factory=dict)
 
 
 class _Problems:
@@ -244,7 +247,7 @@ def read_site(path: str | PathLike) -> Site:
     borings_path = _path(root, config.files.borings) or root / config.files.borings
     with problems.catch():
         borings = read_borings(borings_path, length_unit=config.units.length, crs=declared_crs)
-    samples = _read_samples(root, config, borings, borings_path, problems)
+    samples, log_files = _read_samples(root, config, borings, borings_path, problems)
     dissipation = _read_dissipation(root, toml, config, borings, problems)
     slug_tests, sensor_checks = _read_tests(root, config, borings, problems)
     boundary = _read_boundary(root, crs, borings, borings_path, config, problems)
@@ -278,6 +281,7 @@ def read_site(path: str | PathLike) -> Site:
         boundary=boundary,
         zones=zones,
         dem=dem,
+        log_files=log_files,
     )
 
 
@@ -287,8 +291,11 @@ def _read_samples(
     borings: pd.DataFrame | None,
     borings_path: Path,
     problems: _Problems,
-) -> pd.DataFrame | None:
-    """Read the logs, check them against the borings table and add each sample's elevation."""
+) -> tuple[pd.DataFrame | None, dict[str, Path]]:
+    """Read the logs, check them against the borings table and add each sample's elevation.
+
+    Returns the samples (None if the logs cannot be read) and boring id -> log file.
+    """
     samples = None
     sources: dict[str, Path] = {}
     with problems.catch():
@@ -296,7 +303,7 @@ def _read_samples(
             config.files.logs, root=root, logs=config.logs, units=config.units
         )
     if borings is None or samples is None:
-        return samples
+        return samples, sources
     known = set(borings["boring_id"])
     for boring_id, source in sources.items():
         if boring_id not in known:
@@ -326,7 +333,7 @@ def _read_samples(
         problems=problems,
         first_line=config.logs.header_rows + 2,
     )
-    return samples
+    return samples, sources
 
 
 def _read_dissipation(

@@ -745,6 +745,11 @@ target = "transmissive"           # transmissive | all  (material to treat insid
 
 [output]
 formats = ["vtk", "geotiff", "gpkg", "netcdf", "csv", "report"]
+
+[limits]
+max_cells = 200000000             # refuse a voxel grid of more cells than this
+max_memory = "auto"               # GB; "auto" = the memory available when the run starts
+warn_time = 1800                  # s; warn when the model is estimated to take longer
 '''
 
 

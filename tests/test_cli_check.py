@@ -107,7 +107,7 @@ def test_verbose_shows_traceback_for_unexpected_errors(monkeypatch, mini_site: P
     def fail(path):
         raise RuntimeError("reader crashed")
 
-    monkeypatch.setattr("geo3d.site.read_site", fail)
+    monkeypatch.setattr("geo3d.pipeline.read_site", fail)
     result = run("-v", "check", str(mini_site))
     assert result.exit_code == 1
     assert "Traceback" in result.output and "reader crashed" in result.output

@@ -35,15 +35,21 @@ def test_existing_output_refused_then_overwritten(mini_site, tmp_path):
     out.mkdir()
     (out / "old.txt").write_text("x")
     runner = CliRunner()
-    result = runner.invoke(main, ["logs", str(mini_site), "-o", str(out), "--no-progress"])
+    args = ["logs", str(mini_site), "-o", str(out), "--no-progress"]
+    result = runner.invoke(main, args)
     assert result.exit_code == 2
     assert "overwrite" in result.output and "Traceback" not in result.output
     assert (out / "old.txt").exists()
-    result = runner.invoke(
-        main, ["logs", str(mini_site), "-o", str(out), "--overwrite", "--no-progress"]
-    )
+    # --overwrite does not replace a folder geo3d did not write
+    result = runner.invoke(main, [*args, "--overwrite"])
+    assert result.exit_code == 2
+    assert "did not write" in result.output and "old.txt" in result.output
+    assert (out / "old.txt").read_text() == "x"
+    # it does replace the results of an earlier run
+    (out / "old.txt").unlink()
+    assert runner.invoke(main, args).exit_code == 0
+    result = runner.invoke(main, [*args, "--overwrite"])
     assert result.exit_code == 0, result.output
-    assert not (out / "old.txt").exists()
     assert (out / "intervals.csv").exists() and (out / "run.log").exists()
     assert "Outputs in" in result.output
 
@@ -100,7 +106,7 @@ def check_outputs(out: Path, crs: pyproj.CRS, *, realizations: int) -> None:
     assert meta["stages"] == ["check", "logs", "model", "volumes", "export", "report"]
     assert "<html" in (out / "report.html").read_text(encoding="utf-8")[:500].lower()
     # Nothing left beside the output folder.
-    assert not list(out.parent.glob(f".{out.name}.*"))
+    assert not list(out.parent.glob(".geo3d-*"))
 
 
 @pytest.mark.slow

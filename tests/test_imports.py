@@ -34,6 +34,7 @@ LAYERS: dict[str, int] = {
     "geo3d.grid": 8,
     "geo3d.geostats": 8,
     "geo3d.model": 9,
+    "geo3d.checks": 9,
     "geo3d.analysis": 10,
     "geo3d.results": 11,
     "geo3d.io": 12,

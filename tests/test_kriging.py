@@ -253,7 +253,7 @@ def test_distributed_client_identical_to_serial():
 
     with (
         dask.config.set({"distributed.comm.timeouts.connect": "1s"}),
-        pytest.raises(ModelError, match="dask scheduler"),
+        pytest.raises(ModelError, match=r"\[kriging\] scheduler"),
     ):
         ok.predict(t, scheduler="tcp://127.0.0.1:1")
 

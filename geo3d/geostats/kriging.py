@@ -491,13 +491,50 @@ def _run_chunks(
     from dask.distributed import Client
 
     if isinstance(scheduler, str):
+        # probe first: a Client that fails half-way prints a traceback when it is collected
+        problem = scheduler_problem(scheduler)
         try:
-            client = Client(scheduler, set_as_default=False)
-        except OSError as exc:
-            msg = f"cannot reach the dask scheduler at {scheduler!r}: {exc}"
-            raise ModelError(msg) from exc
+            if problem is not None:
+                raise OSError(problem)
+            client = Client(scheduler, set_as_default=False, timeout=10)
+        except (OSError, ValueError, TimeoutError) as exc:
+            msg = (
+                f"site.toml, [kriging] scheduler: {exc}; expected the address of a running "
+                'dask.distributed scheduler (such as "tcp://host:8786"), or "" for local threads'
+            )
+            raise ModelError(msg) from None
         try:
             return list(client.gather(client.compute(tasks)))
         finally:
             client.close()
     return list(scheduler.gather(scheduler.compute(tasks)))  # a dask.distributed Client
+
+
+def scheduler_problem(address: str, *, timeout: float = 3.0) -> str | None:
+    """Return why a ``dask.distributed`` scheduler address cannot be used, or None.
+
+    Parameters
+    ----------
+    address
+        Such as ``"tcp://10.0.0.5:8786"``; ``""`` means local threads and is always fine.
+    timeout
+        Seconds to wait for a TCP connection.
+    """
+    if not address.strip():
+        return None
+    import socket
+
+    try:
+        from distributed.comm import parse_address, parse_host_port
+
+        scheme, location = parse_address(address)
+        if scheme not in ("tcp", "tls"):
+            return None  # other transports are checked when the client connects
+        host, port = parse_host_port(location)
+    except (ImportError, ValueError, TypeError) as exc:
+        return f"{address!r} is not a scheduler address ({exc})"
+    try:
+        socket.create_connection((host, int(port)), timeout=timeout).close()
+    except OSError as exc:
+        return f"cannot reach the scheduler at {address!r} ({exc})"
+    return None

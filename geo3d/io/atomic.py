@@ -13,12 +13,20 @@ import logging
 import os
 import shutil
 import tempfile
-from collections.abc import Iterator
+import time
+from collections.abc import Callable, Iterator
 from pathlib import Path
 
 from geo3d.errors import OutputExistsError
 
-__all__ = ["atomic_file", "output_folder"]
+__all__ = ["atomic_file", "output_folder", "STAGING_PREFIX", "OLD_PREFIX"]
+
+#: Name prefix of the staging folder built beside an output folder; the process id and start
+#: time follow (``.geo3d-staging-<pid>-<YYYYmmddTHHMMSS>-...``), so a folder left by a killed
+#: run can be recognised and removed by the next run (:mod:`geo3d.io.outdir`).
+STAGING_PREFIX = ".geo3d-staging-"
+#: Name prefix of the previous output folder while it is being replaced.
+OLD_PREFIX = ".geo3d-old-"
 
 logger = logging.getLogger(__name__)
 
@@ -82,8 +90,18 @@ def _default_mode(base: int) -> int:
     return base & ~mask
 
 
+def _stamp() -> str:
+    """Return ``<pid>-<UTC time>-``, the part of a staging name after its prefix."""
+    return f"{os.getpid()}-{time.strftime('%Y%m%dT%H%M%S', time.gmtime())}-"
+
+
 @contextlib.contextmanager
-def output_folder(path: str | os.PathLike, *, overwrite: bool = False) -> Iterator[Path]:
+def output_folder(
+    path: str | os.PathLike,
+    *,
+    overwrite: bool = False,
+    before_replace: Callable[[], None] | None = None,
+) -> Iterator[Path]:
     """Yield a staging folder that replaces ``path`` only when the block succeeds.
 
     Parameters
@@ -92,6 +110,9 @@ def output_folder(path: str | os.PathLike, *, overwrite: bool = False) -> Iterat
         Final output folder.
     overwrite
         Replace ``path`` if it exists and is not empty. Without it such a folder is an error.
+    before_replace
+        Called once the block succeeded, just before ``path`` is replaced; an exception it
+        raises removes the staging folder and leaves ``path`` untouched.
 
     Yields
     ------
@@ -118,17 +139,19 @@ def output_folder(path: str | os.PathLike, *, overwrite: bool = False) -> Iterat
             )
             raise OutputExistsError(msg)
     final.parent.mkdir(parents=True, exist_ok=True)
-    staging = Path(tempfile.mkdtemp(prefix=f".{final.name}.staging.", dir=final.parent))
+    staging = Path(tempfile.mkdtemp(prefix=STAGING_PREFIX + _stamp(), dir=final.parent))
     # mkdtemp makes a private (0700) folder; the output gets the usual mode for new folders.
     os.chmod(staging, _default_mode(0o777))
     try:
         yield staging
+        if before_replace is not None:
+            before_replace()
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)
         raise
     old = None
     if final.exists():
-        old = Path(tempfile.mkdtemp(prefix=f".{final.name}.old.", dir=final.parent))
+        old = Path(tempfile.mkdtemp(prefix=OLD_PREFIX + _stamp(), dir=final.parent))
         old.rmdir()
         os.replace(final, old)
     try:

@@ -17,6 +17,7 @@ import warnings
 from collections.abc import Sequence
 from os import PathLike
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -155,6 +156,12 @@ def _check_units_row(
             raise LogFormatError(msg)
 
 
+#: CSV logs larger than this (bytes) are read in chunks of :data:`CHUNK_ROWS` rows.
+STREAM_BYTES = 8 * 2**20
+#: Rows per chunk when a large CSV log is streamed.
+CHUNK_ROWS = 200_000
+
+
 def _numeric_values(
     table: pd.DataFrame, names: dict[str, str], *, path: Path
 ) -> dict[str, np.ndarray]:
@@ -172,7 +179,96 @@ def _numeric_values(
     }
 
 
-def _read_csv_log(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.DataFrame:
+def _csv_chunks(path: Path, logs: LogsSection, *, dtype: Any, offset: int = 0, **kwargs: Any):
+    """Iterate over the data rows of a CSV log in chunks, each with its first line."""
+    skip = list(range(logs.header_rows)) + list(
+        range(logs.header_rows + 1, logs.header_rows + 1 + offset)
+    )
+    reader = pd.read_csv(
+        path,
+        sep=logs.delimiter,
+        skiprows=skip,
+        dtype=dtype,
+        keep_default_na=False,
+        skipinitialspace=True,
+        chunksize=CHUNK_ROWS,
+        **kwargs,
+    )
+    first = logs.header_rows + 2 + offset
+    for chunk in reader:
+        chunk.columns = [str(c).strip() for c in chunk.columns]
+        chunk.attrs["first_line"] = first
+        first += len(chunk)
+        yield chunk
+
+
+def _read_csv_streaming(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.DataFrame:
+    """Read a large CSV log in chunks, in memory proportional to its number of rows.
+
+    Each chunk is parsed straight to floats (fast); when a chunk does not parse, that chunk is
+    read again as text by :func:`geo3d.io.readers.numeric_column`, which names the line and
+    column of the bad cell exactly as the whole-file reader does.
+    """
+    names = _mapping(logs, "csv")
+    skip_units = 1 if logs.units_row else 0
+    header = pd.read_csv(
+        path,
+        sep=logs.delimiter,
+        skiprows=logs.header_rows,
+        nrows=skip_units,
+        dtype=str,
+        keep_default_na=False,
+        skipinitialspace=True,
+    )
+    present = {str(c).strip() for c in header.columns}
+    id_column = None if logs.boring_id == "filename" else logs.boring_id
+    wanted = [*names.values(), *([id_column] if id_column else [])]
+    if any(c not in present for c in wanted) or len(header) < skip_units:
+        return _read_csv_log(path, logs=logs, units=units, stream=False)
+    if skip_units:
+        header.columns = [str(c).strip() for c in header.columns]
+        _check_units_row(header, path=path, names=names, units=units, line=logs.header_rows + 2)
+    # every column is read, so that a line with an extra field is refused as by the whole-file
+    # reader; only the wanted ones are parsed as numbers
+    usecols = [c for c in header.columns if str(c).strip() in wanted]
+    dtype = {c: (str if str(c).strip() == id_column else "float64") for c in usecols}
+    parts: dict[str, list[np.ndarray]] = {key: [] for key in names}
+    ids: set[str] = set()
+    offset = 0
+    try:
+        for chunk in _csv_chunks(path, logs, dtype=dtype, offset=skip_units, na_values=[""]):
+            for key, array in _numeric_values(chunk, names, path=path).items():
+                parts[key].append(array)
+            if id_column:
+                ids.update(chunk[id_column].astype(str).str.strip().unique())
+            offset += len(chunk)
+    except ValueError:  # a cell that is not a plain number: read that chunk as text
+        try:
+            text = next(_csv_chunks(path, logs, dtype=str, offset=skip_units + offset))
+        except ValueError:  # not even text: the whole-file reader names the problem
+            text = None
+        if text is not None:
+            _numeric_values(text, names, path=path)  # raises, naming the line and column
+        return _read_csv_log(path, logs=logs, units=units, stream=False)
+    if id_column and (len(ids) != 1 or not next(iter(ids))):
+        msg = (
+            f"{where(path, column=id_column)}: found boring ids {sorted(ids)[:5]}; "
+            "expected one boring per log file"
+        )
+        raise LogFormatError(msg)
+    values = {key: np.concatenate(arrays) for key, arrays in parts.items()}
+    boring_id = path.stem if id_column is None else next(iter(ids))
+    first = logs.header_rows + 2 + skip_units
+    return _finish(
+        values, boring_id=boring_id, path=path, names=names, units=units, first_line=first
+    )
+
+
+def _read_csv_log(
+    path: Path, *, logs: LogsSection, units: UnitsSection, stream: bool = True
+) -> pd.DataFrame:
+    if stream and path.stat().st_size > STREAM_BYTES:
+        return _read_csv_streaming(path, logs=logs, units=units)
     names = _mapping(logs, "csv")
     required = list(names.values())
     if logs.boring_id != "filename":

@@ -163,16 +163,39 @@ def hampel(
         empty = np.zeros(0)
         return empty.astype(bool), empty, empty
     h = max(int(half_window), 1)
-    padded = np.concatenate([np.full(h, np.nan), x, np.full(h, np.nan)])
-    windows = sliding_window_view(padded, 2 * h + 1)
-    with np.errstate(all="ignore"), warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN windows give NaN
-        median = np.nanmedian(windows, axis=1)
-        mad = np.nanmedian(np.abs(windows - median[:, None]), axis=1)
+    if x.size * (2 * h + 1) > EXACT_WINDOW_CELLS:
+        median, mad = _rolling_median_mad(x, h)
+    else:
+        padded = np.concatenate([np.full(h, np.nan), x, np.full(h, np.nan)])
+        windows = sliding_window_view(padded, 2 * h + 1)
+        with np.errstate(all="ignore"), warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN windows give NaN
+            median = np.nanmedian(windows, axis=1)
+            mad = np.nanmedian(np.abs(windows - median[:, None]), axis=1)
     scale = np.maximum(MAD_SCALE * mad, floor)
     outlier = np.abs(x - median) > k * scale
     outlier &= np.isfinite(x) & np.isfinite(median)
     return outlier, median, scale
+
+
+#: Largest ``samples x window`` for which the Hampel windows are held in memory at once;
+#: denser logs use :func:`_rolling_median_mad` (memory proportional to the log's length).
+EXACT_WINDOW_CELLS = 20_000_000
+
+
+def _rolling_median_mad(x: np.ndarray, h: int) -> tuple[np.ndarray, np.ndarray]:
+    """Return the rolling median and MAD over ``2h + 1`` samples, in O(n) memory.
+
+    The MAD is the rolling median of the absolute residuals from each sample's own rolling
+    median (common practice for long series), instead of from the window centre's median.
+    """
+    import pandas as pd
+
+    series = pd.Series(x)
+    roll = {"window": 2 * h + 1, "center": True, "min_periods": 1}
+    median = series.rolling(**roll).median().to_numpy()
+    mad = pd.Series(np.abs(x - median)).rolling(**roll).median().to_numpy()
+    return median, mad
 
 
 def _half_window_samples(depth: np.ndarray, half_window_m: float) -> int:
