@@ -86,8 +86,8 @@ class UnitsSection(_Section):
     )
     ec: str = Field("mS/m", description="Electrical conductivity: mS/m | uS/cm | S/m | mS/cm.")
     k: str = Field("m/s", description="Slug-test hydraulic conductivity: m/s | cm/s | m/d | ft/d.")
-    output_length: str = Field("m", description="Length unit of tables written for people.")
-    output_volume: str = Field("m3", description="Volume unit of tables written for people.")
+    output_length: str = Field("m", description="Length unit of every output.")
+    output_volume: str = Field("m3", description="Volume unit of every output.")
 
     @field_validator("length", "output_length")
     @classmethod
@@ -449,12 +449,40 @@ class TreatmentSection(_Section):
 
 
 class OutputSection(_Section):
-    """``[output]``: which outputs to write."""
+    """``[output]``: which outputs to write, and their CRS."""
 
     formats: list[Literal["vtk", "geotiff", "gpkg", "netcdf", "csv", "report"]] = Field(
         default_factory=lambda: ["vtk", "geotiff", "gpkg", "netcdf", "csv", "report"],
         description="Outputs to write: vtk, geotiff, gpkg, netcdf, csv, report.",
     )
+    crs: str = Field(
+        "",
+        description="CRS of every output (EPSG code or WKT, projected, axes in m, ft or US "
+        'survey ft); "" = the CRS declared in [site] crs.',
+    )
+
+    @field_validator("crs")
+    @classmethod
+    def _crs(cls, value: str) -> str:
+        if not value.strip():
+            return ""
+        import pyproj
+
+        from geo3d.io.output_frame import unit_of_axis
+
+        try:
+            crs = pyproj.CRS.from_user_input(value)
+        except pyproj.exceptions.CRSError as exc:
+            msg = f"cannot read CRS {value[:60]!r} ({exc}); expected EPSG:nnnn or WKT"
+            raise ValueError(msg) from None
+        if not crs.is_projected:
+            msg = f"{crs.name!r} is not a projected CRS; expected one in metres or feet"
+            raise ValueError(msg)
+        try:
+            unit_of_axis(crs)
+        except CRSError as exc:
+            raise ValueError(str(exc)) from None
+        return value
 
 
 class SiteConfig(_Section):

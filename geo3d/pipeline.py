@@ -355,15 +355,15 @@ def run_export(
         The files written.
     """
     from geo3d.io import geotiff, netcdf, tables, vtk
+    from geo3d.io.output_frame import OutputFrame
 
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     site, logs = results.site, results.logs
     formats = set(site.config.output.formats if formats is None else formats)
-    units = site.config.units
+    frame = OutputFrame.from_site(site)
     written: list[Path] = []
     ds = results.dataset
-    crs = site.crs
     facies_names = None
     if logs is not None and getattr(logs, "facies_names", None):
         facies_names = list(logs.facies_names)
@@ -373,8 +373,7 @@ def run_export(
         model = results.model
         written += tables.write_tables(
             out,
-            length_unit=units.output_length,
-            volume_unit=units.output_volume,
+            frame=frame,
             intervals=None if logs is None else logs.intervals,
             volumes=results.volumes,
             injection_schedule=schedule,
@@ -386,27 +385,20 @@ def run_export(
         if logs is not None:
             from geo3d.logs.process import write_log_figures
 
-            written.append(
-                tables.write_csv(
-                    logs.samples,
-                    out / "samples.csv",
-                    length_unit=units.output_length,
-                    volume_unit=units.output_volume,
-                )
-            )
+            written.append(tables.write_csv(logs.samples, out / "samples.csv", frame=frame))
             # One figure per boring; the report embeds these instead of drawing them again.
-            written += write_log_figures(logs, out / "figures" / "logs")
+            written += write_log_figures(logs, out / "figures" / "logs", units=site.config.units)
         if model is not None and getattr(model, "variograms", None):
             written.append(
                 tables.write_json(_variograms(model.variograms), out / "variograms.json")
             )
     if "vtk" in formats and ds is not None:
-        model_file = vtk.write_model_vti(ds, out / "model.vti")
+        model_file = vtk.write_model_vti(ds, out / "model.vti", frame=frame)
         written.append(model_file)
         borings_file = None
         if logs is not None:
             borings_file = vtk.write_borings_vtp(
-                logs.samples, out / "borings.vtp", intervals=logs.intervals
+                logs.samples, out / "borings.vtp", intervals=logs.intervals, frame=frame
             )
             written.append(borings_file)
         vtm = vtk.write_site_vtm(
@@ -418,19 +410,20 @@ def run_export(
             water_table=_water_table_map(results),
             model_file=model_file,
             borings_file=borings_file,
+            frame=frame,
         )
         written.append(vtm)
         written += sorted((out / "site").glob("*"))
     if "geotiff" in formats and results.maps:
-        written += geotiff.write_maps(results.maps, out / "maps", crs=crs)
+        written += geotiff.write_maps(results.maps, out / "maps", frame=frame)
     if "gpkg" in formats:
-        written.append(_write_gpkg(results, out / "site.gpkg"))
+        written.append(_write_gpkg(results, out / "site.gpkg", frame))
     if "netcdf" in formats and ds is not None:
         written.append(
             netcdf.write_netcdf(
                 ds,
                 out / "model.nc",
-                crs=crs,
+                frame=frame,
                 facies_names=facies_names,
                 title=f"geo3d voxel model of {site.name}",
             )
@@ -492,7 +485,7 @@ def _variograms(variograms: dict[str, Any]) -> dict[str, Any]:
     return out
 
 
-def _write_gpkg(results: RunResults, path: Path) -> Path:
+def _write_gpkg(results: RunResults, path: Path, frame: Any) -> Path:
     from geo3d.io import gpkg
 
     site, logs = results.site, results.logs
@@ -506,6 +499,7 @@ def _write_gpkg(results: RunResults, path: Path) -> Path:
             intervals=None if logs is None else logs.intervals,
             water_levels=None if logs is None else logs.water_levels,
             transmissive=transmissive,
+            frame=frame,
         )
     }
     if site.zones is not None and len(site.zones):
@@ -515,13 +509,17 @@ def _write_gpkg(results: RunResults, path: Path) -> Path:
             volumes=results.volumes,
             plans=results.injection,
             storage=names[0] if names and "storage" not in names else "storage",
+            frame=frame,
         )
     if results.injection:
-        layers["injection_points"] = gpkg.injection_points_layer(results.injection, crs=site.crs)
+        layers["injection_points"] = gpkg.injection_points_layer(
+            results.injection, crs=site.crs, frame=frame
+        )
     main = {k: v for k, v in results.maps.items() if k in _CONTOURED}
     if main:
-        layers["contours"] = gpkg.contour_lines(main, crs=site.crs)
-    return gpkg.write_geopackage(path, layers)
+        layers["contours"] = gpkg.contour_lines(main, crs=site.crs, frame=frame)
+    descriptions = {name: gpkg.layer_description(name, frame) for name in layers}
+    return gpkg.write_geopackage(path, layers, descriptions=descriptions)
 
 
 #: Maps traced as contour lines in the GeoPackage.

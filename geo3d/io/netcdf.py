@@ -27,6 +27,7 @@ import pyproj
 import xarray as xr
 
 from geo3d.errors import CRSError
+from geo3d.io.output_frame import OutputFrame
 
 __all__ = ["VARIABLE_ATTRS", "to_cf", "write_netcdf"]
 
@@ -86,7 +87,12 @@ def _plain_attr(value):
 
 
 def to_cf(
-    ds: xr.Dataset, *, crs=None, facies_names: Sequence[str] | None = None, title: str = ""
+    ds: xr.Dataset,
+    *,
+    crs=None,
+    facies_names: Sequence[str] | None = None,
+    title: str = "",
+    frame: OutputFrame | None = None,
 ) -> xr.Dataset:
     """Return a copy of a voxel model with CF-1.8 metadata, ready to write.
 
@@ -101,6 +107,9 @@ def to_cf(
         the order of the ``prob_<name>`` variables.
     title
         Dataset title.
+    frame
+        Output frame: ``x``, ``y`` in its CRS (and axis unit), ``z`` and lengths in its length
+        unit (see :meth:`OutputFrame.grid`); replaces ``crs``.
 
     Returns
     -------
@@ -113,6 +122,11 @@ def to_cf(
     CRSError
         If no valid CRS is known.
     """
+    xy_units = z_units = "m"
+    if frame is not None:
+        ds = frame.grid(ds)
+        crs = frame.crs
+        xy_units, z_units = frame.coordinate_udunits, frame.length_udunits
     value = crs if crs is not None else ds.attrs.get("crs")
     if value is None:
         msg = "voxel model has no CRS; pass crs= or set attrs['crs']"
@@ -132,12 +146,20 @@ def to_cf(
         crs_wkt=site_crs.to_wkt(),
     )
     out["x"].attrs.update(
-        standard_name="projection_x_coordinate", long_name="x of cell centre", units="m", axis="X"
+        standard_name="projection_x_coordinate",
+        long_name="x of cell centre",
+        units=xy_units,
+        axis="X",
     )
     out["y"].attrs.update(
-        standard_name="projection_y_coordinate", long_name="y of cell centre", units="m", axis="Y"
+        standard_name="projection_y_coordinate",
+        long_name="y of cell centre",
+        units=xy_units,
+        axis="Y",
     )
-    out["z"].attrs.update(long_name="elevation of cell centre", units="m", axis="Z", positive="up")
+    out["z"].attrs.update(
+        long_name="elevation of cell centre", units=z_units, axis="Z", positive="up"
+    )
     if "realization" in out.dims:
         if "realization" not in out.coords:
             out = out.assign_coords(realization=np.arange(out.sizes["realization"]))
@@ -173,6 +195,7 @@ def write_netcdf(
     facies_names: Sequence[str] | None = None,
     title: str = "",
     complevel: int = 4,
+    frame: OutputFrame | None = None,
 ) -> Path:
     """Write the voxel model as a compressed CF-1.8 NetCDF-4 file.
 
@@ -182,7 +205,7 @@ def write_netcdf(
         Voxel model.
     path
         Output file (``.nc``).
-    crs, facies_names, title
+    crs, facies_names, title, frame
         See :func:`to_cf`.
     complevel
         zlib compression level (1-9).
@@ -193,7 +216,7 @@ def write_netcdf(
         The file written.
     """
     path = Path(path)
-    cf = to_cf(ds, crs=crs, facies_names=facies_names, title=title)
+    cf = to_cf(ds, crs=crs, facies_names=facies_names, title=title, frame=frame)
     encoding = {}
     for name, da in cf.data_vars.items():
         if name == "spatial_ref":

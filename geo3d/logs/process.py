@@ -289,7 +289,9 @@ def process_logs(site: Any) -> LogResults:
     )
     for name, values in flags.items():
         samples[name] = values
-    checks = evaluate_sensor_checks(getattr(site, "sensor_checks", None))
+    checks = evaluate_sensor_checks(
+        getattr(site, "sensor_checks", None), units=getattr(site.config, "units", None)
+    )
     samples["sensor_check_failed"] = sensor_check_flags(ids.to_numpy(), checks)
 
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -507,8 +509,18 @@ def write_logs_outputs(result: LogResults, out_dir: str | Path) -> list[Path]:
     return written
 
 
-def write_log_figures(result: LogResults, folder: str | Path) -> list[Path]:
+def write_log_figures(result: LogResults, folder: str | Path, *, units=None) -> list[Path]:
     """Write one figure per boring, ``<folder>/<boring_id>.png``, each atomically.
+
+    Parameters
+    ----------
+    result
+        Result of :func:`process_logs`.
+    folder
+        Folder of the figures (created when missing).
+    units
+        ``[units]`` of the site file: the figures show the declared units (see
+        :func:`geo3d.report.log_figure.log_figure`).
 
     Returns
     -------
@@ -524,11 +536,21 @@ def write_log_figures(result: LogResults, folder: str | Path) -> list[Path]:
     figures.mkdir(parents=True, exist_ok=True)
     written: list[Path] = []
     intervals_by = dict(tuple(result.intervals.groupby("boring_id", sort=True)))
+    checks = getattr(result, "sensor_checks", None)
     for boring_id, log in result.samples.groupby("boring_id", sort=True):
         empty = result.intervals.iloc[0:0]
+        own = None
+        if checks is not None and len(checks):
+            own = checks[checks["boring_id"].astype(str) == str(boring_id)]
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", Geo3dWarning)
-            fig = log_figure(log, intervals_by.get(boring_id, empty), boring_id=str(boring_id))
+            fig = log_figure(
+                log,
+                intervals_by.get(boring_id, empty),
+                boring_id=str(boring_id),
+                units=units,
+                checks=own,
+            )
         path = figures / f"{boring_id}.png"
         with atomic_file(path) as tmp:
             fig.savefig(tmp, dpi=110)

@@ -237,9 +237,8 @@ def _plot_borings(ax, borings: pd.DataFrame | None, *, labels: bool = True) -> N
             )
 
 
-def _plan_axes(ax, crs_label: str | None) -> None:
+def _plan_axes(ax, crs_label: str | None, unit: str = "m") -> None:
     ax.set_aspect("equal", adjustable="box")
-    unit = "m"
     ax.set_xlabel(f"easting ({unit})")
     ax.set_ylabel(f"northing ({unit})")
     if crs_label:
@@ -282,7 +281,7 @@ class SectionLine:
 
     @property
     def length(self) -> float:
-        """Length of the line (m)."""
+        """Length of the line (in the unit of its coordinates)."""
         return math.hypot(self.end[0] - self.start[0], self.end[1] - self.start[1])
 
 
@@ -294,6 +293,7 @@ def site_map_figure(
     sections: Sequence[SectionLine] = (),
     injection_points: Sequence[tuple[float, float]] = (),
     crs_label: str | None = None,
+    coordinate_unit: str = "m",
 ) -> Figure:
     """Plan view of the site: boundary, treatment zones, borings, section lines.
 
@@ -311,6 +311,8 @@ def site_map_figure(
         ``(x, y)`` of planned injection points.
     crs_label
         Name of the CRS, written in a corner.
+    coordinate_unit
+        Unit of the CRS axes, for the axis labels.
 
     Returns
     -------
@@ -403,7 +405,7 @@ def site_map_figure(
         handles.append(
             Line2D([], [], linestyle="none", marker="o", color=_BORING_COLOR, label="boring")
         )
-    _plan_axes(ax, crs_label)
+    _plan_axes(ax, crs_label, coordinate_unit)
     if handles:
         ax.legend(handles=handles, loc="lower left", fontsize=7, framealpha=0.9)
     return fig
@@ -420,6 +422,7 @@ def map_figure(
     boundary=None,
     borings: pd.DataFrame | None = None,
     crs_label: str | None = None,
+    coordinate_unit: str = "m",
 ) -> Figure:
     """Plan-view raster map of a 2D DataArray with dims ``("y", "x")``.
 
@@ -439,6 +442,8 @@ def map_figure(
         Drawn on top when given.
     crs_label
         Name of the CRS.
+    coordinate_unit
+        Unit of the CRS axes, for the axis labels.
 
     Returns
     -------
@@ -453,6 +458,7 @@ def map_figure(
         boundary=boundary,
         borings=borings,
         crs_label=crs_label,
+        coordinate_unit=coordinate_unit,
     )
 
 
@@ -466,6 +472,7 @@ def map_panels_figure(
     boundary=None,
     borings: pd.DataFrame | None = None,
     crs_label: str | None = None,
+    coordinate_unit: str = "m",
 ) -> Figure:
     """Plan-view maps side by side on one shared colour scale (e.g. P10, estimate, P90).
 
@@ -483,6 +490,8 @@ def map_panels_figure(
         Drawn on top when given.
     crs_label
         Name of the CRS.
+    coordinate_unit
+        Unit of the CRS axes, for the axis labels.
 
     Returns
     -------
@@ -508,7 +517,7 @@ def map_panels_figure(
         )
         _plot_polygon(ax, boundary, color="0.2", linewidth=1.0)
         _plot_borings(ax, borings, labels=False)
-        _plan_axes(ax, crs_label if ax is axes[-1] else None)
+        _plan_axes(ax, crs_label if ax is axes[-1] else None, coordinate_unit)
         ax.set_title(title, fontsize=9, loc="left")
     for ax in axes[1:]:
         ax.set_ylabel("")
@@ -533,6 +542,8 @@ def water_table_figure(
     flow_direction_deg: float | None = None,
     boundary=None,
     crs_label: str | None = None,
+    coordinate_unit: str = "m",
+    length_unit: str = "m",
 ) -> Figure:
     """Water-table elevation map with the measured levels and the gradient arrow.
 
@@ -543,13 +554,15 @@ def water_table_figure(
     water_levels
         Table with ``x``, ``y``, ``wt_elev`` (and ``boring_id``).
     gradient
-        Hydraulic gradient magnitude (m/m).
+        Hydraulic gradient magnitude (dimensionless).
     flow_direction_deg
         Down-gradient azimuth, degrees clockwise from north.
     boundary
         Site boundary, drawn when given.
     crs_label
         Name of the CRS.
+    coordinate_unit
+        Unit of the CRS axes, for the axis labels.
 
     Returns
     -------
@@ -562,7 +575,7 @@ def water_table_figure(
         x = np.asarray(surface["x"].values, dtype=float)
         y = np.asarray(surface["y"].values, dtype=float)
         mesh = ax.pcolormesh(_edges(x), _edges(y), np.ma.masked_invalid(values), cmap="cividis")
-        fig.colorbar(mesh, ax=ax, label="water-table elevation (m)", shrink=0.85)
+        fig.colorbar(mesh, ax=ax, label=f"water-table elevation ({length_unit})", shrink=0.85)
         finite = values[np.isfinite(values)]
         if finite.size and np.ptp(finite) > 0:
             contours = ax.contour(x, y, np.ma.masked_invalid(values), colors="white", levels=6)
@@ -622,7 +635,7 @@ def water_table_figure(
             fontsize=8,
             bbox={"fc": "white", "ec": "0.6", "alpha": 0.9},
         )
-    _plan_axes(ax, crs_label)
+    _plan_axes(ax, crs_label, coordinate_unit)
     return fig
 
 
@@ -636,6 +649,7 @@ def log_panel_figure(
     boring_id: str,
     facies_names: Sequence[str],
     depth_to_water: float | None = None,
+    length_unit: str = "m",
 ) -> Figure:
     """Small three-track log of one boring: log10 K, EC and hydrofacies against depth.
 
@@ -652,6 +666,8 @@ def log_panel_figure(
         Class names, lowest K first.
     depth_to_water
         Drawn as a line when given.
+    length_unit
+        Unit of the depths (as given: the caller converts), for the axis label.
 
     Returns
     -------
@@ -705,7 +721,7 @@ def log_panel_figure(
         for ax in axes:
             ax.axhline(depth_to_water, color=OKABE_ITO["sky_blue"], linewidth=1.0, linestyle="--")
     ax_k.invert_yaxis()
-    ax_k.set_ylabel("depth (m)")
+    ax_k.set_ylabel(f"depth ({length_unit})")
     ax_k.set_xlabel("log10 K (m/s)", fontsize=8)
     ax_ec.set_xlabel("EC (mS/m)", fontsize=8)
     ax_f.set_xticks([])
@@ -798,6 +814,7 @@ def variogram_figure(
     horizontal_model: Mapping[str, tuple[np.ndarray, np.ndarray]] | None = None,
     variable: str,
     units: str,
+    lag_unit: str = "m",
 ) -> Figure:
     """Experimental variograms (vertical and horizontal) with the fitted model curves.
 
@@ -813,6 +830,8 @@ def variogram_figure(
         Name of the variable (title).
     units
         Units of the semivariance.
+    lag_unit
+        Unit of the lags (as given: the caller converts), for the axis labels.
 
     Returns
     -------
@@ -825,9 +844,9 @@ def variogram_figure(
             axes[0],
             vertical,
             {"vertical": vertical_model} if vertical_model else {},
-            "vertical lag (m)",
+            f"vertical lag ({lag_unit})",
         ),
-        (axes[1], horizontal, horizontal_model or {}, "horizontal lag (m)"),
+        (axes[1], horizontal, horizontal_model or {}, f"horizontal lag ({lag_unit})"),
     )
     line_colors = [OKABE_ITO["vermillion"], OKABE_ITO["bluish_green"], OKABE_ITO["orange"]]
     for ax, table, models, xlabel in panels:
@@ -1096,6 +1115,8 @@ def section_figure(
     facies_names: Sequence[str],
     projected: pd.DataFrame | None = None,
     water_table: np.ndarray | None = None,
+    distance_unit: str = "m",
+    elevation_unit: str = "m",
 ) -> Figure:
     """Two stacked panels of a vertical section: hydrofacies and log10 K, borings projected.
 
@@ -1111,6 +1132,8 @@ def section_figure(
         Output of :func:`project_intervals`, drawn as narrow columns.
     water_table
         Water-table elevation at each station of the section.
+    distance_unit, elevation_unit
+        Units of the distances along the line and of the elevations, for the axis labels.
 
     Returns
     -------
@@ -1208,7 +1231,7 @@ def section_figure(
                 linestyle="--",
                 label="water table",
             )
-        ax.set_ylabel("elevation (m)")
+        ax.set_ylabel(f"elevation ({elevation_unit})")
         ax.tick_params(labelsize=7)
     for ax in axes:
         ax.text(
@@ -1233,7 +1256,7 @@ def section_figure(
         )
         ax.set_ylim(z_edges[0], z_edges[-1] + 0.04 * (z_edges[-1] - z_edges[0]))
         ax.set_xlim(d_edges[0], d_edges[-1])
-    axes[1].set_xlabel("distance along the section (m)")
+    axes[1].set_xlabel(f"distance along the section ({distance_unit})")
     return fig
 
 

@@ -33,7 +33,10 @@ import xarray as xr
 import geo3d
 from geo3d.errors import Geo3dWarning
 from geo3d.io.atomic import atomic_file
+from geo3d.io.output_frame import OutputFrame, crs_label
+from geo3d.io.tables import mapping_to_output_units, to_output_units
 from geo3d.report import figures as fg
+from geo3d.units import factor, from_internal
 
 __all__ = ["SECTION_TITLES", "build_report", "write_report"]
 
@@ -299,6 +302,8 @@ class _Context:
     boundary: Any
     zones: Any
     crs_label: str
+    frame: OutputFrame | None = None
+    maps: dict = field(default_factory=dict)
     sections: list = field(default_factory=list)
     log_figure_dir: Path | None = None
 
@@ -315,17 +320,34 @@ class _Context:
         if (borings is None or not len(borings)) and intervals is not None and len(intervals):
             borings = intervals.groupby("boring_id", as_index=False)[["x", "y"]].first()
         boundary = _get(site, "boundary")
+        zones = _get(site, "zones")
+        maps = {
+            str(k): v
+            for k, v in (_get(results, "maps") or {}).items()
+            if isinstance(v, xr.DataArray)
+        }
+        frame = _frame_of(site)
+        names = _facies_names(site, intervals, dataset)
+        if frame is not None:
+            # everything drawn or tabled is shown in the output CRS and units
+            borings = None if borings is None else frame.points(borings, ("ground_elev",))
+            boundary = frame.geometry(boundary)
+            zones = frame.layer(zones) if zones is not None and len(zones) else zones
+            dataset = None if dataset is None else frame.grid(dataset)
+            maps = {k: frame.grid(v) for k, v in maps.items() if {"y", "x"} <= set(v.dims)}
         ctx = cls(
             results=results,
             site=site,
             logs=logs,
             model=model,
             dataset=dataset,
-            facies_names=_facies_names(site, intervals, dataset),
+            facies_names=names,
             borings=borings,
             boundary=boundary,
-            zones=_get(site, "zones"),
-            crs_label=_crs_label(_get(site, "crs")),
+            zones=zones,
+            crs_label=frame.label if frame is not None else _crs_label(_get(site, "crs")),
+            frame=frame,
+            maps=maps,
         )
         bounds = None
         if dataset is not None:
@@ -351,6 +373,60 @@ class _Context:
     def samples(self) -> pd.DataFrame | None:
         return _frame(_get(self.logs, "samples"))
 
+    @property
+    def intervals_shown(self) -> pd.DataFrame | None:
+        """Intervals with coordinates, depths and elevations in the output frame."""
+        intervals = self.intervals
+        if intervals is None or self.frame is None:
+            return intervals
+        return self.frame.points(intervals, ("top", "bottom", "z_mid", "thickness"))
+
+    @property
+    def units(self) -> Any:
+        """``[units]`` of the site file (None when unknown)."""
+        return _get(_get(self.site, "config"), "units")
+
+    @property
+    def coord_unit(self) -> str:
+        return "m" if self.frame is None else self.frame.coordinate_label
+
+    @property
+    def length_unit(self) -> str:
+        return "m" if self.frame is None else self.frame.length_label
+
+    @property
+    def length_key(self) -> str:
+        return "m" if self.frame is None else self.frame.length_unit
+
+    @property
+    def volume_unit(self) -> str:
+        return "m\u00b3" if self.frame is None else self.frame.volume_label
+
+    @property
+    def area_unit(self) -> str:
+        return "m\u00b2" if self.frame is None else self.frame.area_label
+
+    def length(self, values):
+        """Lengths (m) in the output length unit."""
+        return values if self.frame is None else self.frame.length(values)
+
+    def table(self, frame: pd.DataFrame) -> pd.DataFrame:
+        """Return a table in the output CRS and units, each converted column named with its unit."""
+        if self.frame is None:
+            return frame
+        return to_output_units(frame, frame=self.frame)
+
+
+def _frame_of(site: Any) -> OutputFrame | None:
+    """Return the output frame of a site; None when the results carry no site file (metres)."""
+    if _get(site, "config") is None or _get(site, "crs") is None:
+        return None
+    try:
+        return OutputFrame.from_site(site)
+    except Exception as exc:  # an incomplete site object: shown as computed
+        logger.warning("report shown in the internal CRS and metres: %s", exc)
+        return None
+
 
 def _facies_names(site: Any, intervals: pd.DataFrame | None, dataset: Any) -> list[str]:
     classes = _get(_get(_get(site, "config"), "facies"), "classes")
@@ -374,17 +450,9 @@ def _facies_names(site: Any, intervals: pd.DataFrame | None, dataset: Any) -> li
 
 
 def _crs_label(crs: Any) -> str:
-    if crs is None:
-        return "CRS not given"
-    name = getattr(crs, "name", None) or str(crs)
-    epsg = None
-    to_epsg = getattr(crs, "to_epsg", None)
-    if callable(to_epsg):
-        try:
-            epsg = to_epsg()
-        except Exception:  # a custom WKT has no code
-            epsg = None
-    return f"{name} (EPSG:{epsg})" if epsg else str(name)
+    if crs is None or not hasattr(crs, "to_authority"):
+        return "CRS not given" if crs is None else str(crs)
+    return crs_label(crs)
 
 
 # --------------------------------------------------------------------------- sections
@@ -405,6 +473,9 @@ def _injection_points(ctx: _Context) -> list[tuple[float, float]]:
             points.extend((g.x, g.y) for g in frame.geometry if g is not None)
         elif {"x", "y"} <= set(frame.columns):
             points.extend(zip(frame["x"], frame["y"], strict=True))
+    if ctx.frame is not None and points:
+        x, y = ctx.frame.xy(*np.asarray(points, dtype=float).T)
+        points = list(zip(x.tolist(), y.tolist(), strict=True))
     return points
 
 
@@ -419,6 +490,7 @@ def _section_site(ctx: _Context) -> str:
         sections=ctx.sections,
         injection_points=_injection_points(ctx),
         crs_label=ctx.crs_label,
+        coordinate_unit=ctx.coord_unit,
     )
     parts.append(
         _figure(
@@ -436,17 +508,23 @@ def _section_site(ctx: _Context) -> str:
         intervals = ctx.intervals
         if intervals is not None and len(intervals):
             depth = intervals.groupby("boring_id")["bottom"].max().rename("logged_depth")
+            depth = pd.Series(
+                ctx.length(depth.to_numpy(dtype=float)), index=depth.index, name=depth.name
+            )
             table = table.merge(depth, left_on="boring_id", right_index=True, how="left")
-        parts.append(_table(table, caption="Borings (m)", max_rows=200))
+        caption = (
+            f"Borings (x, y in {ctx.coord_unit}; ground elevation and logged depth in "
+            f"{ctx.length_unit})"
+        )
+        parts.append(_table(table, caption=caption, max_rows=200))
     if not n_zones:
         parts.append(_note("No treatment zones were given: no zone volumes or injection plans."))
     return "".join(parts)
 
 
 def _water_surface(ctx: _Context) -> xr.DataArray | None:
-    maps = _get(ctx.results, "maps") or {}
-    for key, grid in maps.items():
-        if _is_water_map(str(key)) and isinstance(grid, xr.DataArray):
+    for key, grid in ctx.maps.items():
+        if _is_water_map(str(key)) and "depth" not in str(key):
             return grid
     surface = _get(ctx.logs, "water_table")
     if surface is None or ctx.dataset is None:
@@ -454,7 +532,9 @@ def _water_surface(ctx: _Context) -> xr.DataArray | None:
     x = ctx.dataset["x"].values
     y = ctx.dataset["y"].values
     xx, yy = np.meshgrid(x, y)
-    values = np.asarray(surface.elevation(xx.ravel(), yy.ravel()), dtype=float).reshape(xx.shape)
+    qx, qy = (xx.ravel(), yy.ravel()) if ctx.frame is None else ctx.frame.xy_internal(xx, yy)
+    values = np.asarray(surface.elevation(np.ravel(qx), np.ravel(qy)), dtype=float)
+    values = ctx.length(values).reshape(xx.shape)
     if "mask" in ctx.dataset:
         values = np.where(ctx.dataset["mask"].any("z").values, values, np.nan)
     return xr.DataArray(values, dims=("y", "x"), coords={"y": y, "x": x})
@@ -482,11 +562,18 @@ def _section_water(ctx: _Context) -> str:
             )
             if c in levels
         ]
+        pressure = str(_get(ctx.units, "pressure", "kPa"))
+        shown = levels[columns].copy()
+        if "p_static" in shown:
+            shown["p_static"] = from_internal(
+                shown["p_static"].to_numpy(float), pressure, "pressure"
+            )
+            shown = shown.rename(columns={"p_static": f"p_static ({pressure})"})
         parts.append(
             _table(
-                levels[columns],
+                ctx.table(shown),
                 caption="Static water levels from dissipation tests "
-                "(depths and elevations in m, pressures in kPa)",
+                f"(depths and elevations in {ctx.length_unit}, pressures in {pressure})",
                 max_rows=200,
             )
         )
@@ -496,6 +583,8 @@ def _section_water(ctx: _Context) -> str:
     grid = _water_surface(ctx)
     if grid is None and (levels is None or not len(levels)):
         return "".join(parts)
+    if levels is not None and ctx.frame is not None:
+        levels = ctx.frame.points(levels, ("wt_elev",))
     fig = fg.water_table_figure(
         surface=grid,
         water_levels=levels
@@ -505,13 +594,15 @@ def _section_water(ctx: _Context) -> str:
         flow_direction_deg=None if direction is None else float(direction),
         boundary=ctx.boundary,
         crs_label=ctx.crs_label,
+        coordinate_unit=ctx.coord_unit,
+        length_unit=ctx.length_unit,
     )
-    text = "Water-table elevation (m)"
+    text = f"Water-table elevation ({ctx.length_unit})"
     if method:
         text += f" from a {_esc(method)} fit of the dissipation-test levels"
     if gradient is not None and direction is not None and np.isfinite(float(direction)):
         text += (
-            f"; hydraulic gradient {float(gradient):.2e} m/m, down-gradient toward "
+            f"; hydraulic gradient {float(gradient):.2e}, down-gradient toward "
             f"{float(direction):.0f}\u00b0 (clockwise from north), shown by the arrow"
         )
     parts.append(_figure(fig, name="water-table", alt="Water-table map", caption=text + "."))
@@ -543,7 +634,8 @@ def _section_logs(ctx: _Context) -> str:
             intervals["boring_id"].astype(str) if intervals is not None and len(intervals) else []
         )
     )
-    parts = [_flag_summary(samples), _sensor_summary(_frame(_get(ctx.logs, "sensor_checks")))]
+    checks = _frame(_get(ctx.logs, "sensor_checks"))
+    parts = [_flag_summary(samples), _sensor_summary(checks, ctx.units)]
     shared = _log_figure_function()
     cells = []
     for boring_id in ids:
@@ -569,7 +661,16 @@ def _section_logs(ctx: _Context) -> str:
         fig = None
         if shared is not None:
             try:
-                fig = shared(own_samples, own_intervals, boring_id=boring_id)
+                own_checks = None
+                if checks is not None and "boring_id" in checks:
+                    own_checks = checks[checks["boring_id"].astype(str) == boring_id]
+                fig = shared(
+                    own_samples,
+                    own_intervals,
+                    boring_id=boring_id,
+                    units=ctx.units,
+                    checks=own_checks,
+                )
             except Exception as exc:  # fall back to the report's own panel
                 logger.warning("shared log figure failed for %s: %s", boring_id, exc)
                 fig = None
@@ -577,12 +678,18 @@ def _section_logs(ctx: _Context) -> str:
             dtw = None
             if own_samples is not None and "depth_to_water" in own_samples and len(own_samples):
                 dtw = float(np.nanmedian(own_samples["depth_to_water"].to_numpy(dtype=float)))
+                dtw = float(ctx.length(dtw))
+            if own_samples is not None and ctx.frame is not None:
+                own_samples = ctx.frame.points(own_samples, ("depth",))
+            if own_intervals is not None and ctx.frame is not None:
+                own_intervals = ctx.frame.points(own_intervals, ("top", "bottom"))
             fig = fg.log_panel_figure(
                 own_samples,
                 own_intervals,
                 boring_id=boring_id,
                 facies_names=ctx.facies_names,
                 depth_to_water=dtw,
+                length_unit=ctx.length_unit,
             )
         uri = fg.figure_to_data_uri(fig, dpi=72 if shared is not None else 80)
         _close(fig)
@@ -606,9 +713,12 @@ def _section_logs(ctx: _Context) -> str:
     else:
         parts.append(
             _note(
-                "Each figure: recorded pressure with its atmospheric and hydrostatic parts, net "
-                "injection pressure, log-derived K, bulk EC and the hydrofacies strip "
-                f"(lowest K first: {legend}); flagged samples carry their own symbols."
+                f"Each figure: the hydrofacies strip (lowest K first: {legend}), log-derived K, "
+                "net injection pressure, recorded pressure with its atmospheric and hydrostatic "
+                "parts, injection flow and bulk EC, in the units the site file declares; flagged "
+                "samples carry their own symbols, a failed sensor check is a red line across its "
+                "sensor's track (top: check before the log, bottom: after), and a run of missing "
+                "EC is shaded grey."
             )
         )
     kind = "log-grid" if shared is not None else "gallery"
@@ -643,16 +753,24 @@ def _flag_summary(samples: pd.DataFrame | None) -> str:
     return _table(table, caption="Flagged samples per boring (% of samples)", max_rows=200)
 
 
-def _sensor_summary(checks: pd.DataFrame | None) -> str:
+def _sensor_summary(checks: pd.DataFrame | None, units: Any = None) -> str:
+    from geo3d.logs.sensor_checks import in_declared_units
+
     if checks is None or not len(checks):
         return _note("No sensor checks were given.")
+    if "sensor" in checks and {"measured", "expected", "tolerance"} <= set(checks):
+        checks = in_declared_units(checks, units)
     status = next((c for c in ("passed", "pass", "ok") if c in checks), None)
     if status is None:
-        return _table(checks, caption="Sensor checks", max_rows=100)
+        return _table(checks, caption="Sensor checks (in the units the site file declares)")
     failed = checks[~checks[status].fillna(False).astype(bool)]
     if not len(failed):
         return _note(f"All {len(checks)} sensor checks passed.")
-    return _table(failed, caption=f"Failed sensor checks ({len(failed)} of {len(checks)})")
+    return _table(
+        failed,
+        caption=f"Failed sensor checks ({len(failed)} of {len(checks)}), in the units the site "
+        "file declares",
+    )
 
 
 _FLAG_COLUMNS = (
@@ -762,7 +880,8 @@ def _section_calibration(ctx: _Context) -> str:
                 xlabel=xlabel,
             )
             parts.append(_figure(fig, name="calibration", alt="Calibration plot", caption=caption))
-        parts.append(_table(residuals, caption="Slug tests and residuals (K in m/s)"))
+        caption = f"Slug tests and residuals (K in m/s, depths in {ctx.length_unit})"
+        parts.append(_table(ctx.table(residuals), caption=caption))
     elif method == "slug_tests":
         parts.append(_note("The calibration carries no per-test residuals to plot."))
     return "".join(parts)
@@ -794,6 +913,7 @@ def _section_variograms(ctx: _Context) -> str:
         return _note("No variograms are available (no 3D model was built).")
     parts, rows = [], []
     units = {"log10_k": "(log10 m/s)\u00b2", "ec": "(mS/m)\u00b2"}
+    lag = ctx.length_unit
     for variable, fit in fits.items():
         vertical = _frame(_get(fit, "vertical"))
         horizontal = _frame(_get(fit, "horizontal"))
@@ -814,22 +934,25 @@ def _section_variograms(ctx: _Context) -> str:
                     "model": _get(model, "kind", _get(fit, "kind")),
                     "nugget": _get(model, "nugget"),
                     "partial sill": _get(model, "sill"),
-                    "horizontal range (m)": _get(model, "range_h"),
-                    "vertical range (m)": _get(model, "range_v"),
+                    f"horizontal range ({lag})": _length_or_none(ctx, _get(model, "range_h")),
+                    f"vertical range ({lag})": _length_or_none(ctx, _get(model, "range_v")),
                     "azimuth (\u00b0)": _get(model, "azimuth"),
                     "minor/major": _get(model, "minor_ratio"),
                     "fit RMSE": _get(fit, "rmse"),
                 }
             )
         fig = fg.variogram_figure(
-            vertical,
-            horizontal,
-            vertical_model=v_curve,
-            horizontal_model=h_curves,
+            _lags_shown(ctx, vertical),
+            _lags_shown(ctx, horizontal),
+            vertical_model=_curve_shown(ctx, v_curve),
+            horizontal_model=None
+            if h_curves is None
+            else {k: _curve_shown(ctx, c) for k, c in h_curves.items()},
             variable=variable,
             units=units.get(
                 variable, "normal score\u00b2" if "normal_score" in variable else "units\u00b2"
             ),
+            lag_unit=lag,
         )
         parts.append(
             _figure(
@@ -844,6 +967,26 @@ def _section_variograms(ctx: _Context) -> str:
     if rows:
         parts.insert(0, _table(pd.DataFrame(rows), caption="Fitted variogram models"))
     return "".join(parts)
+
+
+def _length_or_none(ctx: _Context, value: Any) -> Any:
+    try:
+        return float(ctx.length(float(value)))
+    except (TypeError, ValueError):
+        return value
+
+
+def _lags_shown(ctx: _Context, table: pd.DataFrame | None) -> pd.DataFrame | None:
+    if table is None or "lag" not in table:
+        return table
+    return table.assign(lag=ctx.length(table["lag"].to_numpy(dtype=float)))
+
+
+def _curve_shown(ctx: _Context, curve):
+    if curve is None:
+        return None
+    lags, gamma = curve
+    return ctx.length(np.asarray(lags, dtype=float)), gamma
 
 
 def _section_crossval(ctx: _Context) -> str:
@@ -898,11 +1041,12 @@ def _derived_maps(ctx: _Context) -> dict[str, xr.DataArray]:
     return out
 
 
+#: Main maps: key, label, units ("length" = the output length unit).
 _MAIN_MAPS = (
-    ("transmissive_thickness", "transmissive thickness", "m"),
-    ("storage_thickness", "storage thickness", "m"),
+    ("transmissive_thickness", "transmissive thickness", "length"),
+    ("storage_thickness", "storage thickness", "length"),
     ("transmissivity", "transmissivity", "m\u00b2/s"),
-    ("transmissive_top_depth", "depth to the top of the main transmissive zone", "m"),
+    ("transmissive_top_depth", "depth to the top of the main transmissive zone", "length"),
 )
 _PERCENTILES = ("_p10", "_p50", "_p90")
 
@@ -914,9 +1058,7 @@ def _is_water_map(key: str) -> bool:
 
 def _section_maps(ctx: _Context) -> str:
     given = {
-        str(k): v
-        for k, v in (_get(ctx.results, "maps") or {}).items()
-        if isinstance(v, xr.DataArray) and set(v.dims) == {"y", "x"} and not _is_water_map(str(k))
+        k: v for k, v in ctx.maps.items() if set(v.dims) == {"y", "x"} and not _is_water_map(k)
     }
     derived = _derived_maps(ctx)
     if not any("thick" in k for k in given):
@@ -942,6 +1084,7 @@ def _section_maps(ctx: _Context) -> str:
         else:
             units = next((u for k, _, u in _MAIN_MAPS if k == key), None)
             units = units or str(grid.attrs.get("units", "m"))
+            units = ctx.length_unit if units in ("m", "length") else units
             cmap, vmax = "viridis", None
             vmin = 0.0 if "thick" in key else None
             caption = f"{_esc(label)} ({_esc(units)})"
@@ -963,6 +1106,7 @@ def _section_maps(ctx: _Context) -> str:
             vmax=vmax,
             boundary=ctx.boundary,
             borings=ctx.borings,
+            coordinate_unit=ctx.coord_unit,
         )
         fig.suptitle(label, fontsize=10)
         cell = _figure(fig, name=f"map-{key}", alt=label, caption=caption + ".")
@@ -988,7 +1132,7 @@ def _section_sections(ctx: _Context) -> str:
     parts = []
     dx = float(np.abs(np.diff(ds["x"].values[:2]))[0]) if ds.sizes["x"] > 1 else 1.0
     surface = _get(ctx.logs, "water_table")
-    intervals = ctx.intervals
+    intervals = ctx.intervals_shown
     for line in ctx.sections:
         section = fg.sample_section(ds, line, variables=("facies_code", "log10_k", "mask"))
         projected = None
@@ -998,9 +1142,10 @@ def _section_sections(ctx: _Context) -> str:
         water = None
         if surface is not None:
             try:
-                water = np.asarray(
-                    surface.elevation(section["x"].values, section["y"].values), dtype=float
-                )
+                qx, qy = section["x"].values, section["y"].values
+                if ctx.frame is not None:
+                    qx, qy = ctx.frame.xy_internal(qx, qy)
+                water = np.asarray(ctx.length(surface.elevation(qx, qy)), dtype=float)
             except Exception as exc:  # a surface that cannot be evaluated is just not drawn
                 logger.warning("water table not drawn on section %s: %s", line.name, exc)
         fig = fg.section_figure(
@@ -1009,8 +1154,13 @@ def _section_sections(ctx: _Context) -> str:
             facies_names=ctx.facies_names,
             projected=projected,
             water_table=water,
+            distance_unit=ctx.coord_unit,
+            elevation_unit=ctx.length_unit,
         )
         z = section["z"].values
+        if ctx.frame is not None:  # the same unit along both axes for the exaggeration
+            z = z * factor(ctx.frame.length_unit, "length")
+            z = z / factor(ctx.frame.coordinate_unit, "length")
         ax = fig.axes[0]
         fig.canvas.draw()
         exaggeration = fg.vertical_exaggeration(
@@ -1025,10 +1175,12 @@ def _section_sections(ctx: _Context) -> str:
                 fig,
                 name=f"section-{line.name}",
                 alt=f"Cross-section {line.name}-{line.name}'",
-                caption=f"Section {line.name}-{line.name}' ({line.length:.0f} m, from "
+                caption=f"Section {line.name}-{line.name}' ({line.length:.0f} {ctx.coord_unit}, "
+                "from "
                 f"({line.start[0]:.0f}, {line.start[1]:.0f}) to ({line.end[0]:.0f}, "
                 f"{line.end[1]:.0f})): hydrofacies (top) and log10 K (bottom) of the voxel "
-                f"model, with the {n_borings} boring(s) within {max_offset:.0f} m projected "
+                f"model, with the {n_borings} boring(s) within {max_offset:.0f} {ctx.coord_unit} "
+                "projected "
                 f"onto it as narrow columns; vertical exaggeration about "
                 f"{exaggeration:.0f}\u00d7.",
             )
@@ -1043,7 +1195,7 @@ def _section_view3d(ctx: _Context) -> str:
     from geo3d.report.view3d import View3DUnavailable, render_model_view
 
     try:
-        view = render_model_view(ds, facies_names=ctx.facies_names, intervals=ctx.intervals)
+        view = render_model_view(ds, facies_names=ctx.facies_names, intervals=ctx.intervals_shown)
     except View3DUnavailable as exc:
         return _note(
             f"The 3D view could not be rendered on this machine ({_esc(exc)}); open "
@@ -1091,8 +1243,10 @@ def _section_volumes(ctx: _Context) -> str:
     volumes = _frame(_get(ctx.results, "volumes"))
     if volumes is None or not len(volumes):
         return _note("No volumes were computed (no treatment zones were given).")
+    volumes = ctx.table(volumes)
     text = _note(
-        "Volumes in m\u00b3 and areas in m\u00b2 (as the quantity names say). The estimate "
+        f"Volumes in {ctx.volume_unit} and areas in {ctx.area_unit} (as the quantity names say). "
+        "The estimate "
         "comes from the kriged model; P10/P50/P90 are the 10th, 50th and 90th percentiles over "
         "the conditional simulations: 80% of the simulated outcomes fall between P10 and P90."
     )
@@ -1111,11 +1265,15 @@ def _section_injection(ctx: _Context) -> str:
     for zone, plan in plans.items():
         parts.append(f"<h3>{_esc(zone)}</h3>")
         summary = _get(plan, "summary") or {}
+        if summary and ctx.frame is not None:
+            summary = mapping_to_output_units(
+                summary, length_unit=ctx.frame.length_unit, volume_unit=ctx.frame.volume_unit
+            )
         if summary:
             parts.append(_mapping_table(summary, caption="Design summary"))
         schedule = _frame(_get(plan, "schedule"))
         if schedule is not None and len(schedule):
-            parts.append(_schedule_table(schedule))
+            parts.append(_schedule_table(schedule, ctx))
     return "".join(parts)
 
 
@@ -1123,12 +1281,12 @@ def _first(frame: pd.DataFrame, names: Iterable[str]) -> str | None:
     return next((n for n in names if n in frame.columns), None)
 
 
-def _schedule_table(schedule: pd.DataFrame) -> str:
+def _schedule_table(schedule: pd.DataFrame, ctx: _Context) -> str:
     top = _first(schedule, ("top_depth", "top"))
     bottom = _first(schedule, ("bottom_depth", "bottom"))
     volume = _first(schedule, ("volume_m3", "volume"))
     if not (top and bottom and volume):
-        return _table(schedule, caption="Injection schedule")
+        return _table(ctx.table(schedule), caption="Injection schedule")
     if "interval" in schedule:
         key = schedule["interval"]
     else:
@@ -1146,12 +1304,17 @@ def _schedule_table(schedule: pd.DataFrame) -> str:
         )
         .reset_index(drop=True)
     )
+    if ctx.frame is not None:
+        for column in ("top", "bottom"):
+            grouped[column] = ctx.frame.length(grouped[column].to_numpy(dtype=float))
+        for column in ("per_point", "total"):
+            grouped[column] = ctx.frame.volume(grouped[column].to_numpy(dtype=float))
     grouped.columns = [
-        "mean top depth (m)",
-        "mean bottom depth (m)",
+        f"mean top depth ({ctx.length_unit})",
+        f"mean bottom depth ({ctx.length_unit})",
         "points",
-        "mean volume per point (m\u00b3)",
-        "total volume (m\u00b3)",
+        f"mean volume per point ({ctx.volume_unit})",
+        f"total volume ({ctx.volume_unit})",
     ]
     return _table(grouped, caption="Injection volume per depth interval (all points)")
 
