@@ -291,8 +291,8 @@ class OutputFrame:
             out = self._resample(obj)
         if "z" in out.coords:
             out = out.assign_coords(z=from_internal(out["z"].values, z_unit, "length"))
-        out = self._lengths(out)
         out.attrs = dict(obj.attrs)
+        out = self._lengths(out)
         if "crs" in obj.attrs:
             out.attrs["crs"] = self.crs.to_wkt()
         if "cell_size" in obj.attrs:
