@@ -902,7 +902,9 @@ def build_demo_site(out: Path, *, seed: int = DEFAULT_SEED, write_truth_grid: bo
             sand_base_depth = float(ground[i] - surf["sand_base"][i])
             distance = float(np.hypot(*(xy[i] - xy[brine_idx])))
             thickness = float(np.round(np.clip(1.4 - 0.012 * distance, 0.8, 1.4), 1))
-            bottom = float(np.round(sand_base_depth, 2))
+            # its EC fades out over the last BRINE_TAPER / 2 above the silty sand, which the
+            # brine does not enter
+            bottom = float(np.round(sand_base_depth - BRINE_TAPER / 2, 2))
             plan.brine = (round(bottom - thickness, 2), bottom)
             assert plan.brine[0] > dtw[i] + 1.0, "the brine layer must lie below the water table"
         if i == dropout_idx:

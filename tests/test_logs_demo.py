@@ -168,9 +168,11 @@ def test_mixture_finds_the_three_hydrofacies_of_the_demo(result, truth):
     print(f"mixture classes {counts}, threshold classes", np.bincount(thresholds[both]).tolist())
     assert all(n > 200 for n in counts.values()), counts
     # Agreement with the threshold classes (storage < -7 <= transitional < -5 <= transmissive,
-    # common practice): measured 0.976 of 2789 intervals overall, and 0.983 (storage), 0.964
-    # (transitional) and 0.975 (transmissive) within each threshold class on the committed
-    # demo. The mixture also weighs EC, so intervals near a threshold (the sand lenses' K
+    # common practice): measured 0.958 of 2783 intervals overall, and 0.983 (storage), 0.942
+    # (transitional) and 0.946 (transmissive) within each threshold class on the committed
+    # demo (the brine layers' intervals that the EC-above-trend flag marks are classed by K
+    # alone; the few at the sand's base that it does not mark weigh on the transitional and
+    # transmissive classes). The mixture also weighs EC, so intervals near a threshold (the sand lenses' K
     # straddles 1e-5 m/s, the tightest sands reach the silty sand's K) may go either way: floors
     # of 0.9 overall and 0.85 per class leave room for that, and still fail when a population
     # is merged into another or split across two (a trial variant of the demo, whose censored

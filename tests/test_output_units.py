@@ -314,3 +314,54 @@ def test_report_has_no_metre_label_for_a_feet_site(runs):
     # the pattern is not blind: it finds the labels a metric site's report carries
     for label in ("Borings (x, y in m; ground elevation in m)", "thickness (m)", "1 250 m\u00b3"):
         assert METRE_LABEL.search(label), label
+
+
+# ---------------------------------------------------------------------------------------------
+# [output] crs: another projection
+# ---------------------------------------------------------------------------------------------
+
+
+def test_output_crs_must_be_projected_in_metres_or_feet(tmp_path):
+    from geo3d.config import config_from_dict
+    from geo3d.errors import Geo3dError
+
+    base = {"site": {"name": "s", "crs": "EPSG:32631"}}
+    assert config_from_dict({**base, "output": {"crs": "EPSG:2154"}}).output.crs == "EPSG:2154"
+    with pytest.raises(Geo3dError, match="not a projected CRS"):
+        config_from_dict({**base, "output": {"crs": "EPSG:4326"}})
+    with pytest.raises(Geo3dError, match="cannot read CRS"):
+        config_from_dict({**base, "output": {"crs": "EPSG:99999999"}})
+
+
+def test_grid_in_another_projection_takes_the_nearest_cell():
+    # UTM 31N (EPSG:32631) to Lambert-93 (EPSG:2154): another projection, origin and scale
+    # factor, so the output cells do not line up with the internal ones; each output cell
+    # takes the value of the internal cell that holds its centre (nearest neighbour, no value
+    # invented) and cells whose centre falls outside the grid are empty.
+    internal = pyproj.CRS("EPSG:32631")
+    frame = OutputFrame(internal_crs=internal, crs=pyproj.CRS("EPSG:2154"))
+    assert not frame.is_scaling
+    x = 500_000.0 + 10.0 * (np.arange(12) + 0.5)
+    y = 5_000_000.0 + 10.0 * (np.arange(9) + 0.5)
+    values = np.arange(9 * 12, dtype=float).reshape(9, 12)
+    da = xr.DataArray(values, dims=("y", "x"), coords={"y": y, "x": x}, attrs={"units": "m"})
+    out = frame.grid(da.assign_attrs(cell_size=[10.0, 10.0]))
+    assert out.attrs["cell_size"] == [10.0, 10.0]
+    xx, yy = np.meshgrid(out["x"].values, out["y"].values)
+    back_x, back_y = pyproj.Transformer.from_crs(
+        "EPSG:2154", "EPSG:32631", always_xy=True
+    ).transform(xx, yy)
+    col = np.floor((back_x - 500_000.0) / 10.0).astype(int)
+    row = np.floor((back_y - 5_000_000.0) / 10.0).astype(int)
+    inside = (col >= 0) & (col < 12) & (row >= 0) & (row < 9)
+    assert inside.sum() > 0.8 * values.size
+    np.testing.assert_array_equal(out.values[inside], values[row[inside], col[inside]])
+    assert np.isnan(out.values[~inside]).all()
+    # points go through PROJ exactly
+    px, py = frame.xy(x[:3], y[:3])
+    ex, ey = pyproj.Transformer.from_crs(internal, "EPSG:2154", always_xy=True).transform(
+        x[:3], y[:3]
+    )
+    np.testing.assert_allclose(px, ex)
+    np.testing.assert_allclose(py, ey)
+    np.testing.assert_allclose(frame.xy_internal(px, py), (x[:3], y[:3]), atol=1e-6)

@@ -564,11 +564,11 @@ def _section_water(ctx: _Context) -> str:
         ]
         pressure = str(_get(ctx.units, "pressure", "kPa"))
         shown = levels[columns].copy()
-        if "p_static" in shown:
-            shown["p_static"] = from_internal(
-                shown["p_static"].to_numpy(float), pressure, "pressure"
-            )
-            shown = shown.rename(columns={"p_static": f"p_static ({pressure})"})
+        for column in ("p_static", "fit_rmse"):  # pressures, in the declared unit
+            if column in shown:
+                values = shown[column].to_numpy(float)
+                shown[column] = from_internal(values, pressure, "pressure")
+                shown = shown.rename(columns={column: f"{column} ({pressure})"})
         parts.append(
             _table(
                 ctx.table(shown),
