@@ -172,8 +172,9 @@ def test_mixture_finds_the_three_hydrofacies_of_the_demo(result, truth):
     # (transitional) and 0.946 (transmissive) within each threshold class on the committed
     # demo (the brine layers' intervals that the EC-above-trend flag marks are classed by K
     # alone; the few at the sand's base that it does not mark weigh on the transitional and
-    # transmissive classes). The mixture also weighs EC, so intervals near a threshold (the sand lenses' K
-    # straddles 1e-5 m/s, the tightest sands reach the silty sand's K) may go either way: floors
+    # transmissive classes). The mixture also weighs EC, so intervals near a threshold (the sand
+    # lenses' K straddles 1e-5 m/s, the tightest sands reach the silty sand's K) may go either
+    # way: floors
     # of 0.9 overall and 0.85 per class leave room for that, and still fail when a population
     # is merged into another or split across two (a trial variant of the demo, whose censored
     # storage intervals sit on thin strips at their resolution bounds, gave a broad component
