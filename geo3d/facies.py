@@ -82,7 +82,7 @@ _ATTR_NAMES = (
 
 
 @dataclass(frozen=True)
-class FaciesClasses:
+class FaciesClasses(Sequence[FaciesClass]):
     """The hydrofacies classes of a site, in code order (lowest K first).
 
     The code of a class is its index.  The classes are checked on creation: unique names,

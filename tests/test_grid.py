@@ -10,6 +10,7 @@ from hypothesis import strategies as st
 
 from geo3d.errors import GeometryError, ModelError
 from geo3d.grid import build_mask, ground_surface, height_fraction, make_grid
+from geo3d.io.vtk import model_to_image
 
 
 def test_make_grid_cell_centres_and_attrs():
@@ -75,7 +76,7 @@ def test_mask_and_accessor():
     assert np.all(centres[:, 0] + centres[:, 1] <= 10) and np.all(centres[:, 2] < 3)
     depth = ds.voxels.depth_of()
     assert float(depth.sel(z=0.5).isel(x=0, y=0)) == 2.5
-    grid = ds.voxels.to_pyvista()
+    grid = model_to_image(ds)
     assert grid.n_cells == 10 * 10 * 5
     assert int(grid.cell_data["mask"].sum()) == 165
     # pyvista cell centre of the first masked cell equals ours (x fastest)

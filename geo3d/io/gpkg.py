@@ -43,6 +43,7 @@ from matplotlib.ticker import MaxNLocator
 from geo3d.errors import GeometryError
 from geo3d.io.output_frame import OutputFrame
 from geo3d.io.tables import to_output_units
+from geo3d.logs.flags import FLAGS
 
 __all__ = [
     "in_frame",
@@ -56,15 +57,6 @@ __all__ = [
 ]
 
 logger = logging.getLogger(__name__)
-
-_FLAGS = (
-    "above_water",
-    "out_of_range_high",
-    "out_of_range_low",
-    "spike",
-    "ionic",
-    "sensor_check_failed",
-)
 
 
 def in_frame(layer: gpd.GeoDataFrame, frame: OutputFrame | None) -> gpd.GeoDataFrame:
@@ -163,7 +155,7 @@ def boring_summary(
             surface = key.map(grouped["depth_to_water"].median())
             out["depth_to_water"] = surface
             out.loc[surface.notna(), "water_level_source"] = "surface"
-        for flag in _FLAGS:
+        for flag in FLAGS:
             if flag in samples:
                 counts = grouped[flag].apply(lambda s: int(s.fillna(False).astype(bool).sum()))
                 out[f"n_{flag}"] = key.map(counts).fillna(0).astype(int)

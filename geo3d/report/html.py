@@ -26,16 +26,25 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
+import geopandas as gpd
 import numpy as np
 import pandas as pd
 import xarray as xr
 
 import geo3d
 from geo3d.errors import Geo3dWarning
+from geo3d.geostats.covariance import CovarianceModel
 from geo3d.io.atomic import atomic_file
-from geo3d.io.output_frame import OutputFrame, crs_label
+from geo3d.io.output_frame import OutputFrame
 from geo3d.io.tables import mapping_to_output_units, to_output_units
+from geo3d.logs.flags import FLAGS
+from geo3d.logs.process import LogResults
+from geo3d.logs.water_level import LEVEL_COLUMNS
+from geo3d.model import ModelResult
 from geo3d.report import figures as fg
+from geo3d.report.log_figure import log_figure_pngs
+from geo3d.results import RunResults
+from geo3d.site import Site
 from geo3d.units import factor, from_internal
 
 __all__ = ["SECTION_TITLES", "build_report", "write_report"]
@@ -270,21 +279,6 @@ def _img(uri: str, *, name: str, alt: str, caption: str) -> str:
     )
 
 
-def _get(obj: Any, name: str, default: Any = None) -> Any:
-    return getattr(obj, name, default) if obj is not None else default
-
-
-def _frame(value: Any) -> pd.DataFrame | None:
-    if value is None:
-        return None
-    if isinstance(value, pd.DataFrame):
-        return value
-    try:
-        return pd.DataFrame(value)
-    except (TypeError, ValueError):
-        return None
-
-
 # --------------------------------------------------------------------------- context
 
 
@@ -292,63 +286,52 @@ def _frame(value: Any) -> pd.DataFrame | None:
 class _Context:
     """Everything the sections share, gathered once from the run results."""
 
-    results: Any
-    site: Any
-    logs: Any
-    model: Any
+    results: RunResults
+    site: Site
+    logs: LogResults | None
+    model: ModelResult | None
     dataset: xr.Dataset | None
     facies_names: list[str]
     borings: pd.DataFrame | None
     boundary: Any
-    zones: Any
+    zones: gpd.GeoDataFrame | None
     crs_label: str
-    frame: OutputFrame | None = None
-    maps: dict = field(default_factory=dict)
+    frame: OutputFrame
+    maps: dict[str, xr.DataArray] = field(default_factory=dict)
     sections: list = field(default_factory=list)
-    log_figure_dir: Path | None = None
+    log_figures: Mapping[str, bytes] = field(default_factory=dict)
 
     @classmethod
-    def from_results(cls, results: Any) -> _Context:
-        site = _get(results, "site")
-        logs = _get(results, "logs")
-        model = _get(results, "model")
-        dataset = _get(model, "dataset")
-        if dataset is not None and not isinstance(dataset, xr.Dataset):
-            dataset = None
-        borings = _frame(_get(site, "borings"))
-        intervals = _frame(_get(logs, "intervals"))
+    def from_results(cls, results: RunResults) -> _Context:
+        site, logs, model = results.site, results.logs, results.model
+        dataset = None if model is None else model.dataset
+        borings = site.borings
+        intervals = None if logs is None else logs.intervals
         if (borings is None or not len(borings)) and intervals is not None and len(intervals):
             borings = intervals.groupby("boring_id", as_index=False)[["x", "y"]].first()
-        boundary = _get(site, "boundary")
-        zones = _get(site, "zones")
+        # everything drawn or tabled is shown in the output CRS and units
+        frame = OutputFrame.from_site(site)
+        zones = site.zones
         maps = {
-            str(k): v
-            for k, v in (_get(results, "maps") or {}).items()
-            if isinstance(v, xr.DataArray)
+            str(k): frame.grid(v)
+            for k, v in results.maps.items()
+            if isinstance(v, xr.DataArray) and {"y", "x"} <= set(v.dims)
         }
-        frame = _frame_of(site)
-        names = _facies_names(site, intervals, dataset)
-        if frame is not None:
-            # everything drawn or tabled is shown in the output CRS and units
-            borings = None if borings is None else frame.points(borings, ("ground_elev",))
-            boundary = frame.geometry(boundary)
-            zones = frame.layer(zones) if zones is not None and len(zones) else zones
-            dataset = None if dataset is None else frame.grid(dataset)
-            maps = {k: frame.grid(v) for k, v in maps.items() if {"y", "x"} <= set(v.dims)}
         ctx = cls(
             results=results,
             site=site,
             logs=logs,
             model=model,
-            dataset=dataset,
-            facies_names=names,
-            borings=borings,
-            boundary=boundary,
-            zones=zones,
-            crs_label=frame.label if frame is not None else _crs_label(_get(site, "crs")),
+            dataset=None if dataset is None else frame.grid(dataset),
+            facies_names=list(results.facies_classes.names),
+            borings=None if borings is None else frame.points(borings, ("ground_elev",)),
+            boundary=frame.geometry(site.boundary),
+            zones=frame.layer(zones) if zones is not None and len(zones) else zones,
+            crs_label=frame.label,
             frame=frame,
             maps=maps,
         )
+        dataset, borings = ctx.dataset, ctx.borings
         bounds = None
         if dataset is not None:
             bounds = (
@@ -360,99 +343,47 @@ class _Context:
         elif borings is not None and len(borings) >= 2:
             bounds = (borings.x.min(), borings.y.min(), borings.x.max(), borings.y.max())
         try:
-            ctx.sections = fg.default_section_lines(boundary, fallback_bounds=bounds)
+            ctx.sections = fg.default_section_lines(ctx.boundary, fallback_bounds=bounds)
         except Exception as exc:  # degenerate geometry: no sections, said in that section
             logger.warning("no section lines: %s", exc)
         return ctx
 
     @property
     def intervals(self) -> pd.DataFrame | None:
-        return _frame(_get(self.logs, "intervals"))
+        return None if self.logs is None else self.logs.intervals
 
     @property
     def samples(self) -> pd.DataFrame | None:
-        return _frame(_get(self.logs, "samples"))
+        return None if self.logs is None else self.logs.samples
 
     @property
     def intervals_shown(self) -> pd.DataFrame | None:
         """Intervals with coordinates, depths and elevations in the output frame."""
         intervals = self.intervals
-        if intervals is None or self.frame is None:
-            return intervals
+        if intervals is None:
+            return None
         return self.frame.points(intervals, ("top", "bottom", "z_mid", "thickness"))
 
     @property
     def units(self) -> Any:
-        """``[units]`` of the site file (None when unknown)."""
-        return _get(_get(self.site, "config"), "units")
+        """``[units]`` of the site file."""
+        return self.site.config.units
 
     @property
     def coord_unit(self) -> str:
-        return "m" if self.frame is None else self.frame.coordinate_label
+        return self.frame.coordinate_label
 
     @property
     def length_unit(self) -> str:
-        return "m" if self.frame is None else self.frame.length_label
+        return self.frame.length_label
 
-    @property
-    def length_key(self) -> str:
-        return "m" if self.frame is None else self.frame.length_unit
-
-    @property
-    def volume_unit(self) -> str:
-        return "m\u00b3" if self.frame is None else self.frame.volume_label
-
-    @property
-    def area_unit(self) -> str:
-        return "m\u00b2" if self.frame is None else self.frame.area_label
-
-    def length(self, values):
+    def length(self, values: Any) -> Any:
         """Lengths (m) in the output length unit."""
-        return values if self.frame is None else self.frame.length(values)
+        return self.frame.length(values)
 
     def table(self, frame: pd.DataFrame) -> pd.DataFrame:
         """Return a table in the output CRS and units, each converted column named with its unit."""
-        if self.frame is None:
-            return frame
         return to_output_units(frame, frame=self.frame)
-
-
-def _frame_of(site: Any) -> OutputFrame | None:
-    """Return the output frame of a site; None when the results carry no site file (metres)."""
-    if _get(site, "config") is None or _get(site, "crs") is None:
-        return None
-    try:
-        return OutputFrame.from_site(site)
-    except Exception as exc:  # an incomplete site object: shown as computed
-        logger.warning("report shown in the internal CRS and metres: %s", exc)
-        return None
-
-
-def _facies_names(site: Any, intervals: pd.DataFrame | None, dataset: Any) -> list[str]:
-    classes = _get(_get(_get(site, "config"), "facies"), "classes")
-    if classes:
-        names = [str(_get(c, "name")) for c in classes if _get(c, "name") is not None]
-        if names:
-            return names
-    if intervals is not None and {"facies", "facies_code"} <= set(intervals.columns):
-        pairs = intervals[["facies_code", "facies"]].dropna().drop_duplicates("facies_code")
-        pairs = pairs.sort_values("facies_code")
-        if len(pairs) and (pairs["facies_code"].to_numpy() == np.arange(len(pairs))).all():
-            return [str(v) for v in pairs["facies"]]
-    if dataset is not None:
-        names = [str(v)[5:] for v in dataset.data_vars if str(v).startswith("prob_")]
-        if names:
-            return names
-        if "facies_code" in dataset:
-            top = int(np.nanmax(dataset["facies_code"].values))
-            return [f"class {i}" for i in range(top + 1)]
-    return []
-
-
-def _crs_label(crs: Any) -> str:
-    if crs is None or not hasattr(crs, "to_authority"):
-        return "CRS not given" if crs is None else str(crs)
-    return crs_label(crs)
 
 
 # --------------------------------------------------------------------------- sections
@@ -465,15 +396,15 @@ def _section_read_first(ctx: _Context) -> str:
 
 def _injection_points(ctx: _Context) -> list[tuple[float, float]]:
     points = []
-    for plan in (_get(ctx.results, "injection") or {}).values():
-        frame = _get(plan, "points")
+    for plan in ctx.results.injection.values():
+        frame = plan.points
         if frame is None or not len(frame):
             continue
         if "geometry" in getattr(frame, "columns", []):
             points.extend((g.x, g.y) for g in frame.geometry if g is not None)
         elif {"x", "y"} <= set(frame.columns):
             points.extend(zip(frame["x"], frame["y"], strict=True))
-    if ctx.frame is not None and points:
+    if points:
         x, y = ctx.frame.xy(*np.asarray(points, dtype=float).T)
         points = list(zip(x.tolist(), y.tolist(), strict=True))
     return points
@@ -507,11 +438,11 @@ def _section_site(ctx: _Context) -> str:
         table = ctx.borings[columns].copy()
         intervals = ctx.intervals
         if intervals is not None and len(intervals):
-            depth = intervals.groupby("boring_id")["bottom"].max().rename("logged_depth")
-            depth = pd.Series(
-                ctx.length(depth.to_numpy(dtype=float)), index=depth.index, name=depth.name
+            depth = intervals.groupby("boring_id")["bottom"].max()
+            depth = pd.Series(ctx.length(depth.to_numpy(float)), index=depth.index)
+            table = table.merge(
+                depth.rename("logged_depth"), left_on="boring_id", right_index=True, how="left"
             )
-            table = table.merge(depth, left_on="boring_id", right_index=True, how="left")
         caption = (
             f"Borings (x, y in {ctx.coord_unit}; ground elevation and logged depth in "
             f"{ctx.length_unit})"
@@ -524,17 +455,16 @@ def _section_site(ctx: _Context) -> str:
 
 def _water_surface(ctx: _Context) -> xr.DataArray | None:
     for key, grid in ctx.maps.items():
-        if _is_water_map(str(key)) and "depth" not in str(key):
+        if _is_water_map(key) and "depth" not in key:
             return grid
-    surface = _get(ctx.logs, "water_table")
-    if surface is None or ctx.dataset is None:
+    if ctx.logs is None or ctx.dataset is None:
         return None
+    surface = ctx.logs.water_table
     x = ctx.dataset["x"].values
     y = ctx.dataset["y"].values
     xx, yy = np.meshgrid(x, y)
-    qx, qy = (xx.ravel(), yy.ravel()) if ctx.frame is None else ctx.frame.xy_internal(xx, yy)
-    values = np.asarray(surface.elevation(np.ravel(qx), np.ravel(qy)), dtype=float)
-    values = ctx.length(values).reshape(xx.shape)
+    qx, qy = ctx.frame.xy_internal(xx.ravel(), yy.ravel())
+    values = np.asarray(ctx.length(surface.elevation(qx, qy)), dtype=float).reshape(xx.shape)
     if "mask" in ctx.dataset:
         values = np.where(ctx.dataset["mask"].any("z").values, values, np.nan)
     return xr.DataArray(values, dims=("y", "x"), coords={"y": y, "x": x})
@@ -542,27 +472,14 @@ def _water_surface(ctx: _Context) -> xr.DataArray | None:
 
 def _section_water(ctx: _Context) -> str:
     parts = []
-    levels = _frame(_get(ctx.logs, "water_levels"))
-    surface = _get(ctx.logs, "water_table")
+    levels = None if ctx.logs is None else ctx.logs.water_levels
+    surface = None if ctx.logs is None else ctx.logs.water_table
     if levels is None or not len(levels):
         parts.append(_note("No water levels from dissipation tests are available."))
     else:
-        columns = [
-            c
-            for c in (
-                "boring_id",
-                "test_id",
-                "depth",
-                "p_static",
-                "depth_to_water",
-                "wt_elev",
-                "fraction_dissipated",
-                "method",
-                "fit_rmse",
-            )
-            if c in levels
-        ]
-        pressure = str(_get(ctx.units, "pressure", "kPa"))
+        hidden = ("x", "y", "aitken", "p_static_se")
+        columns = [c for c in LEVEL_COLUMNS if c in levels and c not in hidden]
+        pressure = str(ctx.units.pressure)
         shown = levels[columns].copy()
         for column in ("p_static", "fit_rmse"):  # pressures, in the declared unit
             if column in shown:
@@ -577,13 +494,13 @@ def _section_water(ctx: _Context) -> str:
                 max_rows=200,
             )
         )
-    gradient = _get(surface, "gradient")
-    direction = _get(surface, "flow_direction_deg")
-    method = _get(surface, "method")
+    gradient = None if surface is None else surface.gradient
+    direction = None if surface is None else surface.flow_direction_deg
+    method = None if surface is None else surface.method
     grid = _water_surface(ctx)
     if grid is None and (levels is None or not len(levels)):
         return "".join(parts)
-    if levels is not None and ctx.frame is not None:
+    if levels is not None:
         levels = ctx.frame.points(levels, ("wt_elev",))
     fig = fg.water_table_figure(
         surface=grid,
@@ -609,139 +526,41 @@ def _section_water(ctx: _Context) -> str:
     return "".join(parts)
 
 
-def _close(fig) -> None:
-    """Release a figure that may have been made through pyplot."""
-    import matplotlib.pyplot as plt
-
-    plt.close(fig)
-
-
-def _log_figure_function() -> Callable | None:
-    try:
-        from geo3d.report.log_figure import log_figure
-    except ImportError:
-        return None
-    return log_figure
-
-
 def _section_logs(ctx: _Context) -> str:
     samples, intervals = ctx.samples, ctx.intervals
-    if (samples is None or not len(samples)) and (intervals is None or not len(intervals)):
+    if ctx.logs is None or samples is None or intervals is None or not len(samples):
         return _note("No processed logs are available.")
-    ids = sorted(
-        set(samples["boring_id"].astype(str) if samples is not None and len(samples) else [])
-        | set(
-            intervals["boring_id"].astype(str) if intervals is not None and len(intervals) else []
+    checks = ctx.logs.sensor_checks
+    parts = [_flag_summary(samples), _sensor_summary(checks, ctx.units)]
+    pngs = ctx.log_figures or log_figure_pngs(samples, intervals, units=ctx.units, checks=checks)
+    cells = [
+        _img(
+            fg.png_to_data_uri(png),
+            name=f"log-{boring_id}",
+            alt=f"Log of boring {boring_id}",
+            caption=f"Boring {_esc(boring_id)}",
+        )
+        for boring_id, png in pngs.items()
+    ]
+    legend = ", ".join(f"{_esc(name)}" for name in ctx.facies_names)
+    parts.append(
+        _note(
+            f"Each figure: the hydrofacies strip (lowest K first: {legend}), log-derived K, net "
+            "injection pressure, recorded pressure with its atmospheric and hydrostatic parts, "
+            "injection flow and bulk EC, in the units the site file declares; flagged samples "
+            "carry their own symbols, a failed sensor check is a red line across its sensor's "
+            "track (top: check before the log, bottom: after), and a run of missing EC is "
+            "shaded grey."
         )
     )
-    checks = _frame(_get(ctx.logs, "sensor_checks"))
-    parts = [_flag_summary(samples), _sensor_summary(checks, ctx.units)]
-    shared = _log_figure_function()
-    cells = []
-    for boring_id in ids:
-        own_samples = (
-            samples[samples["boring_id"].astype(str) == boring_id] if samples is not None else None
-        )
-        own_intervals = (
-            intervals[intervals["boring_id"].astype(str) == boring_id]
-            if intervals is not None
-            else None
-        )
-        saved = _saved_log_figure(ctx.log_figure_dir, boring_id)
-        if saved is not None:
-            cells.append(
-                _img(
-                    fg.png_to_data_uri(saved),
-                    name=f"log-{boring_id}",
-                    alt=f"Log of boring {boring_id}",
-                    caption=f"Boring {_esc(boring_id)}",
-                )
-            )
-            continue
-        fig = None
-        if shared is not None:
-            try:
-                own_checks = None
-                if checks is not None and "boring_id" in checks:
-                    own_checks = checks[checks["boring_id"].astype(str) == boring_id]
-                fig = shared(
-                    own_samples,
-                    own_intervals,
-                    boring_id=boring_id,
-                    units=ctx.units,
-                    checks=own_checks,
-                )
-            except Exception as exc:  # fall back to the report's own panel
-                logger.warning("shared log figure failed for %s: %s", boring_id, exc)
-                fig = None
-        if fig is None:
-            dtw = None
-            if own_samples is not None and "depth_to_water" in own_samples and len(own_samples):
-                dtw = float(np.nanmedian(own_samples["depth_to_water"].to_numpy(dtype=float)))
-                dtw = float(ctx.length(dtw))
-            if own_samples is not None and ctx.frame is not None:
-                own_samples = ctx.frame.points(own_samples, ("depth",))
-            if own_intervals is not None and ctx.frame is not None:
-                own_intervals = ctx.frame.points(own_intervals, ("top", "bottom"))
-            fig = fg.log_panel_figure(
-                own_samples,
-                own_intervals,
-                boring_id=boring_id,
-                facies_names=ctx.facies_names,
-                depth_to_water=dtw,
-                length_unit=ctx.length_unit,
-            )
-        uri = fg.figure_to_data_uri(fig, dpi=72 if shared is not None else 80)
-        _close(fig)
-        cells.append(
-            _img(
-                uri,
-                name=f"log-{boring_id}",
-                alt=f"Log of boring {boring_id}",
-                caption=f"Boring {_esc(boring_id)}",
-            )
-        )
-    legend = ", ".join(f"{_esc(name)}" for name in ctx.facies_names)
-    if shared is None:
-        parts.append(
-            _note(
-                "Each panel: log-derived log10 K per sample (grey; flagged samples as dots) "
-                "and per composited interval (blue), bulk EC, and the hydrofacies column "
-                f"(lowest K first: {legend}); the dashed line is the water table."
-            )
-        )
-    else:
-        parts.append(
-            _note(
-                f"Each figure: the hydrofacies strip (lowest K first: {legend}), log-derived K, "
-                "net injection pressure, recorded pressure with its atmospheric and hydrostatic "
-                "parts, injection flow and bulk EC, in the units the site file declares; flagged "
-                "samples carry their own symbols, a failed sensor check is a red line across its "
-                "sensor's track (top: check before the log, bottom: after), and a run of missing "
-                "EC is shaded grey."
-            )
-        )
-    kind = "log-grid" if shared is not None else "gallery"
-    parts.append(f'<div class="{kind}">{"".join(cells)}</div>')
+    parts.append(f'<div class="log-grid">{"".join(cells)}</div>')
     return "".join(parts)
-
-
-def _saved_log_figure(folder: Path | None, boring_id: str) -> bytes | None:
-    """Return the PNG the logs stage already wrote for a boring, if it sits beside the report."""
-    if folder is None:
-        return None
-    path = Path(folder) / f"{boring_id}.png"
-    try:
-        png = path.read_bytes()
-    except OSError:
-        return None
-    return png if png[:8] == b"\x89PNG\r\n\x1a\n" else None
 
 
 def _flag_summary(samples: pd.DataFrame | None) -> str:
     if samples is None or not len(samples):
         return ""
-    flags = [c for c in _FLAG_COLUMNS if c in samples]
+    flags = [c for c in FLAGS if c in samples]
     if not flags:
         return ""
     table = samples.groupby("boring_id")[flags].agg(
@@ -773,131 +592,65 @@ def _sensor_summary(checks: pd.DataFrame | None, units: Any = None) -> str:
     )
 
 
-_FLAG_COLUMNS = (
-    "above_water",
-    "out_of_range_high",
-    "out_of_range_low",
-    "spike",
-    "ionic",
-    "sensor_check_failed",
-)
-
-
-def _physics_screen_k(ctx: _Context, residuals: pd.DataFrame) -> tuple[np.ndarray, float] | None:
-    """Physics-only K averaged over each slug-test screen, and ``log10(gamma_w / F)``."""
-    probe = _get(_get(_get(ctx.site, "config"), "probe"), "shape")
-    samples = ctx.samples
-    needed = {"boring_id", "top_depth", "bottom_depth"}
-    if (
-        (probe is None and _get(ctx.logs, "shape_factor") is None)
-        or samples is None
-        or "q_over_p" not in samples
-    ):
-        return None
-    if not needed <= set(residuals):
-        return None
-    from geo3d.logs.calibration import physics_coefficients, screen_samples
-    from geo3d.logs.hydraulic import shape_factor
-
-    factor = _get(ctx.logs, "shape_factor")
-    if factor is None:
-        config = ctx.site.config.probe
-        factor = shape_factor(
-            config.shape, length=config.screen_length, diameter=config.screen_diameter
-        )
-    a_phys, _ = physics_coefficients(factor)
-    if "k_physics" in residuals:
-        # the calibration's own screen means, over exactly the samples the fit used
-        return residuals["k_physics"].to_numpy(dtype=float), a_phys
-    usable = np.ones(len(samples), dtype=bool)
-    for flag in _FLAG_COLUMNS:
-        if flag in samples:
-            usable &= ~samples[flag].fillna(False).to_numpy(dtype=bool)
-    tests = residuals[["boring_id", "top_depth", "bottom_depth"]].assign(k=np.nan)
-    groups = screen_samples(
-        samples.assign(boring_id=samples["boring_id"].astype(str)),
-        tests.assign(boring_id=tests["boring_id"].astype(str)),
-        usable=usable,
-    )
-    k = np.array([np.mean(10.0 ** (a_phys + x)) if x.size else np.nan for x in groups])
-    return k, a_phys
-
-
 def _section_calibration(ctx: _Context) -> str:
-    calibration = _get(ctx.logs, "calibration")
-    if calibration is not None and not isinstance(calibration, Mapping):
-        as_dict = getattr(calibration, "as_dict", None)
-        calibration = as_dict() if callable(as_dict) else dict(vars(calibration))
-    calibration = calibration or {}
-    method = calibration.get("method")
-    n_tests = calibration.get("n_tests") or 0
-    residuals = _frame(calibration.get("residuals"))
+    if ctx.logs is None:
+        return _note("No calibration: the logs were not processed.")
+    calibration = ctx.logs.calibration
+    residuals = pd.DataFrame(calibration.residuals)
     parts = []
-    if method != "slug_tests":
+    if calibration.method != "slug_tests":
         text = "Physics-only K, no calibration: log-derived K comes from the Hvorslev shape factor"
         text += (
-            f" alone ({n_tests} slug test(s), fewer than a calibration needs)."
-            if n_tests
+            f" alone ({calibration.n_tests} slug test(s), fewer than a calibration needs)."
+            if calibration.n_tests
             else " alone (no slug tests were given)."
         )
         parts.append(_note(text))
-    keys = ("method", "a", "b", "se_a", "se_b", "n_tests", "r2")
-    summary = {k: calibration[k] for k in keys if k in calibration}
-    if summary:
-        parts.append(_mapping_table(summary, caption="Calibration log10 K = a + b log10(Q/P_net)"))
-    if residuals is not None and len(residuals) and "k_slug" in residuals:
-        fitted = method == "slug_tests"
-        physics = None
-        try:
-            physics = _physics_screen_k(ctx, residuals)
-        except Exception as exc:  # no physics-only axis: plot the calibrated prediction
-            logger.warning("physics-only K over the slug-test screens not computed: %s", exc)
-        if physics is not None:
-            x, offset = physics
-            xlabel = "log10 K from physics alone, mean over the screen (m/s)"
-            caption = (
-                "Slug-test K against physics-only log-derived K (Hvorslev shape factor) "
-                "averaged over each test screen; dotted: 1:1"
-                + ("; red: the fitted calibration." if fitted else " (no calibration fitted).")
-            )
-        elif "k_predicted" in residuals:
-            x, offset = residuals["k_predicted"].to_numpy(dtype=float), None
-            xlabel = "log10 K from the logs, calibrated, mean over the screen (m/s)"
-            caption = (
-                "Slug-test K against calibrated log-derived K averaged over each test screen; "
-                "dotted: 1:1."
-            )
-        else:
-            x = None
-        if x is not None:
-            fig = fg.calibration_figure(
-                x,
-                residuals["k_slug"].to_numpy(dtype=float),
-                a=calibration.get("a") if fitted and offset is not None else None,
-                b=calibration.get("b") if fitted and offset is not None else None,
-                x_offset=offset or 0.0,
-                labels=residuals["boring_id"] if "boring_id" in residuals else None,
-                xlabel=xlabel,
-            )
-            parts.append(_figure(fig, name="calibration", alt="Calibration plot", caption=caption))
+    summary = {
+        k: getattr(calibration, k) for k in ("method", "a", "b", "se_a", "se_b", "n_tests", "r2")
+    }
+    parts.append(_mapping_table(summary, caption="Calibration log10 K = a + b log10(Q/P_net)"))
+    if len(residuals) and "k_slug" in residuals:
+        parts.append(_calibration_figure(ctx.logs, residuals))
         caption = f"Slug tests and residuals (K in m/s, depths in {ctx.length_unit})"
         parts.append(_table(ctx.table(residuals), caption=caption))
-    elif method == "slug_tests":
+    elif calibration.method == "slug_tests":
         parts.append(_note("The calibration carries no per-test residuals to plot."))
     return "".join(parts)
 
 
-def _model_curves(model: Any, max_v: float, max_h: float):
+def _calibration_figure(logs: LogResults, residuals: pd.DataFrame) -> str:
+    """Slug-test K against the physics-only screen means the logs stage computed."""
+    calibration = logs.calibration
+    fitted = calibration.method == "slug_tests"
+    caption = (
+        "Slug-test K against physics-only log-derived K (Hvorslev shape factor) "
+        "averaged over each test screen; dotted: 1:1"
+        + ("; red: the fitted calibration." if fitted else " (no calibration fitted).")
+    )
+    fig = fg.calibration_figure(
+        residuals["k_physics"].to_numpy(dtype=float),
+        residuals["k_slug"].to_numpy(dtype=float),
+        a=calibration.a if fitted else None,
+        b=calibration.b if fitted else None,
+        x_offset=logs.physics_a,
+        labels=residuals["boring_id"],
+        xlabel="log10 K from physics alone, mean over the screen (m/s)",
+    )
+    return _figure(fig, name="calibration", alt="Calibration plot", caption=caption)
+
+
+def _model_curves(model: CovarianceModel, max_v: float, max_h: float) -> tuple[Any, Any]:
     """Model semivariance along the vertical and the horizontal major/minor axes."""
     lags_v = np.linspace(0.0, max_v, 120)
     lags_h = np.linspace(0.0, max_h, 120)
-    azimuth = float(_get(model, "azimuth", 0.0) or 0.0)
+    azimuth = float(model.azimuth)
     ex, ey = fg.azimuth_vector(azimuth)
     directions = {"major": (ex, ey, 0.0)}
-    if float(_get(model, "minor_ratio", 1.0) or 1.0) != 1.0:
+    if float(model.minor_ratio) != 1.0:
         directions["minor"] = (ey, -ex, 0.0)
 
-    def along(vector, lags):
+    def along(vector: tuple[float, float, float], lags: np.ndarray) -> np.ndarray:
         coords = np.outer(lags, vector)
         scaled = np.asarray(model.scaled(coords))
         return np.asarray(model.variogram(np.linalg.norm(scaled - scaled[0], axis=1)))
@@ -908,46 +661,35 @@ def _model_curves(model: Any, max_v: float, max_h: float):
 
 
 def _section_variograms(ctx: _Context) -> str:
-    fits = _get(ctx.model, "variograms") or {}
+    fits = {} if ctx.model is None else ctx.model.variograms
     if not fits:
         return _note("No variograms are available (no 3D model was built).")
     parts, rows = [], []
     units = {"log10_k": "(log10 m/s)\u00b2", "ec": "(mS/m)\u00b2"}
     lag = ctx.length_unit
     for variable, fit in fits.items():
-        vertical = _frame(_get(fit, "vertical"))
-        horizontal = _frame(_get(fit, "horizontal"))
-        model = _get(fit, "model")
-        max_v = float(vertical["lag"].max()) if vertical is not None and len(vertical) else 5.0
-        max_h = (
-            float(horizontal["lag"].max()) if horizontal is not None and len(horizontal) else 50.0
+        vertical, horizontal, model = fit.vertical, fit.horizontal, fit.model
+        max_v = float(vertical["lag"].max()) if len(vertical) else 5.0
+        max_h = float(horizontal["lag"].max()) if len(horizontal) else 50.0
+        v_curve, h_curves = _model_curves(model, max_v * 1.05, max_h * 1.05)
+        rows.append(
+            {
+                "variable": variable,
+                "model": model.kind,
+                "nugget": model.nugget,
+                "partial sill": model.sill,
+                f"horizontal range ({lag})": float(ctx.length(float(model.range_h))),
+                f"vertical range ({lag})": float(ctx.length(float(model.range_v))),
+                "azimuth (\u00b0)": model.azimuth,
+                "minor/major": model.minor_ratio,
+                "fit RMSE": fit.rmse,
+            }
         )
-        v_curve = h_curves = None
-        if model is not None:
-            try:
-                v_curve, h_curves = _model_curves(model, max_v * 1.05, max_h * 1.05)
-            except Exception as exc:  # a model without scaled()/variogram(): points only
-                logger.warning("variogram model curve for %s not drawn: %s", variable, exc)
-            rows.append(
-                {
-                    "variable": variable,
-                    "model": _get(model, "kind", _get(fit, "kind")),
-                    "nugget": _get(model, "nugget"),
-                    "partial sill": _get(model, "sill"),
-                    f"horizontal range ({lag})": _length_or_none(ctx, _get(model, "range_h")),
-                    f"vertical range ({lag})": _length_or_none(ctx, _get(model, "range_v")),
-                    "azimuth (\u00b0)": _get(model, "azimuth"),
-                    "minor/major": _get(model, "minor_ratio"),
-                    "fit RMSE": _get(fit, "rmse"),
-                }
-            )
         fig = fg.variogram_figure(
             _lags_shown(ctx, vertical),
             _lags_shown(ctx, horizontal),
             vertical_model=_curve_shown(ctx, v_curve),
-            horizontal_model=None
-            if h_curves is None
-            else {k: _curve_shown(ctx, c) for k, c in h_curves.items()},
+            horizontal_model={k: _curve_shown(ctx, c) for k, c in h_curves.items()},
             variable=variable,
             units=units.get(
                 variable, "normal score\u00b2" if "normal_score" in variable else "units\u00b2"
@@ -969,34 +711,25 @@ def _section_variograms(ctx: _Context) -> str:
     return "".join(parts)
 
 
-def _length_or_none(ctx: _Context, value: Any) -> Any:
-    try:
-        return float(ctx.length(float(value)))
-    except (TypeError, ValueError):
-        return value
-
-
-def _lags_shown(ctx: _Context, table: pd.DataFrame | None) -> pd.DataFrame | None:
-    if table is None or "lag" not in table:
+def _lags_shown(ctx: _Context, table: pd.DataFrame) -> pd.DataFrame:
+    if "lag" not in table:
         return table
     return table.assign(lag=ctx.length(table["lag"].to_numpy(dtype=float)))
 
 
-def _curve_shown(ctx: _Context, curve):
-    if curve is None:
-        return None
+def _curve_shown(ctx: _Context, curve: tuple[np.ndarray, np.ndarray]) -> tuple[Any, Any]:
     lags, gamma = curve
     return ctx.length(np.asarray(lags, dtype=float)), gamma
 
 
 def _section_crossval(ctx: _Context) -> str:
-    results = _get(ctx.model, "crossval") or {}
+    results = {} if ctx.model is None else ctx.model.crossval
     if not results:
         return _note("No cross-validation is available.")
     parts, rows = [], []
     units = {"log10_k": "log10 m/s", "ec": "mS/m"}
     for variable, cv in results.items():
-        summary = _get(cv, "summary") or {}
+        summary = cv.summary
         rows.append(
             {
                 "variable": variable,
@@ -1007,8 +740,8 @@ def _section_crossval(ctx: _Context) -> str:
                 "variance of standardized error": summary.get("var_std_error"),
             }
         )
-        samples = _frame(_get(cv, "samples"))
-        if samples is not None and len(samples) and {"observed", "estimate"} <= set(samples):
+        samples = cv.samples
+        if len(samples) and {"observed", "estimate"} <= set(samples):
             fig = fg.crossval_figure(samples, variable=variable, units=units.get(variable, ""))
             parts.append(
                 _figure(
@@ -1131,7 +864,7 @@ def _section_sections(ctx: _Context) -> str:
         return _note("No cross-sections: the site geometry does not define a section line.")
     parts = []
     dx = float(np.abs(np.diff(ds["x"].values[:2]))[0]) if ds.sizes["x"] > 1 else 1.0
-    surface = _get(ctx.logs, "water_table")
+    surface = None if ctx.logs is None else ctx.logs.water_table
     intervals = ctx.intervals_shown
     for line in ctx.sections:
         section = fg.sample_section(ds, line, variables=("facies_code", "log10_k", "mask"))
@@ -1142,9 +875,7 @@ def _section_sections(ctx: _Context) -> str:
         water = None
         if surface is not None:
             try:
-                qx, qy = section["x"].values, section["y"].values
-                if ctx.frame is not None:
-                    qx, qy = ctx.frame.xy_internal(qx, qy)
+                qx, qy = ctx.frame.xy_internal(section["x"].values, section["y"].values)
                 water = np.asarray(ctx.length(surface.elevation(qx, qy)), dtype=float)
             except Exception as exc:  # a surface that cannot be evaluated is just not drawn
                 logger.warning("water table not drawn on section %s: %s", line.name, exc)
@@ -1157,10 +888,9 @@ def _section_sections(ctx: _Context) -> str:
             distance_unit=ctx.coord_unit,
             elevation_unit=ctx.length_unit,
         )
-        z = section["z"].values
-        if ctx.frame is not None:  # the same unit along both axes for the exaggeration
-            z = z * factor(ctx.frame.length_unit, "length")
-            z = z / factor(ctx.frame.coordinate_unit, "length")
+        # the same unit along both axes for the exaggeration
+        z = section["z"].values * factor(ctx.frame.length_unit, "length")
+        z = z / factor(ctx.frame.coordinate_unit, "length")
         ax = fig.axes[0]
         fig.canvas.draw()
         exaggeration = fg.vertical_exaggeration(
@@ -1240,13 +970,13 @@ def _long_volumes(volumes: pd.DataFrame) -> pd.DataFrame:
 
 
 def _section_volumes(ctx: _Context) -> str:
-    volumes = _frame(_get(ctx.results, "volumes"))
+    volumes = ctx.results.volumes
     if volumes is None or not len(volumes):
         return _note("No volumes were computed (no treatment zones were given).")
     volumes = ctx.table(volumes)
     text = _note(
-        f"Volumes in {ctx.volume_unit} and areas in {ctx.area_unit} (as the quantity names say). "
-        "The estimate "
+        f"Volumes in {ctx.frame.volume_label} and areas in {ctx.frame.area_label} (as the "
+        "quantity names say). The estimate "
         "comes from the kriged model; P10/P50/P90 are the 10th, 50th and 90th percentiles over "
         "the conditional simulations: 80% of the simulated outcomes fall between P10 and P90."
     )
@@ -1258,22 +988,20 @@ def _section_volumes(ctx: _Context) -> str:
 
 
 def _section_injection(ctx: _Context) -> str:
-    plans = _get(ctx.results, "injection") or {}
+    plans = ctx.results.injection
     if not plans:
         return _note("No injection plans (no treatment zones were given).")
     parts = []
     for zone, plan in plans.items():
         parts.append(f"<h3>{_esc(zone)}</h3>")
-        summary = _get(plan, "summary") or {}
-        if summary and ctx.frame is not None:
-            summary = mapping_to_output_units(
-                summary, length_unit=ctx.frame.length_unit, volume_unit=ctx.frame.volume_unit
-            )
+        summary = mapping_to_output_units(
+            plan.summary, length_unit=ctx.frame.length_unit, volume_unit=ctx.frame.volume_unit
+        )
         if summary:
             parts.append(_mapping_table(summary, caption="Design summary"))
-        schedule = _frame(_get(plan, "schedule"))
-        if schedule is not None and len(schedule):
-            parts.append(_schedule_table(schedule, ctx))
+        schedule = plan.schedule
+        if len(schedule):
+            parts.append(_schedule_table(schedule, ctx.frame))
     return "".join(parts)
 
 
@@ -1281,12 +1009,12 @@ def _first(frame: pd.DataFrame, names: Iterable[str]) -> str | None:
     return next((n for n in names if n in frame.columns), None)
 
 
-def _schedule_table(schedule: pd.DataFrame, ctx: _Context) -> str:
+def _schedule_table(schedule: pd.DataFrame, frame: OutputFrame) -> str:
     top = _first(schedule, ("top_depth", "top"))
     bottom = _first(schedule, ("bottom_depth", "bottom"))
     volume = _first(schedule, ("volume_m3", "volume"))
     if not (top and bottom and volume):
-        return _table(ctx.table(schedule), caption="Injection schedule")
+        return _table(to_output_units(schedule, frame=frame), caption="Injection schedule")
     if "interval" in schedule:
         key = schedule["interval"]
     else:
@@ -1304,17 +1032,17 @@ def _schedule_table(schedule: pd.DataFrame, ctx: _Context) -> str:
         )
         .reset_index(drop=True)
     )
-    if ctx.frame is not None:
-        for column in ("top", "bottom"):
-            grouped[column] = ctx.frame.length(grouped[column].to_numpy(dtype=float))
-        for column in ("per_point", "total"):
-            grouped[column] = ctx.frame.volume(grouped[column].to_numpy(dtype=float))
+    for column in ("top", "bottom"):
+        grouped[column] = frame.length(grouped[column].to_numpy(dtype=float))
+    for column in ("per_point", "total"):
+        grouped[column] = frame.volume(grouped[column].to_numpy(dtype=float))
+    length, volume_unit = frame.length_label, frame.volume_label
     grouped.columns = [
-        f"mean top depth ({ctx.length_unit})",
-        f"mean bottom depth ({ctx.length_unit})",
+        f"mean top depth ({length})",
+        f"mean bottom depth ({length})",
         "points",
-        f"mean volume per point ({ctx.volume_unit})",
-        f"total volume ({ctx.volume_unit})",
+        f"mean volume per point ({volume_unit})",
+        f"total volume ({volume_unit})",
     ]
     return _table(grouped, caption="Injection volume per depth interval (all points)")
 
@@ -1322,7 +1050,7 @@ def _schedule_table(schedule: pd.DataFrame, ctx: _Context) -> str:
 def _section_methods(ctx: _Context) -> str:
     items = "".join(f"<dt>{name}</dt><dd>{text}</dd>" for name, text in _METHODS)
     refs = "".join(f'<li id="ref-{key}">{_esc(text)}</li>' for key, text in _REFERENCES)
-    timings = _get(ctx.results, "timings") or {}
+    timings = ctx.results.timings
     run = ""
     if timings:
         frame = pd.DataFrame([{"stage": k, "seconds": float(v)} for k, v in timings.items()])
@@ -1375,19 +1103,17 @@ def _render_section(ctx: _Context, anchor: str) -> str:
 
 
 def _header(ctx: _Context, generated: _dt.datetime) -> str:
-    name = _get(ctx.site, "name") or "Unnamed site"
+    name = ctx.site.name
     facts = {
         "Coordinate reference system": ctx.crs_label,
         "Report date": generated.strftime("%Y-%m-%d %H:%M UTC"),
         "geo3d version": geo3d.__version__,
         "Borings": 0 if ctx.borings is None else len(ctx.borings),
     }
-    root = _get(ctx.site, "root")
-    if root is not None:
-        facts["Site folder"] = Path(root).name
+    facts["Site folder"] = Path(ctx.site.root).name
     if ctx.dataset is not None and "mask" in ctx.dataset:
         facts["Model cells inside the site"] = f"{int(ctx.dataset['mask'].sum()):,}"
-    timings = _get(ctx.results, "timings") or {}
+    timings = ctx.results.timings
     if timings:
         facts["Run time"] = f"{sum(float(v) for v in timings.values()):.1f} s"
     rows = "".join(f"<dt>{_esc(k)}</dt><dd>{_esc(v)}</dd>" for k, v in facts.items())
@@ -1413,24 +1139,21 @@ def _resource(name: str) -> str:
 
 
 def build_report(
-    results: Any,
+    results: RunResults,
     *,
     generated: _dt.datetime | None = None,
-    log_figure_dir: str | os.PathLike | None = None,
+    log_figures: Mapping[str, bytes] | None = None,
 ) -> str:
     """Build the report of a run as one self-contained HTML document.
 
     Parameters
     ----------
     results
-        A :class:`geo3d.pipeline.RunResults` or any object with the same attributes
-        (``site``, ``logs``, ``model``, ``maps``, ``volumes``, ``injection``, ``timings``);
-        absent parts give notes instead of sections' figures.
+        The results of the stages run; absent stages give notes instead of figures.
     generated
         Time stamp of the report; now (UTC) when None.
-    log_figure_dir
-        Folder where the logs stage wrote ``<boring_id>.png`` log figures; those found there
-        are embedded as they are instead of being drawn again.
+    log_figures
+        Boring id -> PNG of its log figure, embedded as it is; drawn here when None.
 
     Returns
     -------
@@ -1439,9 +1162,9 @@ def build_report(
     """
     generated = generated or _dt.datetime.now(_dt.UTC)
     ctx = _Context.from_results(results)
-    ctx.log_figure_dir = None if log_figure_dir is None else Path(log_figure_dir)
+    ctx.log_figures = {} if log_figures is None else log_figures
     body = "\n".join(_render_section(ctx, anchor) for anchor in SECTION_TITLES)
-    name = _get(ctx.site, "name") or "Unnamed site"
+    name = ctx.site.name
     template = string.Template(_resource("template.html"))
     return template.substitute(
         title=_esc(f"{name}: geo3d site model report"),
@@ -1457,17 +1180,23 @@ def build_report(
     )
 
 
-def write_report(results: Any, path: str | os.PathLike) -> Path:
+def write_report(
+    results: RunResults,
+    path: str | os.PathLike,
+    *,
+    log_figures: Mapping[str, bytes] | None = None,
+) -> Path:
     """Write the self-contained HTML report of a run.
 
     Parameters
     ----------
     results
-        A :class:`geo3d.pipeline.RunResults` (or an object with the same attributes).
+        The results of the stages run.
     path
         File to write (usually ``OUT/report.html``); written under a temporary name and
-        moved into place only when complete. Log figures that the logs stage wrote in
-        ``figures/logs/`` beside it are embedded rather than drawn again.
+        moved into place only when complete.
+    log_figures
+        Boring id -> PNG of its log figure (see :func:`build_report`).
 
     Returns
     -------
@@ -1475,7 +1204,7 @@ def write_report(results: Any, path: str | os.PathLike) -> Path:
         The written file.
     """
     path = Path(path)
-    text = build_report(results, log_figure_dir=path.parent / "figures" / "logs")
+    text = build_report(results, log_figures=log_figures)
     with atomic_file(path) as tmp:
         tmp.write_text(text, encoding="utf-8")
     logger.info("wrote report %s (%.1f MB)", path, path.stat().st_size / 1e6)

@@ -17,6 +17,9 @@ References
 
 from __future__ import annotations
 
+import io
+import warnings
+
 import matplotlib
 
 matplotlib.use("Agg")
@@ -27,10 +30,11 @@ import pandas as pd  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.patches import Patch  # noqa: E402
 
+from geo3d.errors import Geo3dWarning  # noqa: E402
 from geo3d.io.output_frame import LENGTH_LABELS  # noqa: E402
 from geo3d.units import from_internal  # noqa: E402
 
-__all__ = ["OKABE_ITO", "facies_colour", "log_figure"]
+__all__ = ["OKABE_ITO", "LOG_FIGURE_DPI", "facies_colour", "log_figure", "log_figure_pngs"]
 
 #: Okabe & Ito (2008) colour-blind-safe palette.
 OKABE_ITO: dict[str, str] = {
@@ -58,6 +62,9 @@ _FLAG_STYLE = {
 
 
 _MAX_MARKS = 150
+
+#: Resolution of the per-boring log figures (written as PNG and embedded in the report).
+LOG_FIGURE_DPI = 110
 
 
 def facies_colour(code: int) -> str:
@@ -298,3 +305,51 @@ def _mark_checks(track_of, checks: pd.DataFrame, units, top: float, bottom: floa
             color=OKABE_ITO["vermillion"],
             bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.8},
         )
+
+
+def log_figure_pngs(
+    samples: pd.DataFrame,
+    intervals: pd.DataFrame,
+    *,
+    units=None,
+    checks: pd.DataFrame | None = None,
+) -> dict[str, bytes]:
+    """Draw :func:`log_figure` for every boring, as PNG bytes.
+
+    Parameters
+    ----------
+    samples
+        Per-sample table of the logs stage (every boring).
+    intervals
+        Composited intervals of the logs stage.
+    units
+        ``[units]`` of the site file: the figures show the declared units.
+    checks
+        Evaluated sensor checks of the site; each boring's failed checks are marked.
+
+    Returns
+    -------
+    dict of str to bytes
+        Boring id -> PNG at :data:`LOG_FIGURE_DPI`, in boring order.
+    """
+    pngs: dict[str, bytes] = {}
+    intervals_by = dict(tuple(intervals.groupby("boring_id", sort=True)))
+    empty = intervals.iloc[0:0]
+    for boring_id, log in samples.groupby("boring_id", sort=True):
+        own = None
+        if checks is not None and len(checks) and "boring_id" in checks:
+            own = checks[checks["boring_id"].astype(str) == str(boring_id)]
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", Geo3dWarning)
+            fig = log_figure(
+                log,
+                intervals_by.get(boring_id, empty),
+                boring_id=str(boring_id),
+                units=units,
+                checks=own,
+            )
+        buffer = io.BytesIO()
+        fig.savefig(buffer, format="png", dpi=LOG_FIGURE_DPI)
+        plt.close(fig)
+        pngs[str(boring_id)] = buffer.getvalue()
+    return pngs
