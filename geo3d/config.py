@@ -24,6 +24,7 @@ from os import PathLike
 from pathlib import Path
 from typing import Any, Literal
 
+import pyproj
 from pydantic import (
     BaseModel,
     ConfigDict,
@@ -36,7 +37,7 @@ from pydantic import (
 
 from geo3d.errors import CRSError, SiteFileError, SiteValidationError, UnitError, where
 from geo3d.facies import DEFAULT_CLASSES, FaciesClass, FaciesClasses
-from geo3d.units import check_unit, to_internal
+from geo3d.units import check_unit, length_unit_of, to_internal
 
 __all__ = [
     "SiteConfig",
@@ -467,10 +468,6 @@ class OutputSection(_Section):
     def _crs(cls, value: str) -> str:
         if not value.strip():
             return ""
-        import pyproj
-
-        from geo3d.io.output_frame import unit_of_axis
-
         try:
             crs = pyproj.CRS.from_user_input(value)
         except pyproj.exceptions.CRSError as exc:
@@ -479,10 +476,12 @@ class OutputSection(_Section):
         if not crs.is_projected:
             msg = f"{crs.name!r} is not a projected CRS; expected one in metres or feet"
             raise ValueError(msg)
-        try:
-            unit_of_axis(crs)
-        except CRSError as exc:
-            raise ValueError(str(exc)) from None
+        if length_unit_of(crs.axis_info[0].unit_conversion_factor) is None:
+            msg = (
+                f"the CRS {crs.name!r} has axes in {crs.axis_info[0].unit_name}; expected "
+                "metres, feet or US survey feet"
+            )
+            raise ValueError(msg)
         return value
 
 

@@ -197,10 +197,10 @@ def test_failed_sensor_check_flags_that_log_only(result, truth):
 
 def test_calibration_rests_on_the_slug_tests(result, truth):
     calibration = result.calibration
-    assert calibration["method"] == "slug_tests"
-    assert calibration["n_tests"] == len(truth["slug_tests"])
+    assert calibration.method == "slug_tests"
+    assert calibration.n_tests == len(truth["slug_tests"])
     # the generator's logs follow Hvorslev physics (b = 1, a = log10(gamma_w / F)) and its
     # slug tests carry errors of a few tens of percent: the fit must land near physics
     physics_a = np.log10(9.80665 / truth["probe"]["shape_factor_m"])
-    assert calibration["b"] == pytest.approx(1.0, abs=0.2)
-    assert calibration["a"] == pytest.approx(physics_a, abs=0.25)
+    assert calibration.b == pytest.approx(1.0, abs=0.2)
+    assert calibration.a == pytest.approx(physics_a, abs=0.25)

@@ -35,7 +35,8 @@ import pyproj
 import xarray as xr
 
 from geo3d.errors import CRSError
-from geo3d.units import factor, from_internal
+from geo3d.io.vector import metric_crs
+from geo3d.units import factor, from_internal, length_unit_of
 
 __all__ = ["OutputFrame", "crs_label", "unit_of_axis", "LENGTH_LABELS", "VOLUME_LABELS"]
 
@@ -74,10 +75,9 @@ def unit_of_axis(crs: pyproj.CRS) -> str:
     >>> unit_of_axis(pyproj.CRS("EPSG:2227"))
     'us_survey_ft'
     """
-    size = crs.axis_info[0].unit_conversion_factor
-    for unit in LENGTH_LABELS:
-        if math.isclose(size, factor(unit, "length"), rel_tol=1e-9):
-            return unit
+    unit = length_unit_of(crs.axis_info[0].unit_conversion_factor)
+    if unit is not None:
+        return unit
     msg = (
         f"the CRS {crs.name!r} has axes in {crs.axis_info[0].unit_name}; expected metres, feet "
         "or US survey feet"
@@ -193,8 +193,6 @@ class OutputFrame:
     @cached_property
     def is_scaling(self) -> bool:
         """True when the output CRS is the internal CRS with other axis units."""
-        from geo3d.io.vector import metric_crs
-
         return metric_crs(self.crs).equals(self.internal_crs)
 
     @cached_property

@@ -39,6 +39,7 @@ from geo3d.io.output_frame import OutputFrame
 from geo3d.io.tables import mapping_to_output_units, to_output_units
 from geo3d.logs.flags import FLAGS
 from geo3d.logs.process import LogResults
+from geo3d.logs.sensor_checks import in_declared_units
 from geo3d.logs.water_level import LEVEL_COLUMNS
 from geo3d.model import ModelResult
 from geo3d.report import figures as fg
@@ -573,8 +574,6 @@ def _flag_summary(samples: pd.DataFrame | None) -> str:
 
 
 def _sensor_summary(checks: pd.DataFrame | None, units: Any = None) -> str:
-    from geo3d.logs.sensor_checks import in_declared_units
-
     if checks is None or not len(checks):
         return _note("No sensor checks were given.")
     if "sensor" in checks and {"measured", "expected", "tolerance"} <= set(checks):

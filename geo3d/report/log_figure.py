@@ -32,6 +32,7 @@ from matplotlib.patches import Patch  # noqa: E402
 
 from geo3d.errors import Geo3dWarning  # noqa: E402
 from geo3d.io.output_frame import LENGTH_LABELS  # noqa: E402
+from geo3d.logs.sensor_checks import in_declared_units  # noqa: E402
 from geo3d.units import from_internal  # noqa: E402
 
 __all__ = ["OKABE_ITO", "LOG_FIGURE_DPI", "facies_colour", "log_figure", "log_figure_pngs"]
@@ -283,8 +284,6 @@ def _shade_gaps(ax, depth: np.ndarray, ec: np.ndarray) -> None:
 
 def _mark_checks(track_of, checks: pd.DataFrame, units, top: float, bottom: float) -> None:
     """Mark each failed sensor check on its sensor's track, with its values in declared units."""
-    from geo3d.logs.sensor_checks import in_declared_units
-
     status = checks["passed"].fillna(False).astype(bool) if "passed" in checks else None
     if status is None:
         return
