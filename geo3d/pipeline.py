@@ -276,7 +276,7 @@ def run_export(
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     site = results.site
-    chosen = set(site.config.output.formats if formats is None else formats)
+    chosen = set(site.config.output_options().formats if formats is None else formats)
     frame = OutputFrame.from_site(site)
     ds = results.dataset
     written: list[Path] = []
@@ -500,10 +500,9 @@ def _first_value(frame: pd.DataFrame, column: str) -> float:
 
 
 def _summary_value(summary: dict[str, Any], key: str) -> float:
-    value = summary.get(key)
     try:
-        return float(value)
-    except (TypeError, ValueError):
+        return float(summary[key])
+    except (KeyError, TypeError, ValueError):
         return float("nan")
 
 
@@ -625,7 +624,7 @@ def run(
             site = run_check(site_path)
         results = RunResults(site=site, timings=timings)
         _compute(results, planned, timer, n_realizations=n_realizations, progress=callback)
-        chosen_formats = list(site.config.output.formats if formats is None else formats)
+        chosen_formats = list(site.config.output_options().formats if formats is None else formats)
         written: list[Path] = []
         if "export" in planned:
             with timer.stage("export"):

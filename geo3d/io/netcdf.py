@@ -18,9 +18,10 @@ from __future__ import annotations
 
 import json
 import logging
-from collections.abc import Sequence
+from collections.abc import Hashable, Sequence
 from os import PathLike
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pyproj
@@ -86,6 +87,25 @@ def _plain_attr(value):
     return json.dumps(value, default=str)
 
 
+def _coordinates(out: xr.Dataset, xy_units: str, z_units: str) -> xr.Dataset:
+    """Give the coordinates their CF attributes (units as written)."""
+    for axis in ("x", "y"):
+        out[axis].attrs.update(
+            standard_name=f"projection_{axis}_coordinate",
+            long_name=f"{axis} of cell centre",
+            units=xy_units,
+            axis=axis.upper(),
+        )
+    out["z"].attrs.update(
+        long_name="elevation of cell centre", units=z_units, axis="Z", positive="up"
+    )
+    if "realization" in out.dims:
+        if "realization" not in out.coords:
+            out = out.assign_coords(realization=np.arange(out.sizes["realization"]))
+        out["realization"].attrs.update(long_name="realization number", units="1")
+    return out
+
+
 def to_cf(
     ds: xr.Dataset,
     *,
@@ -108,8 +128,7 @@ def to_cf(
     title
         Dataset title.
     frame
-        Output frame: ``x``, ``y`` in its CRS (and axis unit), ``z`` and lengths in its length
-        unit (see :meth:`OutputFrame.grid`); replaces ``crs``.
+        Output frame (:meth:`OutputFrame.grid`: CRS, axis and length units); replaces ``crs``.
 
     Returns
     -------
@@ -145,25 +164,7 @@ def to_cf(
         source="geo3d voxel model",
         crs_wkt=site_crs.to_wkt(),
     )
-    out["x"].attrs.update(
-        standard_name="projection_x_coordinate",
-        long_name="x of cell centre",
-        units=xy_units,
-        axis="X",
-    )
-    out["y"].attrs.update(
-        standard_name="projection_y_coordinate",
-        long_name="y of cell centre",
-        units=xy_units,
-        axis="Y",
-    )
-    out["z"].attrs.update(
-        long_name="elevation of cell centre", units=z_units, axis="Z", positive="up"
-    )
-    if "realization" in out.dims:
-        if "realization" not in out.coords:
-            out = out.assign_coords(realization=np.arange(out.sizes["realization"]))
-        out["realization"].attrs.update(long_name="realization number", units="1")
+    out = _coordinates(out, xy_units, z_units)
     for name in list(out.data_vars):
         da = out[name]
         attrs = {k: _plain_attr(v) for k, v in da.attrs.items()}
@@ -217,11 +218,11 @@ def write_netcdf(
     """
     path = Path(path)
     cf = to_cf(ds, crs=crs, facies_names=facies_names, title=title, frame=frame)
-    encoding = {}
+    encoding: dict[Hashable, dict[str, Any]] = {}
     for name, da in cf.data_vars.items():
         if name == "spatial_ref":
             continue
-        enc = {"zlib": True, "complevel": int(complevel)}
+        enc: dict[str, Any] = {"zlib": True, "complevel": int(complevel)}
         if da.dtype.kind == "f":
             enc["_FillValue"] = np.float32(np.nan) if da.dtype == np.float32 else np.nan
         elif str(name) == "facies_code":

@@ -22,6 +22,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from geo3d.geostats.crossval import CrossValidation
 from geo3d.io.output_frame import OutputFrame
 from geo3d.units import from_internal
 
@@ -227,7 +228,7 @@ def to_output_units(
         )
         numeric = pd.api.types.is_numeric_dtype(df[column])
         if quantity is not None and numeric and not pd.api.types.is_bool_dtype(df[column]):
-            out[column] = from_internal(df[column].to_numpy(float), unit, quantity)
+            out[column] = from_internal(df[column].to_numpy(float), str(unit), quantity)
         elif quantity is not None:
             continue
         if new != name:
@@ -260,7 +261,7 @@ def mapping_to_output_units(
         )
         number = isinstance(value, int | float | np.number) and not isinstance(value, bool)
         if quantity is not None and number:
-            out[new] = round(float(from_internal(float(value), unit, quantity)), 12)
+            out[new] = round(float(from_internal(float(value), str(unit), quantity)), 12)
         else:
             out[key] = value
     return out
@@ -338,7 +339,7 @@ def write_tables(
     volumes: pd.DataFrame | None = None,
     injection_schedule: pd.DataFrame | None = None,
     injection_summary: Mapping | None = None,
-    crossval: Mapping[str, object] | None = None,
+    crossval: Mapping[str, CrossValidation] | None = None,
     water_levels: pd.DataFrame | None = None,
     calibration: Mapping | None = None,
     frame: OutputFrame | None = None,
@@ -349,8 +350,8 @@ def write_tables(
     ----------
     out_dir
         Folder (created when missing).
-    length_unit, volume_unit
-        Output units.
+    length_unit, volume_unit, frame
+        Output units; an output frame (CRS and units) replaces them.
     intervals
         ``intervals.csv``.
     volumes
@@ -366,8 +367,6 @@ def write_tables(
         ``water_levels.csv``.
     calibration
         ``calibration.json``.
-    frame
-        The output frame (CRS and units); replaces ``length_unit`` and ``volume_unit``.
 
     Returns
     -------
@@ -396,13 +395,9 @@ def write_tables(
         payload = {"summary": summary, "schedule": schedule}
         written.append(write_json(payload, out_dir / "injection_plan.json"))
     if crossval:
-        samples, per_group, summaries = [], [], {}
-        for variable, result in crossval.items():
-            if getattr(result, "samples", None) is not None:
-                samples.append(result.samples.assign(variable=variable))
-            if getattr(result, "per_group", None) is not None:
-                per_group.append(result.per_group.assign(variable=variable))
-            summaries[variable] = getattr(result, "summary", {})
+        samples = [r.samples.assign(variable=v) for v, r in crossval.items()]
+        per_group = [r.per_group.assign(variable=v) for v, r in crossval.items()]
+        summaries = {v: r.summary for v, r in crossval.items()}
         if samples:
             table = pd.concat(samples, ignore_index=True)
             written.append(write_csv(table, out_dir / "crossval.csv", **units))

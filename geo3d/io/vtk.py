@@ -77,14 +77,15 @@ def _label(mesh, frame: OutputFrame | None, units: dict[str, str]) -> None:
 
 def _cell_sizes(ds: xr.Dataset) -> tuple[float, float, float]:
     attr = ds.attrs.get("cell_size")
-    defaults = (None, None, None)
+    defaults: list[float | None] = [None, None, None]
     if attr is not None:
-        values = [float(v) for v in np.atleast_1d(attr)]
-        defaults = tuple(values + [None] * (3 - len(values)))[:3]
-    return tuple(
+        values: list[float | None] = [float(v) for v in np.atleast_1d(attr)]
+        defaults = (values + [None] * (3 - len(values)))[:3]
+    dx, dy, dz = (
         axis_spacing(ds[name].values, name=name, default=default)
         for name, default in zip(("x", "y", "z"), defaults, strict=True)
     )
+    return dx, dy, dz
 
 
 def _cell_values(da: xr.DataArray) -> np.ndarray:
@@ -138,12 +139,12 @@ def model_to_image(
             float(ds["z"].values[0]) - dz / 2.0,
         ),
     )
-    for name, da in ds.data_vars.items():
+    for key, da in ds.data_vars.items():
         if set(da.dims) == {"z", "y", "x"}:
-            image.cell_data[str(name)] = _cell_values(da)
+            image.cell_data[str(key)] = _cell_values(da)
         elif include_realizations and set(da.dims) == {"realization", "z", "y", "x"}:
             for i in range(da.sizes["realization"]):
-                image.cell_data[f"{name}_{i:03d}"] = _cell_values(da.isel(realization=i))
+                image.cell_data[f"{key}_{i:03d}"] = _cell_values(da.isel(realization=i))
     if frame is not None:
         units = {str(n): str(ds[n].attrs.get("units", "")) for n in ds.data_vars}
         _label(image, frame, {"x, y, z": frame.coordinate_label, **units})
@@ -364,7 +365,7 @@ def water_table_surface(
     grid.point_data[name] = values.ravel(order="C")
     hidden = np.flatnonzero(~finite.ravel(order="C"))
     if hidden.size and hidden.size < values.size:
-        grid.hide_points(hidden)
+        grid.hide_points(hidden.tolist())
     _label(grid, frame, {} if frame is None else {"x, y, " + name: frame.coordinate_label})
     return grid
 

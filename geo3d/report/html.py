@@ -396,7 +396,7 @@ def _section_read_first(ctx: _Context) -> str:
 
 
 def _injection_points(ctx: _Context) -> list[tuple[float, float]]:
-    points = []
+    points: list[tuple[float, float]] = []
     for plan in ctx.results.injection.values():
         frame = plan.points
         if frame is None or not len(frame):
@@ -434,7 +434,7 @@ def _section_site(ctx: _Context) -> str:
             f"{_esc(ctx.crs_label)}.",
         )
     )
-    if n_borings:
+    if ctx.borings is not None and n_borings:
         columns = [c for c in ("boring_id", "x", "y", "ground_elev", "date") if c in ctx.borings]
         table = ctx.borings[columns].copy()
         intervals = ctx.intervals
@@ -808,14 +808,17 @@ def _section_maps(ctx: _Context) -> str:
     for key in order:
         grid = given[key]
         label = next((text for k, text, _ in _MAIN_MAPS if k == key), key.replace("_", " "))
+        units: str
+        vmin: float | None
+        vmax: float | None
         if "prob" in key:
             units, cmap, vmin, vmax = "probability", "cividis", 0.0, 1.0
             caption = f"{_esc(label)}: probability from the conditional simulations" + (
                 ", averaged over the column" if key.startswith("mean_prob_") else ""
             )
         else:
-            units = next((u for k, _, u in _MAIN_MAPS if k == key), None)
-            units = units or str(grid.attrs.get("units", "m"))
+            known_units = next((u for k, _, u in _MAIN_MAPS if k == key), None)
+            units = known_units or str(grid.attrs.get("units", "m"))
             units = ctx.length_unit if units in ("m", "length") else units
             cmap, vmax = "viridis", None
             vmin = 0.0 if "thick" in key else None

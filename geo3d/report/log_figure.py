@@ -146,41 +146,11 @@ def log_figure(
     _facies_track(ax_f, intervals_of_boring, shown["length"])
     ax_f.set_ylabel(f"depth ({LENGTH_LABELS.get(shown['length'], shown['length'])})")
 
-    handles = []
-    if "k_log" in s:
-        k = s["k_log"].to_numpy(dtype=float)
-        good = np.isfinite(k) & (k > 0)
-        ax_k.plot(np.where(good, k, np.nan), depth, color=OKABE_ITO["blue"], lw=0.7)
-        handles += _mark_flags(
-            ax_k,
-            depth,
-            np.where(good, k, np.nan),
-            s,
-            ("out_of_range_high", "out_of_range_low", "sensor_check_failed"),
-        )
-        if good.any():
-            ax_k.set_xscale("log")
-    ax_k.set_xlabel("log-derived K (m/s)")
-
-    pressure = shown["pressure"]
-    if "p_net" in s:
-        p_net = from_internal(s["p_net"].to_numpy(dtype=float), pressure, "pressure")
-        ax_net.plot(p_net, depth, color=OKABE_ITO["bluish_green"], lw=0.7)
-        _mark_flags(ax_net, depth, p_net, s, ("out_of_range_high", "out_of_range_low"))
-        ax_net.axvline(0.0, color="#888888", lw=0.5)
-    ax_net.set_xlabel(f"net injection pressure ({pressure})")
-    _pressure_track(ax_p, s, depth, pressure)
-    if "flow" in s:
-        flow = from_internal(s["flow"].to_numpy(dtype=float), shown["flow"], "flow")
-        ax_q.plot(flow, depth, color=OKABE_ITO["reddish_purple"], lw=0.7)
-        _mark_flags(ax_q, depth, flow, s, ("out_of_range_low",))
-    ax_q.set_xlabel(f"injection flow ({shown['flow']})")
-    if "ec" in s:
-        ec = from_internal(s["ec"].to_numpy(dtype=float), shown["ec"], "ec")
-        ax_ec.plot(ec, depth, color=OKABE_ITO["orange"], lw=0.7)
-        handles += _mark_flags(ax_ec, depth, ec, s, ("spike", "ionic"))
-        _shade_gaps(ax_ec, depth, ec)
-    ax_ec.set_xlabel(f"EC ({shown['ec']})")
+    handles = _k_track(ax_k, s, depth)
+    _net_pressure_track(ax_net, s, depth, shown["pressure"])
+    _pressure_track(ax_p, s, depth, shown["pressure"])
+    _flow_track(ax_q, s, depth, shown["flow"])
+    handles += _ec_track(ax_ec, s, depth, shown["ec"])
     if handles:
         ax_ec.legend(handles=handles, loc="lower right", fontsize=7)
     if checks is not None and len(checks) and depth.size:
@@ -194,6 +164,53 @@ def log_figure(
         ax.grid(True, color="#DDDDDD", lw=0.5)
     fig.suptitle(f"Boring {boring_id}")
     return fig
+
+
+def _k_track(ax, s: pd.DataFrame, depth: np.ndarray) -> list:
+    handles: list = []
+    if "k_log" in s:
+        k = s["k_log"].to_numpy(dtype=float)
+        good = np.isfinite(k) & (k > 0)
+        ax.plot(np.where(good, k, np.nan), depth, color=OKABE_ITO["blue"], lw=0.7)
+        handles += _mark_flags(
+            ax,
+            depth,
+            np.where(good, k, np.nan),
+            s,
+            ("out_of_range_high", "out_of_range_low", "sensor_check_failed"),
+        )
+        if good.any():
+            ax.set_xscale("log")
+    ax.set_xlabel("log-derived K (m/s)")
+    return handles
+
+
+def _net_pressure_track(ax, s: pd.DataFrame, depth: np.ndarray, unit: str) -> None:
+    if "p_net" in s:
+        p_net = from_internal(s["p_net"].to_numpy(dtype=float), unit, "pressure")
+        ax.plot(p_net, depth, color=OKABE_ITO["bluish_green"], lw=0.7)
+        _mark_flags(ax, depth, p_net, s, ("out_of_range_high", "out_of_range_low"))
+        ax.axvline(0.0, color="#888888", lw=0.5)
+    ax.set_xlabel(f"net injection pressure ({unit})")
+
+
+def _flow_track(ax, s: pd.DataFrame, depth: np.ndarray, unit: str) -> None:
+    if "flow" in s:
+        flow = from_internal(s["flow"].to_numpy(dtype=float), unit, "flow")
+        ax.plot(flow, depth, color=OKABE_ITO["reddish_purple"], lw=0.7)
+        _mark_flags(ax, depth, flow, s, ("out_of_range_low",))
+    ax.set_xlabel(f"injection flow ({unit})")
+
+
+def _ec_track(ax, s: pd.DataFrame, depth: np.ndarray, unit: str) -> list:
+    handles: list = []
+    if "ec" in s:
+        ec = from_internal(s["ec"].to_numpy(dtype=float), unit, "ec")
+        ax.plot(ec, depth, color=OKABE_ITO["orange"], lw=0.7)
+        handles = _mark_flags(ax, depth, ec, s, ("spike", "ionic"))
+        _shade_gaps(ax, depth, ec)
+    ax.set_xlabel(f"EC ({unit})")
+    return handles
 
 
 def _units(units) -> dict[str, str]:
