@@ -229,9 +229,17 @@ def site_summary(site) -> Any:
     table.add_column("value")
     samples = site.samples
     per_boring = samples.groupby("boring_id").size() if len(samples) else None
+    import pyproj
+
+    from geo3d.io.output_frame import OutputFrame, crs_label
+
     units = site.config.units
+    frame = OutputFrame.from_site(site)
+    length, unit = frame.length, frame.length_label
     table.add_row("folder", str(site.root))
-    table.add_row("CRS", f"{site.crs.name}")
+    table.add_row("CRS", crs_label(pyproj.CRS.from_user_input(site.config.site.crs)))
+    if site.config.output.crs:
+        table.add_row("output CRS", frame.label)
     table.add_row(
         "input units",
         f"{units.length}, {units.pressure} ({units.pressure_reference}), {units.flow}, {units.ec}",
@@ -246,19 +254,23 @@ def site_summary(site) -> Any:
             else ""
         ),
     )
-    table.add_row("depth range (m)", _range(samples["depth"]))
-    table.add_row("elevation range (m)", _range(samples["elev"]))
-    table.add_row("ground elevation (m)", _range(site.borings["ground_elev"]))
+    table.add_row(f"depth range ({unit})", _range(length(samples["depth"].to_numpy(float))))
+    table.add_row(f"elevation range ({unit})", _range(length(samples["elev"].to_numpy(float))))
+    ground = length(site.borings["ground_elev"].to_numpy(float))
+    table.add_row(f"ground elevation ({unit})", _range(ground))
     n_tests = site.dissipation["test_id"].nunique() if len(site.dissipation) else 0
     dtw = site.config.water.depth_to_water
-    water = f"{n_tests}" + ("" if isinstance(dtw, str) else f" (depth to water set: {dtw:g} m)")
+    water = f"{n_tests}" + (
+        "" if isinstance(dtw, str) else f" (depth to water set: {length(dtw):g} {unit})"
+    )
     table.add_row("dissipation tests", water)
     table.add_row("slug tests", str(len(site.slug_tests)))
     table.add_row("sensor checks", str(len(site.sensor_checks)))
     zones = ", ".join(map(str, site.zones["name"])) if len(site.zones) else "none"
     table.add_row("treatment zones", f"{len(site.zones)} ({zones})" if len(site.zones) else zones)
     source = site.config.files.boundary or "hull of the borings"
-    table.add_row("boundary area (m2)", f"{site.boundary.area:,.0f} ({source})")
+    area = frame.area(site.boundary.area)
+    table.add_row(f"boundary area ({frame.area_label})", f"{area:,.0f} ({source})")
     if site.dem is not None:
         table.add_row("DEM", f"{site.dem[0].shape[1]} x {site.dem[0].shape[0]} cells")
     return table
@@ -373,12 +385,20 @@ def _summary(results, *, title: str) -> None:
     """Print where the outputs are, the time per stage and the headline volumes."""
     from rich.table import Table
 
+    from geo3d.io.output_frame import OutputFrame
     from geo3d.pipeline import headline_volumes
     from geo3d.units import from_internal
 
     out = console()
     out.print(f"[bold green]{title}[/bold green]")
     out.print(f"Outputs in [bold]{results.out_dir.resolve()}[/bold]", highlight=False)
+    frame = OutputFrame.from_site(results.site)
+    out.print(
+        f"  coordinates in {frame.label}; lengths in {frame.length_label}, volumes in "
+        f"{frame.volume_label}",
+        markup=False,
+        highlight=False,
+    )
     files = [str(p) for p in results.outputs]
     shown = ", ".join(files[:12]) + (f" and {len(files) - 12} more" if len(files) > 12 else "")
     out.print(f"  {shown}", markup=False)
@@ -393,8 +413,8 @@ def _summary(results, *, title: str) -> None:
     headline = headline_volumes(results)
     if headline.empty:
         return
-    unit = results.site.config.output_options().volume_unit
-    table = Table(title=f"Headline volumes ({unit})", title_justify="left")
+    unit = frame.volume_unit
+    table = Table(title=f"Headline volumes ({frame.volume_label})", title_justify="left")
     for column in (
         "zone",
         "storage material",

@@ -26,6 +26,7 @@ from pathlib import Path
 from types import MappingProxyType
 from typing import Any, Literal
 
+import pyproj
 from pydantic import (
     BaseModel,
     ConfigDict,
@@ -39,7 +40,7 @@ from pydantic_core import ErrorDetails
 
 from geo3d.errors import CRSError, SiteFileError, SiteValidationError, UnitError, where
 from geo3d.facies import DEFAULT_CLASSES, FaciesClass, FaciesClasses
-from geo3d.units import check_unit, to_internal
+from geo3d.units import check_unit, length_unit_of, to_internal
 
 __all__ = [
     "SiteConfig",
@@ -117,8 +118,8 @@ class UnitsSection(_Section):
     )
     ec: str = Field("mS/m", description="Electrical conductivity: mS/m | uS/cm | S/m | mS/cm.")
     k: str = Field("m/s", description="Slug-test hydraulic conductivity: m/s | cm/s | m/d | ft/d.")
-    output_length: str = Field("m", description="Length unit of tables written for people.")
-    output_volume: str = Field("m3", description="Volume unit of tables written for people.")
+    output_length: str = Field("m", description="Length unit of every output.")
+    output_volume: str = Field("m3", description="Volume unit of every output.")
 
     @field_validator(*_UNIT_FIELDS)
     @classmethod
@@ -514,12 +515,38 @@ _OUTPUT_FORMATS: tuple[Literal["vtk", "geotiff", "gpkg", "netcdf", "csv", "repor
 
 
 class OutputSection(_Section):
-    """``[output]``: which outputs to write."""
+    """``[output]``: which outputs to write, and their CRS."""
 
     formats: list[Literal["vtk", "geotiff", "gpkg", "netcdf", "csv", "report"]] = Field(
         default_factory=lambda: list(_OUTPUT_FORMATS),
         description="Outputs to write: vtk, geotiff, gpkg, netcdf, csv, report.",
     )
+    crs: str = Field(
+        "",
+        description="CRS of every output (EPSG code or WKT, projected, axes in m, ft or US "
+        'survey ft); "" = the CRS declared in [site] crs.',
+    )
+
+    @field_validator("crs")
+    @classmethod
+    def _crs(cls, value: str) -> str:
+        if not value.strip():
+            return ""
+        try:
+            crs = pyproj.CRS.from_user_input(value)
+        except pyproj.exceptions.CRSError as exc:
+            msg = f"cannot read CRS {value[:60]!r} ({exc}); expected EPSG:nnnn or WKT"
+            raise ValueError(msg) from None
+        if not crs.is_projected:
+            msg = f"{crs.name!r} is not a projected CRS; expected one in metres or feet"
+            raise ValueError(msg)
+        if length_unit_of(crs.axis_info[0].unit_conversion_factor) is None:
+            msg = (
+                f"the CRS {crs.name!r} has axes in {crs.axis_info[0].unit_name}; expected "
+                "metres, feet or US survey feet"
+            )
+            raise ValueError(msg)
+        return value
 
 
 class LimitsSection(_Section):

@@ -42,6 +42,7 @@ from geo3d.geostats.variogram import VariogramFit
 from geo3d.io import geotiff, gpkg, netcdf, tables, vtk
 from geo3d.io.atomic import atomic_file
 from geo3d.io.outdir import safe_output_folder
+from geo3d.io.output_frame import OutputFrame
 from geo3d.logs.process import LogResults, process_logs
 from geo3d.model import ModelResult, VoxelModel, build_voxel_model
 from geo3d.report import write_report
@@ -261,7 +262,12 @@ def _relative(paths: Sequence[Path], root: Path) -> list[Path]:
 def _log_figures(results: RunResults) -> dict[str, bytes]:
     """Return the per-boring log figures of the run, drawing them on first use."""
     if not results.log_figures and results.logs is not None:
-        results.log_figures = log_figure_pngs(results.logs.samples, results.logs.intervals)
+        results.log_figures = log_figure_pngs(
+            results.logs.samples,
+            results.logs.intervals,
+            units=results.site.config.units,
+            checks=results.logs.sensor_checks,
+        )
     return results.log_figures
 
 
@@ -293,22 +299,23 @@ def run_export(
     out.mkdir(parents=True, exist_ok=True)
     site = results.site
     chosen = set(site.config.output_options().formats if formats is None else formats)
+    frame = OutputFrame.from_site(site)
     ds = results.dataset
     written: list[Path] = []
     if "csv" in chosen:
-        written += _write_tables(results, out)
+        written += _write_tables(results, out, frame)
     if "vtk" in chosen and ds is not None:
-        written += _write_vtk(results, ds, out)
+        written += _write_vtk(results, ds, out, frame)
     if "geotiff" in chosen and results.maps:
-        written += geotiff.write_maps(results.maps, out / "maps", crs=site.crs)
+        written += geotiff.write_maps(results.maps, out / "maps", frame=frame)
     if "gpkg" in chosen:
-        written.append(_write_gpkg(results, out / "site.gpkg"))
+        written.append(_write_gpkg(results, out / "site.gpkg", frame))
     if "netcdf" in chosen and ds is not None:
         written.append(
             netcdf.write_netcdf(
                 ds,
                 out / "model.nc",
-                crs=site.crs,
+                frame=frame,
                 facies_names=None if results.logs is None else list(results.logs.facies_names),
                 title=f"geo3d voxel model of {site.name}",
             )
@@ -316,11 +323,9 @@ def run_export(
     return written
 
 
-def _write_tables(results: RunResults, out: Path) -> list[Path]:
-    """Write the CSV/JSON tables and the per-boring log figures."""
+def _write_tables(results: RunResults, out: Path, frame: OutputFrame) -> list[Path]:
+    """Write the CSV/JSON tables (in the output frame) and the per-boring log figures."""
     logs, model = results.logs, results.model
-    options = results.site.config.output_options()
-    units = {"length_unit": options.length_unit, "volume_unit": options.volume_unit}
     summaries = {zone: plan.summary for zone, plan in results.injection.items()}
     written = tables.write_tables(
         out,
@@ -331,10 +336,10 @@ def _write_tables(results: RunResults, out: Path) -> list[Path]:
         crossval=None if model is None else model.crossval,
         water_levels=None if logs is None else logs.water_levels,
         calibration=None if logs is None else logs.calibration_record(),
-        **units,
+        frame=frame,
     )
     if logs is not None:
-        written.append(tables.write_csv(logs.samples, out / "samples.csv", **units))
+        written.append(tables.write_csv(logs.samples, out / "samples.csv", frame=frame))
         for boring_id, png in _log_figures(results).items():
             path = out / "figures" / "logs" / f"{boring_id}.png"
             with atomic_file(path) as tmp:
@@ -345,15 +350,15 @@ def _write_tables(results: RunResults, out: Path) -> list[Path]:
     return written
 
 
-def _write_vtk(results: RunResults, ds: xr.Dataset, out: Path) -> list[Path]:
-    """Write the model image, the boring polylines and the site multiblock."""
+def _write_vtk(results: RunResults, ds: xr.Dataset, out: Path, frame: OutputFrame) -> list[Path]:
+    """Write the model image, the boring polylines and the site multiblock (output frame)."""
     site, logs = results.site, results.logs
-    model_file = vtk.write_model_vti(ds, out / "model.vti")
+    model_file = vtk.write_model_vti(ds, out / "model.vti", frame=frame)
     written = [model_file]
     borings_file = None
     if logs is not None:
         borings_file = vtk.write_borings_vtp(
-            logs.samples, out / "borings.vtp", intervals=logs.intervals
+            logs.samples, out / "borings.vtp", intervals=logs.intervals, frame=frame
         )
         written.append(borings_file)
     vtm = vtk.write_site_vtm(
@@ -365,6 +370,7 @@ def _write_vtk(results: RunResults, ds: xr.Dataset, out: Path) -> list[Path]:
         water_table=_water_table_map(results, ds),
         model_file=model_file,
         borings_file=borings_file,
+        frame=frame,
     )
     written.append(vtm)
     written += sorted((out / "site").glob("*"))
@@ -397,7 +403,7 @@ def _variograms(variograms: dict[str, VariogramFit]) -> dict[str, Any]:
     return out
 
 
-def _write_gpkg(results: RunResults, path: Path) -> Path:
+def _write_gpkg(results: RunResults, path: Path, frame: OutputFrame) -> Path:
     site, logs = results.site, results.logs
     classes = results.facies_classes
     layers = {
@@ -408,6 +414,7 @@ def _write_gpkg(results: RunResults, path: Path) -> Path:
             intervals=None if logs is None else logs.intervals,
             water_levels=None if logs is None else logs.water_levels,
             transmissive=classes.names[classes.transmissive],
+            frame=frame,
         )
     }
     if site.zones is not None and len(site.zones):
@@ -417,13 +424,17 @@ def _write_gpkg(results: RunResults, path: Path) -> Path:
             volumes=results.volumes,
             plans=results.injection,
             storage=classes.names[classes.storage],
+            frame=frame,
         )
     if results.injection:
-        layers["injection_points"] = gpkg.injection_points_layer(results.injection, crs=site.crs)
+        layers["injection_points"] = gpkg.injection_points_layer(
+            results.injection, crs=site.crs, frame=frame
+        )
     main = {k: v for k, v in results.maps.items() if k in _CONTOURED}
     if main:
-        layers["contours"] = gpkg.contour_lines(main, crs=site.crs)
-    return gpkg.write_geopackage(path, layers)
+        layers["contours"] = gpkg.contour_lines(main, crs=site.crs, frame=frame)
+    descriptions = {name: gpkg.layer_description(name, frame) for name in layers}
+    return gpkg.write_geopackage(path, layers, descriptions=descriptions)
 
 
 #: Maps traced as contour lines in the GeoPackage.

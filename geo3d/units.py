@@ -22,7 +22,16 @@ import pint
 
 from geo3d.errors import UnitError
 
-__all__ = ["INTERNAL", "ALLOWED", "to_internal", "from_internal", "factor", "check_unit"]
+__all__ = [
+    "INTERNAL",
+    "ALLOWED",
+    "LENGTH_UNITS",
+    "to_internal",
+    "from_internal",
+    "factor",
+    "check_unit",
+    "length_unit_of",
+]
 
 #: Internal unit of each quantity.
 INTERNAL: dict[str, str] = {
@@ -117,6 +126,24 @@ def factor(unit: str, quantity: str) -> float:
         )
         raise UnitError(msg) from None
     return float(value)
+
+
+#: Length units a coordinate axis may have.
+LENGTH_UNITS: tuple[str, ...] = ("m", "ft", "us_survey_ft")
+
+
+def length_unit_of(metres: float) -> str | None:
+    """Return the length unit (of :data:`LENGTH_UNITS`) that is ``metres`` m long, else None.
+
+    Examples
+    --------
+    >>> length_unit_of(1200 / 3937)  # the US survey foot, NIST SP 811
+    'us_survey_ft'
+    """
+    for unit in LENGTH_UNITS:
+        if abs(factor(unit, "length") - metres) <= 1e-9 * metres:
+            return unit
+    return None
 
 
 def check_unit(unit: str, quantity: str) -> str:

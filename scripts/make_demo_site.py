@@ -6,8 +6,14 @@ with thin sand lenses, and a lower sand.  The script draws a random but reproduc
 subsurface (unit surfaces and a 3D anisotropic log10 K field from gstools), a planar water
 table, and then forward-models what
 a direct-push injection logging crew would have recorded: injection logs (pressure, flow and
-bulk EC every ~1.5 cm at a 2 cm/s push), dissipation tests, slug tests and sensor checks.  The
+bulk EC every ~1.5 cm at the 2 cm/s push of ASTM D8037 section 1.1), dissipation tests, slug
+tests and sensor checks.  Two anomalies are planted: a dense brine layer pooled at the base of
+the sand and gravel in four adjacent borings (bulk EC above the site's EC-K trend while K stays
+that of a clean sand) and a logger dropout (a run of missing EC readings in one boring).  The
 truth is saved under ``<out>/truth/`` so that tests can measure how close geo3d gets.
+
+The site lies in the open Baltic Sea (about 16.48 E, 55.60 N in WGS 84 / UTM zone 33N), far
+from any coast: its coordinates point at no real property.
 
 Usage::
 
@@ -31,6 +37,8 @@ References
 .. [2] Palacky, G.J. (1987) Resistivity characteristics of geologic targets. In Nabighian, M.N.
    (ed.) Electromagnetic Methods in Applied Geophysics, Vol. 1, SEG, 53-129.
 .. [3] Freeze, R.A., Cherry, J.A. (1979) Groundwater. Prentice-Hall, Table 2.2 (K ranges).
+.. [4] ASTM D8037/D8037M, Standard practice for direct push hydraulic logging for profiling
+   variations of permeability in soils. ASTM International, section 1.1 (push at 2 cm/s).
 """
 
 from __future__ import annotations
@@ -56,7 +64,9 @@ from geo3d.logs.hydraulic import GAMMA_W, net_pressure_for_k, shape_factor
 
 DEFAULT_SEED = 20261202
 EPSG = 32633  # WGS 84 / UTM zone 33N (projected, metres)
-ORIGIN = (433_200.0, 5_621_400.0)  # world coordinates of the local (0, 0) corner
+# world coordinates of the local (0, 0) corner: open water of the Baltic Sea (about 16.48 E,
+# 55.60 N), some 65 km from the nearest coast, so that the invented site is at no property
+ORIGIN = (593_000.0, 6_162_000.0)
 SITE_NAME = "Quillbrook Yard (invented demo site)"
 N_BORINGS = 25
 EXTENT = (200.0, 150.0)  # local x, y extent of the boring area, m
@@ -73,7 +83,7 @@ PROBE = {
     "flow_noise": 1.5,  # mL/min, 1 SD
     "ec_noise_relative": 0.03,
     "ec_noise_absolute": 0.3,  # mS/m
-    "push_speed": 0.02,  # m/s (common practice)
+    "push_speed": 0.02,  # m/s: 2 cm/s, ASTM D8037 section 1.1
     "sample_interval": 0.75,  # s, so ~1.5 cm between samples at 2 cm/s
     "rod_length": 1.2,  # m; the push pauses at each rod change
     "pump_hold_fraction": 0.97,  # the pump is held at this fraction of the limit
@@ -269,9 +279,9 @@ BOUNDARY_LOCAL = [
 ]
 
 
-def zone_polygons(xy: np.ndarray, ionic_index: int) -> list[Polygon]:
-    """Two treatment-zone polygons (local m): one around the ionic boring, one elsewhere."""
-    cx, cy = xy[ionic_index]
+def zone_polygons(xy: np.ndarray, brine_index: int) -> list[Polygon]:
+    """Two treatment-zone polygons (local m): one around the central brine boring, one elsewhere."""
+    cx, cy = xy[brine_index]
     zone_a = Polygon(
         [(cx - 26, cy - 20), (cx + 24, cy - 23), (cx + 28, cy + 18), (cx - 22, cy + 22)]
     )
@@ -302,9 +312,23 @@ class BoringPlan:
     start: pd.Timestamp
     set_flow: float
     test_depths: list[float]
-    ionic: tuple[float, float] | None = None
-    spike_depth: float | None = None
+    brine: tuple[float, float] | None = None  # top and bottom depth of the brine layer
+    dropout: tuple[float, float] | None = None  # depths between which the EC logger drops out
     flow_drift: float = 0.0  # recorded flow reads low by this fraction at the end of the log
+
+
+#: Bulk EC added by the brine (mS/m): from its top to its base, where the densest brine pools.
+BRINE_EC = (45.0, 95.0)
+BRINE_TAPER = 0.15  # m, over which the brine's EC fades in at its top and out at its base
+
+
+def brine_ec(depth: np.ndarray, top: float, bottom: float) -> np.ndarray:
+    """Bulk EC added by a dense brine layer between two depths (more saline towards its base)."""
+    depth = np.asarray(depth, dtype=float)
+    towards_base = np.clip((depth - top) / (bottom - top), 0.0, 1.0)
+    added = BRINE_EC[0] + (BRINE_EC[1] - BRINE_EC[0]) * towards_base
+    taper = np.clip(np.minimum(depth - top, bottom - depth) / BRINE_TAPER + 0.5, 0.0, 1.0)
+    return added * taper
 
 
 def atmospheric_pressure(timestamp: pd.Timestamp, day_levels: dict[str, float]) -> float:
@@ -432,18 +456,15 @@ def simulate_log(
     moisture = np.where(saturated, 1.0, 0.55 + 0.45 * _vadose_fraction(depth, plan.depth_to_water))
     ec = ec_sat * moisture
     truth_boring: dict = {}
-    if plan.ionic is not None:
-        top, bottom = plan.ionic
-        taper = np.clip(np.minimum(depth - top, bottom - depth) / 0.15 + 0.5, 0.0, 1.0)
-        ec = ec + 70.0 * taper  # injected-fluid (ionic) pore water raises bulk EC
+    if plan.brine is not None:
+        ec = ec + brine_ec(depth, *plan.brine)
     ec = ec * (1 + rng.normal(0, PROBE["ec_noise_relative"], n))
     ec = ec + rng.normal(0, PROBE["ec_noise_absolute"], n)
-    if plan.spike_depth is not None:
-        j = int(np.searchsorted(depth, plan.spike_depth))
-        ec[j - 1 : j + 2] += np.array([310.0, 520.0, 270.0])  # metal contact
-        truth_boring["spike_depths"] = [float(np.round(v, 3)) for v in depth[j - 1 : j + 2]]
-        truth_boring["spike_depth"] = float(np.round(depth[j], 3))
     ec = np.clip(ec, 0.1, None)
+    if plan.dropout is not None:
+        lost = (depth >= plan.dropout[0]) & (depth <= plan.dropout[1])
+        ec[lost] = np.nan  # the EC logger recorded nothing: empty cells in the file
+        truth_boring["dropout_samples"] = int(lost.sum())
 
     log = pd.DataFrame(
         {
@@ -608,7 +629,7 @@ def site_toml(*, las_id: str, day_levels: dict[str, float]) -> str:
 
 [site]
 name = "{SITE_NAME}"
-crs = "EPSG:{EPSG}"               # WGS 84 / UTM zone 33N (projected, metres)
+crs = "EPSG:{EPSG}"               # WGS 84 / UTM zone 33N (projected, metres); open water
 
 [units]
 length = "m"                      # m | ft | us_survey_ft  (coordinates, elevations, depths)
@@ -617,8 +638,8 @@ pressure_reference = "absolute"   # absolute | gauge  (what the logger records)
 flow = "mL/min"                   # mL/min | L/min | gal/min (US) | m3/s | L/s
 ec = "mS/m"                       # mS/m | uS/cm | S/m | mS/cm
 k = "m/s"                         # slug-test K: m/s | cm/s | m/d | ft/d
-output_length = "m"               # units used in tables written for people: m | ft
-output_volume = "m3"              # m3 | L | gal (US)
+output_length = "m"               # lengths in every output: m | ft | us_survey_ft
+output_volume = "m3"              # volumes in every output: m3 | L | gal (US) | ft3
 
 [files]
 borings = "borings.csv"           # boring_id, x, y, ground_elev, date
@@ -745,6 +766,7 @@ target = "transmissive"           # transmissive | all  (material to treat insid
 
 [output]
 formats = ["vtk", "geotiff", "gpkg", "netcdf", "csv", "report"]
+crs = ""                          # "" = every output in [site] crs
 
 [limits]
 max_cells = 200000000             # refuse a voxel grid of more cells than this
@@ -869,11 +891,15 @@ def build_demo_site(out: Path, *, seed: int = DEFAULT_SEED, write_truth_grid: bo
     # special borings
     centre = np.array(EXTENT) / 2
     order_from_centre = np.argsort(np.hypot(*(xy - centre).T))
-    ionic_idx = int(order_from_centre[3])
-    spike_idx = int(order_from_centre[9])
+    brine_idx = int(order_from_centre[3])
+    # the brine borings: the central one and its three nearest neighbours
+    nearest = np.argsort(np.hypot(*(xy - xy[brine_idx]).T))
+    brine_set = [int(i) for i in nearest[:4]]
+    dropout_idx = int(order_from_centre[9])
     failed_idx = int(order_from_centre[14])
     las_idx = int(order_from_centre[6])
-    no_test = set(plan_rng.choice(np.delete(np.arange(N_BORINGS), ionic_idx), 4, replace=False))
+    assert dropout_idx not in brine_set and las_idx != dropout_idx
+    no_test = set(plan_rng.choice(np.delete(np.arange(N_BORINGS), brine_idx), 4, replace=False))
 
     plans: list[BoringPlan] = []
     for i, bid in enumerate(ids):
@@ -898,13 +924,21 @@ def build_demo_site(out: Path, *, seed: int = DEFAULT_SEED, write_truth_grid: bo
             set_flow=float(np.round(plan_rng.uniform(250, 350) / 5) * 5),
             test_depths=tests,
         )
-        if i == ionic_idx:
+        if i in brine_set:
+            # pooled on the silty sand: thickest at the central boring, thinner away from it
+            sand_base_depth = float(ground[i] - surf["sand_base"][i])
+            distance = float(np.hypot(*(xy[i] - xy[brine_idx])))
+            thickness = float(np.round(np.clip(1.4 - 0.012 * distance, 0.8, 1.4), 1))
+            # its EC fades out over the last BRINE_TAPER / 2 above the silty sand, which the
+            # brine does not enter
+            bottom = float(np.round(sand_base_depth - BRINE_TAPER / 2, 2))
+            plan.brine = (round(bottom - thickness, 2), bottom)
+            assert plan.brine[0] > dtw[i] + 1.0, "the brine layer must lie below the water table"
+        if i == dropout_idx:
+            # about 1 m without EC in the saturated sand and gravel
             sand_base_depth = ground[i] - surf["sand_base"][i]
-            top = float(np.round(dtw[i] + 1.0, 1))
-            plan.ionic = (top, float(np.round(min(top + 2.5, sand_base_depth - 0.4), 1)))
-        if i == spike_idx:
-            sand_base_depth = ground[i] - surf["sand_base"][i]
-            plan.spike_depth = float(np.round((dtw[i] + sand_base_depth) / 2 + 0.37, 2))
+            start = float(np.round((dtw[i] + sand_base_depth) / 2 - 0.5, 2))
+            plan.dropout = (start, round(start + 1.0, 2))
         if i == failed_idx:
             plan.flow_drift = 0.12
         plans.append(plan)
@@ -986,7 +1020,7 @@ def build_demo_site(out: Path, *, seed: int = DEFAULT_SEED, write_truth_grid: bo
     gpd.GeoDataFrame({"name": ["Quillbrook Yard boundary"]}, geometry=[boundary], crs=crs).to_file(
         out / "boundary.geojson", driver="GeoJSON", COORDINATE_PRECISION=2
     )
-    zones_local = zone_polygons(xy, ionic_idx)
+    zones_local = zone_polygons(xy, brine_idx)
     zones = gpd.GeoDataFrame(
         {
             "name": ["Tansy Lane source area", "Brookside plume"],
@@ -1038,8 +1072,7 @@ def build_demo_site(out: Path, *, seed: int = DEFAULT_SEED, write_truth_grid: bo
             "log10_k_range": [round(low, 3), round(high, 3)],
             "ec_saturated_base_mS_m": u["ec"],
         }
-    ionic = plans[ionic_idx]
-    spike_id = plans[spike_idx].boring_id
+    dropout = plans[dropout_idx]
     result = {
         "site": SITE_NAME,
         "crs": f"EPSG:{EPSG}",
@@ -1065,7 +1098,7 @@ def build_demo_site(out: Path, *, seed: int = DEFAULT_SEED, write_truth_grid: bo
         f"-{EC_FIELD_LIMIT}, {EC_FIELD_LIMIT})) of the unit, r = (log10_k - log10_k_mean) / "
         "log10_k_sd (in a sand lens r = field - lens_threshold - 0.5); above the water table "
         "times a moisture factor 0.55 + 0.45 * vadose_fraction(depth) (see the generator); plus "
-        "the ionic anomaly; sensor noise 3 % + 0.3 mS/m",
+        "the brine's EC in the brine layers; sensor noise 3 % + 0.3 mS/m",
         "hydrofacies": {
             "codes": {"storage": 0, "transitional": 1, "transmissive": 2},
             "thresholds_log10_k": [-7.0, -5.0],
@@ -1080,17 +1113,25 @@ def build_demo_site(out: Path, *, seed: int = DEFAULT_SEED, write_truth_grid: bo
         "probe": {**PROBE, "shape_factor_m": round(f_shape, 6)},
         "dissipation_tests": truth_tests,
         "slug_tests": slug_truth,
-        "ionic": {
-            "boring_id": ionic.boring_id,
-            "top_depth": ionic.ionic[0],
-            "bottom_depth": ionic.ionic[1],
-            "ec_added_mS_m": 70.0,
+        "brine": {
+            "description": "dense brine pooled at the base of the sand and gravel: bulk EC "
+            "above the site's EC-K trend, K unchanged",
+            "borings": {
+                plans[i].boring_id: {
+                    "top_depth": plans[i].brine[0],
+                    "bottom_depth": plans[i].brine[1],
+                }
+                for i in brine_set
+            },
+            "central_boring": plans[brine_idx].boring_id,
+            "ec_added_mS_m_top_to_base": list(BRINE_EC),
+            "taper_m": BRINE_TAPER,
         },
-        "spike": {
-            "boring_id": spike_id,
-            "depth": truth_borings[spike_id]["spike_depth"],
-            "depths": truth_borings[spike_id]["spike_depths"],
-            "ec_added_mS_m": [310.0, 520.0, 270.0],
+        "ec_dropout": {
+            "boring_id": dropout.boring_id,
+            "top_depth": dropout.dropout[0],
+            "bottom_depth": dropout.dropout[1],
+            "n_samples": truth_borings[dropout.boring_id]["dropout_samples"],
         },
         "sensor_check_failed": {
             "boring_id": failed_id,

@@ -116,7 +116,7 @@ def test_run_end_to_end_on_the_mini_site(mini_site, tmp_path):
         main, ["run", str(mini_site), "-o", str(out), "--realizations", "2", "--no-progress"]
     )
     assert result.exit_code == 0, result.output
-    assert "Run complete." in result.output and "Headline volumes (m3)" in result.output
+    assert "Run complete." in result.output and "Headline volumes (m\u00b3)" in result.output
     check_outputs(out, pyproj.CRS("EPSG:32631"), realizations=2)
 
 

@@ -52,6 +52,7 @@ DEFERRED = {
     ("geo3d.cli", "geo3d.config"),
     ("geo3d.cli", "geo3d.io.atomic"),
     ("geo3d.cli", "geo3d.units"),
+    ("geo3d.cli", "geo3d.io.output_frame"),
     ("geo3d.cli", "geo3d.errors"),
     ("geo3d.cli", "geo3d"),
     ("geo3d.report.html", "geo3d.report.view3d"),

@@ -1,9 +1,9 @@
 """The logs stage on the demo site, measured against the demo's synthetic truth.
 
 The demo site (demo_site/, made by scripts/make_demo_site.py) is invented; its truth
-(demo_site/truth/truth.json and truth.nc) records the water table, the injected-fluid (ionic)
-zone, the metal-contact spike and the true log10 K field, so these tests measure how close the
-logs stage gets.
+(demo_site/truth/truth.json and truth.nc) records the water table, the dense brine layers
+(EC above the site's EC-K trend), the run of missing EC (a logger dropout) and the true log10 K
+field, so these tests measure how close the logs stage gets.
 """
 
 import json
@@ -59,25 +59,50 @@ def test_water_table_gradient_and_direction(result, truth):
     assert abs(result.water_table.flow_direction_deg - true["flow_direction_deg"]) < 10.0
 
 
-def test_ionic_zone_is_flagged_there_and_nowhere_else(result, truth):
-    zone = truth["ionic"]
+def test_brine_layers_are_flagged_there_and_nowhere_else(result, truth):
+    # the brine's EC sits above the site's EC-K trend: the EC-above-trend flag (``ionic``)
     s = result.samples
-    in_boring = s["boring_id"] == zone["boring_id"]
-    # the anomaly tapers over 0.15 m at each end (generator); allow one taper on each side
-    inside = in_boring & s["depth"].between(zone["top_depth"] - 0.15, zone["bottom_depth"] + 0.15)
-    core = in_boring & s["depth"].between(zone["top_depth"] + 0.15, zone["bottom_depth"] - 0.15)
-    transmissive = s["log10_k"] >= -5.0
-    assert s.loc[core & transmissive, "ionic"].mean() > 0.8
+    inside = np.zeros(len(s), dtype=bool)
+    for boring_id, layer in truth["brine"]["borings"].items():
+        in_boring = (s["boring_id"] == boring_id).to_numpy()
+        top, bottom = layer["top_depth"], layer["bottom_depth"]
+        # the anomaly tapers over 0.15 m at each end (generator); allow one taper each side
+        inside |= in_boring & s["depth"].between(top - 0.15, bottom + 0.15).to_numpy()
+        core = in_boring & s["depth"].between(top + 0.15, bottom - 0.15).to_numpy()
+        transmissive = (s["log10_k"] >= -5.0).to_numpy()
+        assert s.loc[core & transmissive, "ionic"].mean() > 0.8, boring_id
     assert not s.loc[~inside, "ionic"].any()
 
 
-def test_spike_is_flagged_at_its_depths_and_nowhere_else_significant(result, truth):
-    spike = truth["spike"]
+def test_ec_dropout_is_missing_not_zero(result, truth):
+    gap = truth["ec_dropout"]
     s = result.samples
-    at = (s["boring_id"] == spike["boring_id"]) & s["depth"].round(3).isin(spike["depths"])
-    assert at.sum() == len(spike["depths"]) and s.loc[at, "spike"].all()
-    # elsewhere: at most 1 in 2000 samples (natural EC layering mistaken for a contact)
-    assert s.loc[~at, "spike"].mean() < 5e-4
+    at = (s["boring_id"] == gap["boring_id"]) & s["depth"].between(
+        gap["top_depth"], gap["bottom_depth"]
+    )
+    assert at.sum() == gap["n_samples"]
+    # missing EC stays missing: never a zero, never flagged as a spike or above the trend
+    assert s.loc[at, "ec"].isna().all()
+    assert not s.loc[at, ["spike", "ionic"]].any().any()
+    assert (s["ec"].dropna() > 0).all()
+    # K is still logged through the gap (pressure and flow were recorded)
+    assert s.loc[at, "log10_k"].notna().mean() > 0.9
+    # intervals inside the gap carry no EC and say so; their K is kept
+    iv = result.intervals
+    within = (
+        (iv["boring_id"] == gap["boring_id"])
+        & (iv["top"] >= gap["top_depth"])
+        & (iv["bottom"] <= gap["bottom_depth"])
+    )
+    assert within.sum() >= 4
+    assert iv.loc[within, "ec"].isna().all() and (iv.loc[within, "n_ec"] == 0).all()
+    assert iv.loc[within, "log10_k"].notna().all()
+
+
+def test_spikes_are_rare_in_the_clean_logs(result):
+    # the demo plants no EC spike: at most 1 in 2000 samples (natural EC layering mistaken
+    # for a spike, common practice for a Hampel filter at k = 4)
+    assert result.samples["spike"].mean() < 5e-4
 
 
 def _true_log10_k(x, y, z):
@@ -143,10 +168,13 @@ def test_mixture_finds_the_three_hydrofacies_of_the_demo(result, truth):
     print(f"mixture classes {counts}, threshold classes", np.bincount(thresholds[both]).tolist())
     assert all(n > 200 for n in counts.values()), counts
     # Agreement with the threshold classes (storage < -7 <= transitional < -5 <= transmissive,
-    # common practice): measured 0.976 of 2789 intervals overall, and 0.983 (storage), 0.964
-    # (transitional) and 0.975 (transmissive) within each threshold class on the committed
-    # demo. The mixture also weighs EC, so intervals near a threshold (the sand lenses' K
-    # straddles 1e-5 m/s, the tightest sands reach the silty sand's K) may go either way: floors
+    # common practice): measured 0.958 of 2783 intervals overall, and 0.983 (storage), 0.942
+    # (transitional) and 0.946 (transmissive) within each threshold class on the committed
+    # demo (the brine layers' intervals that the EC-above-trend flag marks are classed by K
+    # alone; the few at the sand's base that it does not mark weigh on the transitional and
+    # transmissive classes). The mixture also weighs EC, so intervals near a threshold (the sand
+    # lenses' K straddles 1e-5 m/s, the tightest sands reach the silty sand's K) may go either
+    # way: floors
     # of 0.9 overall and 0.85 per class leave room for that, and still fail when a population
     # is merged into another or split across two (a trial variant of the demo, whose censored
     # storage intervals sit on thin strips at their resolution bounds, gave a broad component

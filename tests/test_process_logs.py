@@ -112,8 +112,10 @@ def test_no_dissipation_and_no_given_level_is_refused(mini_site):
 def test_log_figure_draws_every_panel(mini_results):
     s, iv = mini_results.samples, mini_results.intervals
     fig = log_figure(s[s["boring_id"] == "B2"], iv[iv["boring_id"] == "B2"], boring_id="B2")
-    assert len(fig.axes) == 5
-    assert fig.axes[2].get_xscale() == "log"
+    # tracks: hydrofacies, K, net pressure, recorded pressure, flow, EC
+    assert len(fig.axes) == 6
+    assert fig.axes[1].get_xscale() == "log"
+    assert fig.axes[4].get_xlabel() == "injection flow (mL/min)"
     assert fig._suptitle.get_text() == "Boring B2"
     # Okabe & Ito (2008) palette: vermillion for the lowest-K class, blue for the highest
     assert facies_colour(0) == "#D55E00" and facies_colour(-1) == "#BBBBBB"

@@ -40,9 +40,10 @@ def test_experimental_vertical_and_horizontal_by_hand():
     )
     values = np.array([0.0, 1.0, 3.0, 2.0, 2.0, 7.0])
     groups = np.array(["a", "a", "a", "b", "b", "b"])
-    vert = experimental_vertical(coords, values, groups, lag=1.5, max_lag=3.0)
-    # Bin (0, 1.5]: pairs (0,1) d1 sq1, (1,2) d1 sq4, (b0,b1) d1.05 sq0 -> gamma 5/6.
-    # Bin (1.5, 3]: pair (0,2) d2 sq9 -> gamma 4.5; the 3.95 and 5 m pairs are beyond max_lag.
+    vert = experimental_vertical(coords, values, groups, lag=1.0, max_lag=3.0)
+    # Bins centred on multiples of the lag: (0, 0.5], (0.5, 1.5], (1.5, 2.5], (2.5, 3].
+    # Bin (0.5, 1.5]: pairs (0,1) d1 sq1, (1,2) d1 sq4, (b0,b1) d1.05 sq0 -> gamma 5/6.
+    # Bin (1.5, 2.5]: pair (0,2) d2 sq9 -> gamma 4.5; the 3.95 and 5 m pairs are beyond max_lag.
     np.testing.assert_allclose(vert["gamma"], [5 / 6, 4.5])
     np.testing.assert_allclose(vert["lag"], [(1 + 1 + 1.05) / 3, 2.0])
     assert vert["n_pairs"].tolist() == [3, 1]

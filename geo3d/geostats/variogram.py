@@ -136,7 +136,8 @@ def experimental_vertical(
     coords, values, groups
         Samples: ``(n, 3)`` x, y, z, ``(n,)`` values and ``(n,)`` boring labels.
     lag
-        Bin width (m) of the elevation difference.
+        Bin width (m) of the elevation difference; bins are centred on its multiples
+        (``(0, lag/2], (lag/2, 3 lag/2], ...``).
     max_lag
         Largest elevation difference used (m).
 
@@ -162,7 +163,10 @@ def experimental_vertical(
         sqs.append(pdist(values[sel, None], "sqeuclidean"))
     if not dists:
         return pd.DataFrame({c: np.array([], dtype=float) for c in _COLUMNS})
-    edges = np.arange(0.0, max_lag + lag * 0.5, lag)
+    # Bins centred on multiples of the lag: composited intervals sit at a regular spacing, so
+    # their elevation differences are multiples of it; on bin edges, the last bit of rounding
+    # (the same site in feet or in metres) would decide the bin.
+    edges = np.concatenate([[0.0], np.arange(0.5 * lag, max_lag, lag)])
     if edges[-1] < max_lag:
         edges = np.append(edges, max_lag)
     return _bin_pairs(np.concatenate(dists), np.concatenate(sqs), edges)

@@ -3,7 +3,8 @@
 A map is an :class:`xarray.DataArray` with dims ``("y", "x")`` whose coordinates are cell
 centres, ``x`` and ``y`` ascending, in the site CRS.  A GeoTIFF stores rows from north to south
 and its geotransform points at the upper-left *edge* of the upper-left cell, so the rows are
-flipped and the origin is moved half a cell out from the first centre.  Values are written as
+flipped and the origin is moved half a cell out from the first centre.  :func:`write_maps` with
+an output frame writes the maps in the output CRS and length unit.  Values are written as
 float32, NaN outside the site (and NaN declared as nodata), one band per file with its
 description and units.
 
@@ -28,6 +29,7 @@ import xarray as xr
 from rasterio.transform import Affine
 
 from geo3d.errors import CRSError, GeometryError
+from geo3d.io.output_frame import OutputFrame
 
 __all__ = ["axis_spacing", "map_transform", "write_geotiff", "write_maps"]
 
@@ -195,6 +197,7 @@ def write_maps(
     out_dir: str | PathLike,
     *,
     crs=None,
+    frame: OutputFrame | None = None,
 ) -> list[Path]:
     """Write every map of a dict as ``<name>.tif`` in a folder.
 
@@ -206,6 +209,9 @@ def write_maps(
         Folder (created when missing).
     crs
         Site CRS; defaults to each map's ``attrs["crs"]``.
+    frame
+        Output frame: the maps (in internal coordinates and units) are written in its CRS and
+        lengths in its length unit (see :meth:`OutputFrame.grid`); replaces ``crs``.
 
     Returns
     -------
@@ -214,4 +220,7 @@ def write_maps(
     """
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
+    if frame is not None:
+        maps = {name: frame.grid(da) for name, da in maps.items()}
+        crs = frame.crs
     return [write_geotiff(da, out_dir / f"{name}.tif", crs=crs) for name, da in maps.items()]

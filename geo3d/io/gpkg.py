@@ -9,6 +9,11 @@ All layers go in one ``site.gpkg`` in the site CRS:
 * ``contours`` - contour lines of the 2D maps, one LineString per connected line, with the map
   name, the level and its units.
 
+Given an output frame (:class:`~geo3d.io.output_frame.OutputFrame`), every layer is written in
+the output CRS, and each field holding a length or a volume is converted to the output unit and
+carries it in its name (``depth_to_water_ft``, ``total_bulk_volume_gal``); each layer has a
+description naming its CRS and units.  Without a frame, layers stay in the internal CRS and SI.
+
 Contours are traced by contourpy (the marching-squares library matplotlib uses); NaN cells
 outside the site are masked, so lines stop at the site edge.
 
@@ -36,9 +41,13 @@ import xarray as xr
 from matplotlib.ticker import MaxNLocator
 
 from geo3d.errors import GeometryError
+from geo3d.io.output_frame import OutputFrame
+from geo3d.io.tables import to_output_units
 from geo3d.logs.flags import FLAGS
 
 __all__ = [
+    "in_frame",
+    "layer_description",
     "boring_summary",
     "zones_layer",
     "injection_points_layer",
@@ -50,6 +59,45 @@ __all__ = [
 logger = logging.getLogger(__name__)
 
 
+def in_frame(layer: gpd.GeoDataFrame, frame: OutputFrame | None) -> gpd.GeoDataFrame:
+    """Return a layer (internal CRS and SI) in an output frame's CRS and units.
+
+    Parameters
+    ----------
+    layer
+        Layer in the internal CRS, attributes in SI (see :func:`geo3d.io.tables.output_name`
+        for which fields are lengths and volumes).
+    frame
+        Output frame; None returns the layer unchanged.
+
+    Returns
+    -------
+    geopandas.GeoDataFrame
+        Geometry in the output CRS; length and volume fields converted and renamed with their
+        unit, coordinate fields ``x``, ``y`` in the output CRS.
+    """
+    if frame is None:
+        return layer
+    moved = frame.layer(layer)
+    column = moved.geometry.name
+    table = to_output_units(pd.DataFrame(moved.drop(columns=column)), frame=frame)
+    return gpd.GeoDataFrame(table, geometry=moved.geometry.to_numpy(), crs=frame.crs)
+
+
+def layer_description(name: str, frame: OutputFrame) -> str:
+    """Say what a layer holds and in which CRS and units."""
+    what = {
+        "borings": "borings with summary attributes",
+        "zones": "treatment zones with their volumes and injection-plan figures",
+        "injection_points": "planned injection points",
+        "contours": "contour lines of the 2D maps",
+    }.get(name, name)
+    return (
+        f"geo3d {what}; coordinates in {frame.label}; lengths in {frame.length_label}, "
+        f"volumes in {frame.volume_label} (as the field names say); K in m/s"
+    )
+
+
 def boring_summary(
     borings: pd.DataFrame,
     *,
@@ -58,6 +106,7 @@ def boring_summary(
     intervals: pd.DataFrame | None = None,
     water_levels: pd.DataFrame | None = None,
     transmissive: str = "transmissive",
+    frame: OutputFrame | None = None,
 ) -> gpd.GeoDataFrame:
     """Summarise each boring as a point with its key attributes.
 
@@ -76,6 +125,8 @@ def boring_summary(
         Dissipation-test water levels (``boring_id``, ``depth_to_water``).
     transmissive
         Name of the transmissive hydrofacies.
+    frame
+        Output frame (see :func:`in_frame`); None keeps the internal CRS and metres.
 
     Returns
     -------
@@ -119,7 +170,7 @@ def boring_summary(
         thick = (ints["bottom"] - ints["top"]).where(ints["facies"].astype(str) == transmissive, 0)
         out["transmissive_thickness"] = key.map(thick.groupby(ints["boring_id"]).sum()).fillna(0)
     geometry = gpd.points_from_xy(out["x"], out["y"])
-    return gpd.GeoDataFrame(out, geometry=geometry, crs=crs)
+    return in_frame(gpd.GeoDataFrame(out, geometry=geometry, crs=crs), frame)
 
 
 #: Volume columns carried per facies, and those also carried with their P10/P50/P90.
@@ -163,6 +214,7 @@ def zones_layer(
     volumes: pd.DataFrame | None = None,
     plans: Mapping[str, object] | None = None,
     storage: str = "storage",
+    frame: OutputFrame | None = None,
 ) -> gpd.GeoDataFrame:
     """Join each treatment zone to its volumes and its injection-plan figures.
 
@@ -180,6 +232,8 @@ def zones_layer(
         Zone name -> injection plan (with a ``summary`` dict).
     storage
         Name of the storage hydrofacies (its volumes carry P10/P50/P90).
+    frame
+        Output frame (see :func:`in_frame`).
 
     Returns
     -------
@@ -207,13 +261,16 @@ def zones_layer(
                     extra[str(zone)][f"plan_{key}"] = float(summary[key])
     table = pd.DataFrame.from_dict(extra, orient="index")
     if table.empty or not len(table.columns):
-        return layer
+        return in_frame(layer, frame)
     table = table.rename_axis("_zone_key").reset_index()
     layer = layer.assign(_zone_key=layer["name"].astype(str))
-    return layer.merge(table, on="_zone_key", how="left").drop(columns="_zone_key")
+    merged = layer.merge(table, on="_zone_key", how="left").drop(columns="_zone_key")
+    return in_frame(merged, frame)
 
 
-def injection_points_layer(plans: Mapping[str, object], *, crs) -> gpd.GeoDataFrame:
+def injection_points_layer(
+    plans: Mapping[str, object], *, crs, frame: OutputFrame | None = None
+) -> gpd.GeoDataFrame:
     """Gather the injection points of every zone's plan into one layer.
 
     Parameters
@@ -222,6 +279,8 @@ def injection_points_layer(plans: Mapping[str, object], *, crs) -> gpd.GeoDataFr
         Zone name -> injection plan (an object with a ``points`` GeoDataFrame).
     crs
         Site CRS.
+    frame
+        Output frame (see :func:`in_frame`).
 
     Returns
     -------
@@ -241,7 +300,7 @@ def injection_points_layer(plans: Mapping[str, object], *, crs) -> gpd.GeoDataFr
         frames.append(points.to_crs(crs))
     if not frames:
         return gpd.GeoDataFrame({"zone": []}, geometry=gpd.GeoSeries([], crs=crs), crs=crs)
-    return gpd.GeoDataFrame(pd.concat(frames, ignore_index=True), crs=crs)
+    return in_frame(gpd.GeoDataFrame(pd.concat(frames, ignore_index=True), crs=crs), frame)
 
 
 def contour_levels(values: np.ndarray, *, n_levels: int = 10) -> np.ndarray:
@@ -282,6 +341,7 @@ def contour_lines(
     crs,
     levels: Mapping[str, Sequence[float]] | None = None,
     n_levels: int = 10,
+    frame: OutputFrame | None = None,
 ) -> gpd.GeoDataFrame:
     """Trace contour lines of 2D maps.
 
@@ -295,6 +355,9 @@ def contour_lines(
         Map name -> levels; other maps get :func:`contour_levels`.
     n_levels
         Approximate number of automatic levels.
+    frame
+        Output frame: maps are converted to its CRS and length unit before tracing, so the
+        lines, the levels and ``units`` are in the output units.
 
     Returns
     -------
@@ -303,6 +366,9 @@ def contour_lines(
     """
     rows: list[dict] = []
     given = levels or {}
+    if frame is not None:
+        maps = {name: frame.grid(da) for name, da in maps.items()}
+        crs = frame.crs
     for name, da in maps.items():
         if set(da.dims) != {"y", "x"}:
             msg = f"map '{name}' must have dims ('y', 'x'); got {da.dims}"
@@ -338,6 +404,8 @@ def contour_lines(
 def write_geopackage(
     path: str | PathLike,
     layers: Mapping[str, gpd.GeoDataFrame],
+    *,
+    descriptions: Mapping[str, str] | None = None,
 ) -> Path:
     """Write GeoDataFrames as layers of one GeoPackage; empty layers are skipped.
 
@@ -347,6 +415,8 @@ def write_geopackage(
         Output ``.gpkg`` file (replaced if it exists).
     layers
         Layer name -> GeoDataFrame (each with its CRS set).
+    descriptions
+        Layer name -> description (the GeoPackage ``gpkg_contents.description``).
 
     Returns
     -------
@@ -360,6 +430,9 @@ def write_geopackage(
         if gdf is None or len(gdf) == 0:
             logger.debug("layer %s is empty; not written", name)
             continue
-        gdf.to_file(path, layer=name, driver="GPKG", engine="pyogrio")
+        options = {}
+        if descriptions and name in descriptions:
+            options["layer_options"] = {"DESCRIPTION": descriptions[name]}
+        gdf.to_file(path, layer=name, driver="GPKG", engine="pyogrio", **options)
     logger.debug("wrote %s", path)
     return path

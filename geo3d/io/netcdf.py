@@ -28,6 +28,7 @@ import pyproj
 import xarray as xr
 
 from geo3d.errors import CRSError
+from geo3d.io.output_frame import OutputFrame
 
 __all__ = ["VARIABLE_ATTRS", "to_cf", "write_netcdf"]
 
@@ -86,8 +87,32 @@ def _plain_attr(value):
     return json.dumps(value, default=str)
 
 
+def _coordinates(out: xr.Dataset, xy_units: str, z_units: str) -> xr.Dataset:
+    """Give the coordinates their CF attributes (units as written)."""
+    for axis in ("x", "y"):
+        out[axis].attrs.update(
+            standard_name=f"projection_{axis}_coordinate",
+            long_name=f"{axis} of cell centre",
+            units=xy_units,
+            axis=axis.upper(),
+        )
+    out["z"].attrs.update(
+        long_name="elevation of cell centre", units=z_units, axis="Z", positive="up"
+    )
+    if "realization" in out.dims:
+        if "realization" not in out.coords:
+            out = out.assign_coords(realization=np.arange(out.sizes["realization"]))
+        out["realization"].attrs.update(long_name="realization number", units="1")
+    return out
+
+
 def to_cf(
-    ds: xr.Dataset, *, crs=None, facies_names: Sequence[str] | None = None, title: str = ""
+    ds: xr.Dataset,
+    *,
+    crs=None,
+    facies_names: Sequence[str] | None = None,
+    title: str = "",
+    frame: OutputFrame | None = None,
 ) -> xr.Dataset:
     """Return a copy of a voxel model with CF-1.8 metadata, ready to write.
 
@@ -102,6 +127,8 @@ def to_cf(
         the order of the ``prob_<name>`` variables.
     title
         Dataset title.
+    frame
+        Output frame (:meth:`OutputFrame.grid`: CRS, axis and length units); replaces ``crs``.
 
     Returns
     -------
@@ -114,6 +141,11 @@ def to_cf(
     CRSError
         If no valid CRS is known.
     """
+    xy_units = z_units = "m"
+    if frame is not None:
+        ds = frame.grid(ds)
+        crs = frame.crs
+        xy_units, z_units = frame.coordinate_udunits, frame.length_udunits
     value = crs if crs is not None else ds.attrs.get("crs")
     if value is None:
         msg = "voxel model has no CRS; pass crs= or set attrs['crs']"
@@ -132,17 +164,7 @@ def to_cf(
         source="geo3d voxel model",
         crs_wkt=site_crs.to_wkt(),
     )
-    out["x"].attrs.update(
-        standard_name="projection_x_coordinate", long_name="x of cell centre", units="m", axis="X"
-    )
-    out["y"].attrs.update(
-        standard_name="projection_y_coordinate", long_name="y of cell centre", units="m", axis="Y"
-    )
-    out["z"].attrs.update(long_name="elevation of cell centre", units="m", axis="Z", positive="up")
-    if "realization" in out.dims:
-        if "realization" not in out.coords:
-            out = out.assign_coords(realization=np.arange(out.sizes["realization"]))
-        out["realization"].attrs.update(long_name="realization number", units="1")
+    out = _coordinates(out, xy_units, z_units)
     for name in list(out.data_vars):
         da = out[name]
         attrs = {k: _plain_attr(v) for k, v in da.attrs.items()}
@@ -174,6 +196,7 @@ def write_netcdf(
     facies_names: Sequence[str] | None = None,
     title: str = "",
     complevel: int = 4,
+    frame: OutputFrame | None = None,
 ) -> Path:
     """Write the voxel model as a compressed CF-1.8 NetCDF-4 file.
 
@@ -183,7 +206,7 @@ def write_netcdf(
         Voxel model.
     path
         Output file (``.nc``).
-    crs, facies_names, title
+    crs, facies_names, title, frame
         See :func:`to_cf`.
     complevel
         zlib compression level (1-9).
@@ -194,7 +217,7 @@ def write_netcdf(
         The file written.
     """
     path = Path(path)
-    cf = to_cf(ds, crs=crs, facies_names=facies_names, title=title)
+    cf = to_cf(ds, crs=crs, facies_names=facies_names, title=title, frame=frame)
     encoding: dict[Hashable, dict[str, Any]] = {}
     for name, da in cf.data_vars.items():
         if name == "spatial_ref":

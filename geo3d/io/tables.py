@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 
 from geo3d.geostats.crossval import CrossValidation
+from geo3d.io.output_frame import OutputFrame
 from geo3d.units import from_internal
 
 __all__ = [
@@ -61,6 +62,7 @@ LENGTH_COLUMNS: frozenset[str] = frozenset(
         "total_depth",
         "transmissive_thickness",
         "storage_thickness",
+        "target_thickness",
         "radius_of_influence",
         "spacing",
         "point_spacing",
@@ -176,6 +178,7 @@ def to_output_units(
     length_unit: str = "m",
     volume_unit: str = "m3",
     lengths: frozenset[str] | set[str] = LENGTH_COLUMNS,
+    frame: OutputFrame | None = None,
 ) -> pd.DataFrame:
     """Convert length, area and volume columns from internal units; put units in the names.
 
@@ -189,6 +192,10 @@ def to_output_units(
         Output volume unit (``m3``, ``L``, ``gal``, ``ft3``).
     lengths
         Names of the length columns without a unit token.
+    frame
+        The output frame; when given, its units replace ``length_unit`` and ``volume_unit``
+        and the coordinate columns ``x`` and ``y`` are converted to its CRS (named with the
+        CRS's axis unit, e.g. ``x_usft``).
 
     Returns
     -------
@@ -204,8 +211,18 @@ def to_output_units(
     """
     out = df.copy()
     renames: dict[str, str] = {}
+    skip: set[str] = set()
+    if frame is not None:
+        length_unit, volume_unit = frame.length_unit, frame.volume_unit
+        if {"x", "y"} <= set(map(str, df.columns)):
+            out["x"], out["y"] = frame.xy(df["x"].to_numpy(float), df["y"].to_numpy(float))
+            label = unit_label(frame.coordinate_unit)
+            renames.update(x=f"x_{label}", y=f"y_{label}")
+            skip = {"x", "y"}
     for column in df.columns:
         name = str(column)
+        if name in skip:
+            continue
         new, quantity, unit = output_name(
             name, length_unit=length_unit, volume_unit=volume_unit, lengths=lengths
         )
@@ -257,8 +274,9 @@ def write_csv(
     length_unit: str = "m",
     volume_unit: str = "m3",
     float_format: str = "%.10g",
+    frame: OutputFrame | None = None,
 ) -> Path:
-    """Write a table as CSV in output units (see :func:`to_output_units`).
+    """Write a table as CSV in output units and CRS (see :func:`to_output_units`).
 
     Returns
     -------
@@ -266,7 +284,7 @@ def write_csv(
         The file written.
     """
     path = Path(path)
-    table = to_output_units(df, length_unit=length_unit, volume_unit=volume_unit)
+    table = to_output_units(df, length_unit=length_unit, volume_unit=volume_unit, frame=frame)
     if "geometry" in table.columns:
         table = pd.DataFrame(table.drop(columns="geometry"))
     table.to_csv(path, index=False, float_format=float_format)
@@ -324,6 +342,7 @@ def write_tables(
     crossval: Mapping[str, CrossValidation] | None = None,
     water_levels: pd.DataFrame | None = None,
     calibration: Mapping | None = None,
+    frame: OutputFrame | None = None,
 ) -> list[Path]:
     """Write the standard result tables of a run into a folder.
 
@@ -331,8 +350,8 @@ def write_tables(
     ----------
     out_dir
         Folder (created when missing).
-    length_unit, volume_unit
-        Output units.
+    length_unit, volume_unit, frame
+        Output units; an output frame (CRS and units) replaces them.
     intervals
         ``intervals.csv``.
     volumes
@@ -356,22 +375,23 @@ def write_tables(
     """
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
-    units = {"length_unit": length_unit, "volume_unit": volume_unit}
+    if frame is not None:
+        length_unit, volume_unit = frame.length_unit, frame.volume_unit
+    units = {"length_unit": length_unit, "volume_unit": volume_unit, "frame": frame}
     written: list[Path] = []
     if intervals is not None:
         written.append(write_csv(intervals, out_dir / "intervals.csv", **units))
     if volumes is not None:
         written.append(write_csv(volumes, out_dir / "volumes.csv", **units))
-        table = to_output_units(volumes, length_unit=length_unit, volume_unit=volume_unit)
-        written.append(write_json(table, out_dir / "volumes.json"))
+        written.append(write_json(to_output_units(volumes, **units), out_dir / "volumes.json"))
     if injection_schedule is not None:
         written.append(write_csv(injection_schedule, out_dir / "injection_plan.csv", **units))
-        schedule = to_output_units(
-            injection_schedule, length_unit=length_unit, volume_unit=volume_unit
-        )
+        schedule = to_output_units(injection_schedule, **units)
         if "geometry" in schedule.columns:
             schedule = pd.DataFrame(schedule.drop(columns="geometry"))
-        summary = mapping_to_output_units(injection_summary or {}, **units)
+        summary = mapping_to_output_units(
+            injection_summary or {}, length_unit=length_unit, volume_unit=volume_unit
+        )
         payload = {"summary": summary, "schedule": schedule}
         written.append(write_json(payload, out_dir / "injection_plan.json"))
     if crossval:

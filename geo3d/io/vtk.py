@@ -1,7 +1,11 @@
 """VTK export for 3D viewers: voxel model, borings, zone outlines and water table.
 
 Files are in the site CRS with true elevations; a vertical exaggeration is a setting of the
-viewer and is never written into the files.
+viewer and is never written into the files.  Given an output frame, every coordinate, elevation
+and depth is written in the output CRS's axis unit (so that x, y and z share one unit and the
+shapes stay true); arrays holding a length carry that unit in their names (``depth_usft``,
+``wt_elev_usft``) and every dataset carries the field arrays ``crs`` (the output CRS as
+declared) and ``units`` (``array: unit`` for each array).
 
 * ``model.vti`` - the voxel model as VTK image data: the image origin is the lower (west, south,
   bottom) *edge* of the first cell, the spacing is the cell size, and every model variable on
@@ -27,6 +31,7 @@ from __future__ import annotations
 
 import logging
 import os
+from dataclasses import replace
 from os import PathLike
 from pathlib import Path
 from xml.sax.saxutils import quoteattr
@@ -40,6 +45,8 @@ import xarray as xr
 
 from geo3d.errors import GeometryError
 from geo3d.io.geotiff import axis_spacing
+from geo3d.io.output_frame import OutputFrame
+from geo3d.io.tables import unit_label
 from geo3d.logs.flags import FLAGS
 
 __all__ = [
@@ -53,6 +60,19 @@ __all__ = [
 ]
 
 logger = logging.getLogger(__name__)
+
+
+def _vtk_frame(frame: OutputFrame) -> OutputFrame:
+    """Return the frame with lengths in the CRS's axis unit (x, y, z in one unit in 3D)."""
+    return replace(frame, length_unit=frame.coordinate_unit)
+
+
+def _label(mesh, frame: OutputFrame | None, units: dict[str, str]) -> None:
+    if frame is None:
+        return
+    mesh.field_data["crs"] = np.asarray([frame.label], dtype=str)
+    listed = [f"{name}: {unit}" for name, unit in units.items()]
+    mesh.field_data["units"] = np.asarray(listed or ["-"], dtype=str)
 
 
 def _cell_sizes(ds: xr.Dataset) -> tuple[float, float, float]:
@@ -77,7 +97,9 @@ def _cell_values(da: xr.DataArray) -> np.ndarray:
     return values.ravel(order="C")
 
 
-def model_to_image(ds: xr.Dataset, *, include_realizations: bool = False) -> pv.ImageData:
+def model_to_image(
+    ds: xr.Dataset, *, include_realizations: bool = False, frame: OutputFrame | None = None
+) -> pv.ImageData:
     """Convert a voxel model to VTK image data with one cell array per variable.
 
     Parameters
@@ -87,6 +109,8 @@ def model_to_image(ds: xr.Dataset, *, include_realizations: bool = False) -> pv.
     include_realizations
         Also write each simulated realization of the ``realizations`` variable as a cell
         array ``realization_<i>`` (off by default: they are in the NetCDF file).
+    frame
+        Output frame: the image is placed in its CRS, in its axis unit.
 
     Returns
     -------
@@ -102,6 +126,8 @@ def model_to_image(ds: xr.Dataset, *, include_realizations: bool = False) -> pv.
         if name not in ds.coords:
             msg = f"voxel model has no '{name}' coordinate; expected dims ('z', 'y', 'x')"
             raise GeometryError(msg)
+    if frame is not None:
+        ds = _vtk_frame(frame).grid(ds)
     dx, dy, dz = _cell_sizes(ds)
     nx, ny, nz = ds.sizes["x"], ds.sizes["y"], ds.sizes["z"]
     image = pv.ImageData(
@@ -119,6 +145,9 @@ def model_to_image(ds: xr.Dataset, *, include_realizations: bool = False) -> pv.
         elif include_realizations and set(da.dims) == {"realization", "z", "y", "x"}:
             for i in range(da.sizes["realization"]):
                 image.cell_data[f"{key}_{i:03d}"] = _cell_values(da.isel(realization=i))
+    if frame is not None:
+        units = {str(n): str(ds[n].attrs.get("units", "")) for n in ds.data_vars}
+        _label(image, frame, {"x, y, z": frame.coordinate_label, **units})
     return image
 
 
@@ -144,6 +173,7 @@ def borings_to_polydata(
     samples: pd.DataFrame,
     *,
     intervals: pd.DataFrame | None = None,
+    frame: OutputFrame | None = None,
 ) -> pv.PolyData:
     """Build one polyline per boring through its samples, at their elevations.
 
@@ -155,6 +185,8 @@ def borings_to_polydata(
     intervals
         Composited intervals with ``boring_id``, ``top``, ``bottom``, ``facies_code``; gives
         each sample the facies code of the interval holding it (-1 where none).
+    frame
+        Output frame: points in its CRS and axis unit, ``depth`` renamed ``depth_<unit>``.
 
     Returns
     -------
@@ -174,6 +206,14 @@ def borings_to_polydata(
         raise GeometryError(msg)
     samples = samples.sort_values(["boring_id", "depth"], kind="stable").reset_index(drop=True)
     points = samples[["x", "y", "elev"]].to_numpy(float)
+    depth = samples["depth"].to_numpy(float)
+    depth_name = "depth"
+    if frame is not None:
+        vtk_frame = _vtk_frame(frame)
+        points[:, 0], points[:, 1] = vtk_frame.xy(points[:, 0], points[:, 1])
+        points[:, 2] = vtk_frame.length(points[:, 2])
+        depth = vtk_frame.length(depth)
+        depth_name = f"depth_{unit_label(vtk_frame.length_unit)}"
     lines: list[int] = []
     boring_ids: list[str] = []
     boring_index = np.zeros(len(samples), dtype=np.int32)
@@ -182,7 +222,7 @@ def borings_to_polydata(
         boring_index[rows] = i
         lines.extend([len(rows), *rows.tolist()])
     poly = pv.PolyData(points, lines=np.asarray(lines, dtype=np.int64) if lines else None)
-    poly.point_data["depth"] = samples["depth"].to_numpy(float)
+    poly.point_data[depth_name] = depth
     for name in ("log10_k", "ec"):
         values = samples[name].to_numpy(float) if name in samples else np.full(len(samples), np.nan)
         poly.point_data[name] = values
@@ -192,6 +232,9 @@ def borings_to_polydata(
             poly.point_data[flag] = samples[flag].fillna(False).to_numpy(bool).astype(np.uint8)
     poly.point_data["boring_index"] = boring_index
     poly.field_data["boring_id"] = np.asarray(boring_ids, dtype=str)
+    if frame is not None:
+        units = {"x, y, elevation": frame.coordinate_label, depth_name: frame.coordinate_label}
+        _label(poly, frame, {**units, "log10_k": "log10(m/s)", "ec": "mS/m"})
     return poly
 
 
@@ -210,7 +253,12 @@ def _ground_elevation(model: xr.Dataset, polygon) -> float:
     return float(np.nanmean(ground[inside])) if inside.any() else float("nan")
 
 
-def zone_outlines(zones: gpd.GeoDataFrame, *, model: xr.Dataset | None = None) -> pv.PolyData:
+def zone_outlines(
+    zones: gpd.GeoDataFrame,
+    *,
+    model: xr.Dataset | None = None,
+    frame: OutputFrame | None = None,
+) -> pv.PolyData:
     """Extrude each treatment-zone outline from its top to its bottom elevation as lines.
 
     Parameters
@@ -221,6 +269,8 @@ def zone_outlines(zones: gpd.GeoDataFrame, *, model: xr.Dataset | None = None) -
     model
         Voxel model; for zones given in depth, the ground elevation is the mean top of the
         model's mask over the zone (required then).
+    frame
+        Output frame: points in its CRS and axis unit.
 
     Returns
     -------
@@ -266,13 +316,21 @@ def zone_outlines(zones: gpd.GeoDataFrame, *, model: xr.Dataset | None = None) -
     if not points:
         poly = pv.PolyData()
     else:
-        poly = pv.PolyData(np.vstack(points), lines=np.asarray(lines, dtype=np.int64))
+        xyz = np.vstack(points)
+        if frame is not None:
+            vtk_frame = _vtk_frame(frame)
+            xyz[:, 0], xyz[:, 1] = vtk_frame.xy(xyz[:, 0], xyz[:, 1])
+            xyz[:, 2] = vtk_frame.length(xyz[:, 2])
+        poly = pv.PolyData(xyz, lines=np.asarray(lines, dtype=np.int64))
         poly.cell_data["zone_index"] = np.asarray(zone_index, dtype=np.int32)
     poly.field_data["zone_name"] = np.asarray(names, dtype=str)
+    _label(poly, frame, {} if frame is None else {"x, y, elevation": frame.coordinate_label})
     return poly
 
 
-def water_table_surface(wt_map: xr.DataArray) -> pv.StructuredGrid:
+def water_table_surface(
+    wt_map: xr.DataArray, *, frame: OutputFrame | None = None
+) -> pv.StructuredGrid:
     """Make the water-table surface from a ``("y", "x")`` map of its elevation.
 
     Points sit at the cell centres at the water-table elevation.  Points where the map is NaN
@@ -282,12 +340,19 @@ def water_table_surface(wt_map: xr.DataArray) -> pv.StructuredGrid:
     ----------
     wt_map
         Water-table elevation, m, on cell centres.
+    frame
+        Output frame: points in its CRS and axis unit, the array named ``wt_elev_<unit>``.
 
     Returns
     -------
     pyvista.StructuredGrid
         With the point array ``wt_elev`` (NaN where hidden).
     """
+    name = "wt_elev"
+    if frame is not None:
+        vtk_frame = _vtk_frame(frame)
+        wt_map = vtk_frame.grid(wt_map.assign_attrs(units="m"))
+        name = f"wt_elev_{unit_label(vtk_frame.length_unit)}"
     wt_map = wt_map.transpose("y", "x")
     # "ij" arrays of shape (nx, ny): VTK orders structured points with x fastest, which is the
     # C order of the ("y", "x") map.
@@ -297,25 +362,36 @@ def water_table_surface(wt_map: xr.DataArray) -> pv.StructuredGrid:
     fill = float(np.nanmean(values)) if finite.any() else 0.0
     zz = np.where(finite, values, fill).T
     grid = pv.StructuredGrid(xx, yy, zz)
-    grid.point_data["wt_elev"] = values.ravel(order="C")
+    grid.point_data[name] = values.ravel(order="C")
     hidden = np.flatnonzero(~finite.ravel(order="C"))
     if hidden.size and hidden.size < values.size:
         grid.hide_points(hidden.tolist())
+    _label(grid, frame, {} if frame is None else {"x, y, " + name: frame.coordinate_label})
     return grid
 
 
 def write_model_vti(
-    model: xr.Dataset, path: str | PathLike, *, include_realizations: bool = False
+    model: xr.Dataset,
+    path: str | PathLike,
+    *,
+    include_realizations: bool = False,
+    frame: OutputFrame | None = None,
 ) -> Path:
     """Write the voxel model as ``.vti`` (see :func:`model_to_image`); return the file."""
-    return _save(model_to_image(model, include_realizations=include_realizations), path)
+    return _save(
+        model_to_image(model, include_realizations=include_realizations, frame=frame), path
+    )
 
 
 def write_borings_vtp(
-    samples: pd.DataFrame, path: str | PathLike, *, intervals: pd.DataFrame | None = None
+    samples: pd.DataFrame,
+    path: str | PathLike,
+    *,
+    intervals: pd.DataFrame | None = None,
+    frame: OutputFrame | None = None,
 ) -> Path:
     """Write the borings as ``.vtp`` polylines (see :func:`borings_to_polydata`)."""
-    return _save(borings_to_polydata(samples, intervals=intervals), path)
+    return _save(borings_to_polydata(samples, intervals=intervals, frame=frame), path)
 
 
 def _save(dataset: pv.DataSet, path: str | PathLike) -> Path:
@@ -335,6 +411,7 @@ def write_site_vtm(
     water_table: xr.DataArray | None = None,
     model_file: str | PathLike | None = None,
     borings_file: str | PathLike | None = None,
+    frame: OutputFrame | None = None,
 ) -> Path:
     """Write the site multiblock ``.vtm``; its own blocks go in a folder of the same stem.
 
@@ -353,6 +430,8 @@ def write_site_vtm(
     model_file, borings_file
         A ``model.vti`` / ``borings.vtp`` already written (in the same folder or below it):
         the multiblock then refers to it instead of writing a copy.
+    frame
+        Output frame (CRS and units) of every block.
 
     Returns
     -------
@@ -372,18 +451,18 @@ def write_site_vtm(
         dataset().save(target)
         entries.append((name, f"{path.stem}/{target.name}"))
 
-    block("model", lambda: model_to_image(model), ".vti", model_file)
+    block("model", lambda: model_to_image(model, frame=frame), ".vti", model_file)
     if samples is not None and len(samples):
         block(
             "borings",
-            lambda: borings_to_polydata(samples, intervals=intervals),
+            lambda: borings_to_polydata(samples, intervals=intervals, frame=frame),
             ".vtp",
             borings_file,
         )
     if zones is not None and len(zones):
-        block("zones", lambda: zone_outlines(zones, model=model), ".vtp", None)
+        block("zones", lambda: zone_outlines(zones, model=model, frame=frame), ".vtp", None)
     if water_table is not None:
-        block("water_table", lambda: water_table_surface(water_table), ".vts", None)
+        block("water_table", lambda: water_table_surface(water_table, frame=frame), ".vts", None)
     lines = [
         '<?xml version="1.0"?>',
         '<VTKFile type="vtkMultiBlockDataSet" version="1.0" byte_order="LittleEndian">',

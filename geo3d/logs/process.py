@@ -309,7 +309,7 @@ def _flag_resolution(
     )
     for name, values in flags.items():
         samples[name] = values
-    checks = evaluate_sensor_checks(site.sensor_checks)
+    checks = evaluate_sensor_checks(site.sensor_checks, units=site.config.units)
     samples["sensor_check_failed"] = sensor_check_flags(samples["boring_id"].to_numpy(), checks)
     return flags, checks
 

@@ -223,9 +223,8 @@ def _plot_borings(ax, borings: pd.DataFrame | None, *, labels: bool = True) -> N
             )
 
 
-def _plan_axes(ax, crs_label: str | None) -> None:
+def _plan_axes(ax, crs_label: str | None, unit: str = "m") -> None:
     ax.set_aspect("equal", adjustable="box")
-    unit = "m"
     ax.set_xlabel(f"easting ({unit})")
     ax.set_ylabel(f"northing ({unit})")
     if crs_label:
@@ -268,7 +267,7 @@ class SectionLine:
 
     @property
     def length(self) -> float:
-        """Length of the line (m)."""
+        """Length of the line (in the unit of its coordinates)."""
         return math.hypot(self.end[0] - self.start[0], self.end[1] - self.start[1])
 
 
@@ -334,6 +333,7 @@ def site_map_figure(
     sections: Sequence[SectionLine] = (),
     injection_points: Sequence[tuple[float, float]] = (),
     crs_label: str | None = None,
+    coordinate_unit: str = "m",
 ) -> Figure:
     """Plan view of the site: boundary, treatment zones, borings, section lines.
 
@@ -351,6 +351,8 @@ def site_map_figure(
         ``(x, y)`` of planned injection points.
     crs_label
         Name of the CRS, written in a corner.
+    coordinate_unit
+        Unit of the CRS axes, for the axis labels.
 
     Returns
     -------
@@ -399,7 +401,7 @@ def site_map_figure(
         handles.append(
             Line2D([], [], linestyle="none", marker="o", color=_BORING_COLOR, label="boring")
         )
-    _plan_axes(ax, crs_label)
+    _plan_axes(ax, crs_label, coordinate_unit)
     if handles:
         ax.legend(handles=handles, loc="lower left", fontsize=7, framealpha=0.9)
     return fig
@@ -415,6 +417,7 @@ def map_panels_figure(
     boundary=None,
     borings: pd.DataFrame | None = None,
     crs_label: str | None = None,
+    coordinate_unit: str = "m",
 ) -> Figure:
     """Plan-view maps side by side on one shared colour scale (e.g. P10, estimate, P90).
 
@@ -432,6 +435,8 @@ def map_panels_figure(
         Drawn on top when given.
     crs_label
         Name of the CRS.
+    coordinate_unit
+        Unit of the CRS axes, for the axis labels.
 
     Returns
     -------
@@ -457,7 +462,7 @@ def map_panels_figure(
         )
         _plot_polygon(ax, boundary, color="0.2", linewidth=1.0)
         _plot_borings(ax, borings, labels=False)
-        _plan_axes(ax, crs_label if ax is axes[-1] else None)
+        _plan_axes(ax, crs_label if ax is axes[-1] else None, coordinate_unit)
         ax.set_title(title, fontsize=9, loc="left")
     for ax in axes[1:]:
         ax.set_ylabel("")
@@ -493,7 +498,7 @@ def _draw_gradient(ax: Any, gradient: float, flow_direction_deg: float) -> None:
     ax.text(
         0.02,
         0.98,
-        f"gradient {gradient:.2e} m/m toward {flow_direction_deg:.0f}\u00b0",
+        f"gradient {gradient:.2e} toward {flow_direction_deg:.0f}\u00b0",
         transform=ax.transAxes,
         va="top",
         fontsize=8,
@@ -509,6 +514,8 @@ def water_table_figure(
     flow_direction_deg: float | None = None,
     boundary=None,
     crs_label: str | None = None,
+    coordinate_unit: str = "m",
+    length_unit: str = "m",
 ) -> Figure:
     """Water-table elevation map with the measured levels and the gradient arrow.
 
@@ -519,13 +526,13 @@ def water_table_figure(
     water_levels
         Table with ``x``, ``y``, ``wt_elev`` (and ``boring_id``).
     gradient
-        Hydraulic gradient magnitude (m/m).
+        Hydraulic gradient magnitude (dimensionless).
     flow_direction_deg
         Down-gradient azimuth, degrees clockwise from north.
     boundary
         Site boundary, drawn when given.
-    crs_label
-        Name of the CRS.
+    crs_label, coordinate_unit, length_unit
+        Name of the CRS, unit of its axes and unit of the elevations, for the labels.
 
     Returns
     -------
@@ -538,7 +545,7 @@ def water_table_figure(
         x = np.asarray(surface["x"].values, dtype=float)
         y = np.asarray(surface["y"].values, dtype=float)
         mesh = ax.pcolormesh(_edges(x), _edges(y), np.ma.masked_invalid(values), cmap="cividis")
-        fig.colorbar(mesh, ax=ax, label="water-table elevation (m)", shrink=0.85)
+        fig.colorbar(mesh, ax=ax, label=f"water-table elevation ({length_unit})", shrink=0.85)
         finite = values[np.isfinite(values)]
         if finite.size and np.ptp(finite) > 0:
             contours = ax.contour(x, y, np.ma.masked_invalid(values), colors="white", levels=6)
@@ -577,7 +584,7 @@ def water_table_figure(
         and gradient > 0
     ):
         _draw_gradient(ax, float(gradient), float(flow_direction_deg))
-    _plan_axes(ax, crs_label)
+    _plan_axes(ax, crs_label, coordinate_unit)
     return fig
 
 
@@ -664,6 +671,7 @@ def variogram_figure(
     horizontal_model: Mapping[str, tuple[np.ndarray, np.ndarray]] | None = None,
     variable: str,
     units: str,
+    lag_unit: str = "m",
 ) -> Figure:
     """Experimental variograms (vertical and horizontal) with the fitted model curves.
 
@@ -679,6 +687,8 @@ def variogram_figure(
         Name of the variable (title).
     units
         Units of the semivariance.
+    lag_unit
+        Unit of the lags (as given: the caller converts), for the axis labels.
 
     Returns
     -------
@@ -691,9 +701,9 @@ def variogram_figure(
             axes[0],
             vertical,
             {"vertical": vertical_model} if vertical_model else {},
-            "vertical lag (m)",
+            f"vertical lag ({lag_unit})",
         ),
-        (axes[1], horizontal, horizontal_model or {}, "horizontal lag (m)"),
+        (axes[1], horizontal, horizontal_model or {}, f"horizontal lag ({lag_unit})"),
     )
     line_colors = [OKABE_ITO["vermillion"], OKABE_ITO["bluish_green"], OKABE_ITO["orange"]]
     for ax, table, models, xlabel in panels:
@@ -1032,6 +1042,8 @@ def section_figure(
     facies_names: Sequence[str],
     projected: pd.DataFrame | None = None,
     water_table: np.ndarray | None = None,
+    distance_unit: str = "m",
+    elevation_unit: str = "m",
 ) -> Figure:
     """Two stacked panels of a vertical section: hydrofacies and log10 K, borings projected.
 
@@ -1047,6 +1059,8 @@ def section_figure(
         Output of :func:`project_intervals`, drawn as narrow columns.
     water_table
         Water-table elevation at each station of the section.
+    distance_unit, elevation_unit
+        Units of the distances along the line and of the elevations, for the axis labels.
 
     Returns
     -------
@@ -1094,11 +1108,11 @@ def section_figure(
                 linestyle="--",
                 label="water table",
             )
-        ax.set_ylabel("elevation (m)")
+        ax.set_ylabel(f"elevation ({elevation_unit})")
         ax.tick_params(labelsize=7)
     for ax in axes:
         _frame_section(ax, line.name, d_edges, z_edges)
-    axes[1].set_xlabel("distance along the section (m)")
+    axes[1].set_xlabel(f"distance along the section ({distance_unit})")
     return fig
 
 

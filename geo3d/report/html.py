@@ -29,21 +29,24 @@ from typing import Any
 import geopandas as gpd
 import numpy as np
 import pandas as pd
-import pyproj
 import xarray as xr
 
 import geo3d
 from geo3d.errors import Geo3dWarning
 from geo3d.geostats.covariance import CovarianceModel
 from geo3d.io.atomic import atomic_file
+from geo3d.io.output_frame import OutputFrame
+from geo3d.io.tables import mapping_to_output_units, to_output_units
 from geo3d.logs.flags import FLAGS
 from geo3d.logs.process import LogResults
+from geo3d.logs.sensor_checks import in_declared_units
 from geo3d.logs.water_level import LEVEL_COLUMNS
 from geo3d.model import ModelResult
 from geo3d.report import figures as fg
 from geo3d.report.log_figure import log_figure_pngs
 from geo3d.results import RunResults
 from geo3d.site import Site
+from geo3d.units import factor, from_internal
 
 __all__ = ["SECTION_TITLES", "build_report", "write_report"]
 
@@ -294,6 +297,8 @@ class _Context:
     boundary: Any
     zones: gpd.GeoDataFrame | None
     crs_label: str
+    frame: OutputFrame
+    maps: dict[str, xr.DataArray] = field(default_factory=dict)
     sections: list = field(default_factory=list)
     log_figures: Mapping[str, bytes] = field(default_factory=dict)
 
@@ -305,18 +310,29 @@ class _Context:
         intervals = None if logs is None else logs.intervals
         if (borings is None or not len(borings)) and intervals is not None and len(intervals):
             borings = intervals.groupby("boring_id", as_index=False)[["x", "y"]].first()
+        # everything drawn or tabled is shown in the output CRS and units
+        frame = OutputFrame.from_site(site)
+        zones = site.zones
+        maps = {
+            str(k): frame.grid(v)
+            for k, v in results.maps.items()
+            if isinstance(v, xr.DataArray) and {"y", "x"} <= set(v.dims)
+        }
         ctx = cls(
             results=results,
             site=site,
             logs=logs,
             model=model,
-            dataset=dataset,
+            dataset=None if dataset is None else frame.grid(dataset),
             facies_names=list(results.facies_classes.names),
-            borings=borings,
-            boundary=site.boundary,
-            zones=site.zones,
-            crs_label=_crs_label(site.crs),
+            borings=None if borings is None else frame.points(borings, ("ground_elev",)),
+            boundary=frame.geometry(site.boundary),
+            zones=frame.layer(zones) if zones is not None and len(zones) else zones,
+            crs_label=frame.label,
+            frame=frame,
+            maps=maps,
         )
+        dataset, borings = ctx.dataset, ctx.borings
         bounds = None
         if dataset is not None:
             bounds = (
@@ -328,7 +344,7 @@ class _Context:
         elif borings is not None and len(borings) >= 2:
             bounds = (borings.x.min(), borings.y.min(), borings.x.max(), borings.y.max())
         try:
-            ctx.sections = fg.default_section_lines(site.boundary, fallback_bounds=bounds)
+            ctx.sections = fg.default_section_lines(ctx.boundary, fallback_bounds=bounds)
         except Exception as exc:  # degenerate geometry: no sections, said in that section
             logger.warning("no section lines: %s", exc)
         return ctx
@@ -341,12 +357,34 @@ class _Context:
     def samples(self) -> pd.DataFrame | None:
         return None if self.logs is None else self.logs.samples
 
+    @property
+    def intervals_shown(self) -> pd.DataFrame | None:
+        """Intervals with coordinates, depths and elevations in the output frame."""
+        intervals = self.intervals
+        if intervals is None:
+            return None
+        return self.frame.points(intervals, ("top", "bottom", "z_mid", "thickness"))
 
-def _crs_label(crs: pyproj.CRS | None) -> str:
-    if crs is None:
-        return "CRS not given"
-    epsg = crs.to_epsg()  # None for a custom WKT
-    return f"{crs.name} (EPSG:{epsg})" if epsg else str(crs.name)
+    @property
+    def units(self) -> Any:
+        """``[units]`` of the site file."""
+        return self.site.config.units
+
+    @property
+    def coord_unit(self) -> str:
+        return self.frame.coordinate_label
+
+    @property
+    def length_unit(self) -> str:
+        return self.frame.length_label
+
+    def length(self, values: Any) -> Any:
+        """Lengths (m) in the output length unit."""
+        return self.frame.length(values)
+
+    def table(self, frame: pd.DataFrame) -> pd.DataFrame:
+        """Return a table in the output CRS and units, each converted column named with its unit."""
+        return to_output_units(frame, frame=self.frame)
 
 
 # --------------------------------------------------------------------------- sections
@@ -367,6 +405,9 @@ def _injection_points(ctx: _Context) -> list[tuple[float, float]]:
             points.extend((g.x, g.y) for g in frame.geometry if g is not None)
         elif {"x", "y"} <= set(frame.columns):
             points.extend(zip(frame["x"], frame["y"], strict=True))
+    if points:
+        x, y = ctx.frame.xy(*np.asarray(points, dtype=float).T)
+        points = list(zip(x.tolist(), y.tolist(), strict=True))
     return points
 
 
@@ -381,6 +422,7 @@ def _section_site(ctx: _Context) -> str:
         sections=ctx.sections,
         injection_points=_injection_points(ctx),
         crs_label=ctx.crs_label,
+        coordinate_unit=ctx.coord_unit,
     )
     parts.append(
         _figure(
@@ -397,17 +439,24 @@ def _section_site(ctx: _Context) -> str:
         table = ctx.borings[columns].copy()
         intervals = ctx.intervals
         if intervals is not None and len(intervals):
-            depth = intervals.groupby("boring_id")["bottom"].max().rename("logged_depth")
-            table = table.merge(depth, left_on="boring_id", right_index=True, how="left")
-        parts.append(_table(table, caption="Borings (m)", max_rows=200))
+            depth = intervals.groupby("boring_id")["bottom"].max()
+            depth = pd.Series(ctx.length(depth.to_numpy(float)), index=depth.index)
+            table = table.merge(
+                depth.rename("logged_depth"), left_on="boring_id", right_index=True, how="left"
+            )
+        caption = (
+            f"Borings (x, y in {ctx.coord_unit}; ground elevation and logged depth in "
+            f"{ctx.length_unit})"
+        )
+        parts.append(_table(table, caption=caption, max_rows=200))
     if not n_zones:
         parts.append(_note("No treatment zones were given: no zone volumes or injection plans."))
     return "".join(parts)
 
 
 def _water_surface(ctx: _Context) -> xr.DataArray | None:
-    for key, grid in ctx.results.maps.items():
-        if _is_water_map(str(key)) and isinstance(grid, xr.DataArray):
+    for key, grid in ctx.maps.items():
+        if _is_water_map(key) and "depth" not in key:
             return grid
     if ctx.logs is None or ctx.dataset is None:
         return None
@@ -415,7 +464,8 @@ def _water_surface(ctx: _Context) -> xr.DataArray | None:
     x = ctx.dataset["x"].values
     y = ctx.dataset["y"].values
     xx, yy = np.meshgrid(x, y)
-    values = np.asarray(surface.elevation(xx.ravel(), yy.ravel()), dtype=float).reshape(xx.shape)
+    qx, qy = ctx.frame.xy_internal(xx.ravel(), yy.ravel())
+    values = np.asarray(ctx.length(surface.elevation(qx, qy)), dtype=float).reshape(xx.shape)
     if "mask" in ctx.dataset:
         values = np.where(ctx.dataset["mask"].any("z").values, values, np.nan)
     return xr.DataArray(values, dims=("y", "x"), coords={"y": y, "x": x})
@@ -430,11 +480,18 @@ def _section_water(ctx: _Context) -> str:
     else:
         hidden = ("x", "y", "aitken", "p_static_se")
         columns = [c for c in LEVEL_COLUMNS if c in levels and c not in hidden]
+        pressure = str(ctx.units.pressure)
+        shown = levels[columns].copy()
+        for column in ("p_static", "fit_rmse"):  # pressures, in the declared unit
+            if column in shown:
+                values = shown[column].to_numpy(float)
+                shown[column] = from_internal(values, pressure, "pressure")
+                shown = shown.rename(columns={column: f"{column} ({pressure})"})
         parts.append(
             _table(
-                levels[columns],
+                ctx.table(shown),
                 caption="Static water levels from dissipation tests "
-                "(depths and elevations in m, pressures in kPa)",
+                f"(depths and elevations in {ctx.length_unit}, pressures in {pressure})",
                 max_rows=200,
             )
         )
@@ -444,6 +501,8 @@ def _section_water(ctx: _Context) -> str:
     grid = _water_surface(ctx)
     if grid is None and (levels is None or not len(levels)):
         return "".join(parts)
+    if levels is not None:
+        levels = ctx.frame.points(levels, ("wt_elev",))
     fig = fg.water_table_figure(
         surface=grid,
         water_levels=levels
@@ -453,13 +512,15 @@ def _section_water(ctx: _Context) -> str:
         flow_direction_deg=None if direction is None else float(direction),
         boundary=ctx.boundary,
         crs_label=ctx.crs_label,
+        coordinate_unit=ctx.coord_unit,
+        length_unit=ctx.length_unit,
     )
-    text = "Water-table elevation (m)"
+    text = f"Water-table elevation ({ctx.length_unit})"
     if method:
         text += f" from a {_esc(method)} fit of the dissipation-test levels"
     if gradient is not None and direction is not None and np.isfinite(float(direction)):
         text += (
-            f"; hydraulic gradient {float(gradient):.2e} m/m, down-gradient toward "
+            f"; hydraulic gradient {float(gradient):.2e}, down-gradient toward "
             f"{float(direction):.0f}\u00b0 (clockwise from north), shown by the arrow"
         )
     parts.append(_figure(fig, name="water-table", alt="Water-table map", caption=text + "."))
@@ -470,8 +531,9 @@ def _section_logs(ctx: _Context) -> str:
     samples, intervals = ctx.samples, ctx.intervals
     if ctx.logs is None or samples is None or intervals is None or not len(samples):
         return _note("No processed logs are available.")
-    parts = [_flag_summary(samples), _sensor_summary(ctx.logs.sensor_checks)]
-    pngs = ctx.log_figures or log_figure_pngs(samples, intervals)
+    checks = ctx.logs.sensor_checks
+    parts = [_flag_summary(samples), _sensor_summary(checks, ctx.units)]
+    pngs = ctx.log_figures or log_figure_pngs(samples, intervals, units=ctx.units, checks=checks)
     cells = [
         _img(
             fg.png_to_data_uri(png),
@@ -484,9 +546,12 @@ def _section_logs(ctx: _Context) -> str:
     legend = ", ".join(f"{_esc(name)}" for name in ctx.facies_names)
     parts.append(
         _note(
-            "Each figure: recorded pressure with its atmospheric and hydrostatic parts, net "
-            "injection pressure, log-derived K, bulk EC and the hydrofacies strip "
-            f"(lowest K first: {legend}); flagged samples carry their own symbols."
+            f"Each figure: the hydrofacies strip (lowest K first: {legend}), log-derived K, net "
+            "injection pressure, recorded pressure with its atmospheric and hydrostatic parts, "
+            "injection flow and bulk EC, in the units the site file declares; flagged samples "
+            "carry their own symbols, a failed sensor check is a red line across its sensor's "
+            "track (top: check before the log, bottom: after), and a run of missing EC is "
+            "shaded grey."
         )
     )
     parts.append(f'<div class="log-grid">{"".join(cells)}</div>')
@@ -508,16 +573,22 @@ def _flag_summary(samples: pd.DataFrame | None) -> str:
     return _table(table, caption="Flagged samples per boring (% of samples)", max_rows=200)
 
 
-def _sensor_summary(checks: pd.DataFrame | None) -> str:
+def _sensor_summary(checks: pd.DataFrame | None, units: Any = None) -> str:
     if checks is None or not len(checks):
         return _note("No sensor checks were given.")
+    if "sensor" in checks and {"measured", "expected", "tolerance"} <= set(checks):
+        checks = in_declared_units(checks, units)
     status = next((c for c in ("passed", "pass", "ok") if c in checks), None)
     if status is None:
-        return _table(checks, caption="Sensor checks", max_rows=100)
+        return _table(checks, caption="Sensor checks (in the units the site file declares)")
     failed = checks[~checks[status].fillna(False).astype(bool)]
     if not len(failed):
         return _note(f"All {len(checks)} sensor checks passed.")
-    return _table(failed, caption=f"Failed sensor checks ({len(failed)} of {len(checks)})")
+    return _table(
+        failed,
+        caption=f"Failed sensor checks ({len(failed)} of {len(checks)}), in the units the site "
+        "file declares",
+    )
 
 
 def _section_calibration(ctx: _Context) -> str:
@@ -540,7 +611,8 @@ def _section_calibration(ctx: _Context) -> str:
     parts.append(_mapping_table(summary, caption="Calibration log10 K = a + b log10(Q/P_net)"))
     if len(residuals) and "k_slug" in residuals:
         parts.append(_calibration_figure(ctx.logs, residuals))
-        parts.append(_table(residuals, caption="Slug tests and residuals (K in m/s)"))
+        caption = f"Slug tests and residuals (K in m/s, depths in {ctx.length_unit})"
+        parts.append(_table(ctx.table(residuals), caption=caption))
     elif calibration.method == "slug_tests":
         parts.append(_note("The calibration carries no per-test residuals to plot."))
     return "".join(parts)
@@ -593,6 +665,7 @@ def _section_variograms(ctx: _Context) -> str:
         return _note("No variograms are available (no 3D model was built).")
     parts, rows = [], []
     units = {"log10_k": "(log10 m/s)\u00b2", "ec": "(mS/m)\u00b2"}
+    lag = ctx.length_unit
     for variable, fit in fits.items():
         vertical, horizontal, model = fit.vertical, fit.horizontal, fit.model
         max_v = float(vertical["lag"].max()) if len(vertical) else 5.0
@@ -604,22 +677,23 @@ def _section_variograms(ctx: _Context) -> str:
                 "model": model.kind,
                 "nugget": model.nugget,
                 "partial sill": model.sill,
-                "horizontal range (m)": model.range_h,
-                "vertical range (m)": model.range_v,
+                f"horizontal range ({lag})": float(ctx.length(float(model.range_h))),
+                f"vertical range ({lag})": float(ctx.length(float(model.range_v))),
                 "azimuth (\u00b0)": model.azimuth,
                 "minor/major": model.minor_ratio,
                 "fit RMSE": fit.rmse,
             }
         )
         fig = fg.variogram_figure(
-            vertical,
-            horizontal,
-            vertical_model=v_curve,
-            horizontal_model=h_curves,
+            _lags_shown(ctx, vertical),
+            _lags_shown(ctx, horizontal),
+            vertical_model=_curve_shown(ctx, v_curve),
+            horizontal_model={k: _curve_shown(ctx, c) for k, c in h_curves.items()},
             variable=variable,
             units=units.get(
                 variable, "normal score\u00b2" if "normal_score" in variable else "units\u00b2"
             ),
+            lag_unit=lag,
         )
         parts.append(
             _figure(
@@ -634,6 +708,17 @@ def _section_variograms(ctx: _Context) -> str:
     if rows:
         parts.insert(0, _table(pd.DataFrame(rows), caption="Fitted variogram models"))
     return "".join(parts)
+
+
+def _lags_shown(ctx: _Context, table: pd.DataFrame) -> pd.DataFrame:
+    if "lag" not in table:
+        return table
+    return table.assign(lag=ctx.length(table["lag"].to_numpy(dtype=float)))
+
+
+def _curve_shown(ctx: _Context, curve: tuple[np.ndarray, np.ndarray]) -> tuple[Any, Any]:
+    lags, gamma = curve
+    return ctx.length(np.asarray(lags, dtype=float)), gamma
 
 
 def _section_crossval(ctx: _Context) -> str:
@@ -688,11 +773,12 @@ def _derived_maps(ctx: _Context) -> dict[str, xr.DataArray]:
     return out
 
 
+#: Main maps: key, label, units ("length" = the output length unit).
 _MAIN_MAPS = (
-    ("transmissive_thickness", "transmissive thickness", "m"),
-    ("storage_thickness", "storage thickness", "m"),
+    ("transmissive_thickness", "transmissive thickness", "length"),
+    ("storage_thickness", "storage thickness", "length"),
     ("transmissivity", "transmissivity", "m\u00b2/s"),
-    ("transmissive_top_depth", "depth to the top of the main transmissive zone", "m"),
+    ("transmissive_top_depth", "depth to the top of the main transmissive zone", "length"),
 )
 _PERCENTILES = ("_p10", "_p50", "_p90")
 
@@ -704,9 +790,7 @@ def _is_water_map(key: str) -> bool:
 
 def _section_maps(ctx: _Context) -> str:
     given = {
-        str(k): v
-        for k, v in ctx.results.maps.items()
-        if isinstance(v, xr.DataArray) and set(v.dims) == {"y", "x"} and not _is_water_map(str(k))
+        k: v for k, v in ctx.maps.items() if set(v.dims) == {"y", "x"} and not _is_water_map(k)
     }
     derived = _derived_maps(ctx)
     if not any("thick" in k for k in given):
@@ -735,6 +819,7 @@ def _section_maps(ctx: _Context) -> str:
         else:
             known_units = next((u for k, _, u in _MAIN_MAPS if k == key), None)
             units = known_units or str(grid.attrs.get("units", "m"))
+            units = ctx.length_unit if units in ("m", "length") else units
             cmap, vmax = "viridis", None
             vmin = 0.0 if "thick" in key else None
             caption = f"{_esc(label)} ({_esc(units)})"
@@ -756,6 +841,7 @@ def _section_maps(ctx: _Context) -> str:
             vmax=vmax,
             boundary=ctx.boundary,
             borings=ctx.borings,
+            coordinate_unit=ctx.coord_unit,
         )
         fig.suptitle(label, fontsize=10)
         cell = _figure(fig, name=f"map-{key}", alt=label, caption=caption + ".")
@@ -781,7 +867,7 @@ def _section_sections(ctx: _Context) -> str:
     parts = []
     dx = float(np.abs(np.diff(ds["x"].values[:2]))[0]) if ds.sizes["x"] > 1 else 1.0
     surface = None if ctx.logs is None else ctx.logs.water_table
-    intervals = ctx.intervals
+    intervals = ctx.intervals_shown
     for line in ctx.sections:
         section = fg.sample_section(ds, line, variables=("facies_code", "log10_k", "mask"))
         projected = None
@@ -791,9 +877,8 @@ def _section_sections(ctx: _Context) -> str:
         water = None
         if surface is not None:
             try:
-                water = np.asarray(
-                    surface.elevation(section["x"].values, section["y"].values), dtype=float
-                )
+                qx, qy = ctx.frame.xy_internal(section["x"].values, section["y"].values)
+                water = np.asarray(ctx.length(surface.elevation(qx, qy)), dtype=float)
             except Exception as exc:  # a surface that cannot be evaluated is just not drawn
                 logger.warning("water table not drawn on section %s: %s", line.name, exc)
         fig = fg.section_figure(
@@ -802,8 +887,12 @@ def _section_sections(ctx: _Context) -> str:
             facies_names=ctx.facies_names,
             projected=projected,
             water_table=water,
+            distance_unit=ctx.coord_unit,
+            elevation_unit=ctx.length_unit,
         )
-        z = section["z"].values
+        # the same unit along both axes for the exaggeration
+        z = section["z"].values * factor(ctx.frame.length_unit, "length")
+        z = z / factor(ctx.frame.coordinate_unit, "length")
         ax = fig.axes[0]
         fig.canvas.draw()
         exaggeration = fg.vertical_exaggeration(
@@ -818,10 +907,12 @@ def _section_sections(ctx: _Context) -> str:
                 fig,
                 name=f"section-{line.name}",
                 alt=f"Cross-section {line.name}-{line.name}'",
-                caption=f"Section {line.name}-{line.name}' ({line.length:.0f} m, from "
+                caption=f"Section {line.name}-{line.name}' ({line.length:.0f} {ctx.coord_unit}, "
+                "from "
                 f"({line.start[0]:.0f}, {line.start[1]:.0f}) to ({line.end[0]:.0f}, "
                 f"{line.end[1]:.0f})): hydrofacies (top) and log10 K (bottom) of the voxel "
-                f"model, with the {n_borings} boring(s) within {max_offset:.0f} m projected "
+                f"model, with the {n_borings} boring(s) within {max_offset:.0f} {ctx.coord_unit} "
+                "projected "
                 f"onto it as narrow columns; vertical exaggeration about "
                 f"{exaggeration:.0f}\u00d7.",
             )
@@ -836,7 +927,7 @@ def _section_view3d(ctx: _Context) -> str:
     from geo3d.report.view3d import View3DUnavailable, render_model_view
 
     try:
-        view = render_model_view(ds, facies_names=ctx.facies_names, intervals=ctx.intervals)
+        view = render_model_view(ds, facies_names=ctx.facies_names, intervals=ctx.intervals_shown)
     except View3DUnavailable as exc:
         return _note(
             f"The 3D view could not be rendered on this machine ({_esc(exc)}); open "
@@ -884,8 +975,10 @@ def _section_volumes(ctx: _Context) -> str:
     volumes = ctx.results.volumes
     if volumes is None or not len(volumes):
         return _note("No volumes were computed (no treatment zones were given).")
+    volumes = ctx.table(volumes)
     text = _note(
-        "Volumes in m\u00b3 and areas in m\u00b2 (as the quantity names say). The estimate "
+        f"Volumes in {ctx.frame.volume_label} and areas in {ctx.frame.area_label} (as the "
+        "quantity names say). The estimate "
         "comes from the kriged model; P10/P50/P90 are the 10th, 50th and 90th percentiles over "
         "the conditional simulations: 80% of the simulated outcomes fall between P10 and P90."
     )
@@ -903,12 +996,14 @@ def _section_injection(ctx: _Context) -> str:
     parts = []
     for zone, plan in plans.items():
         parts.append(f"<h3>{_esc(zone)}</h3>")
-        summary = plan.summary
+        summary = mapping_to_output_units(
+            plan.summary, length_unit=ctx.frame.length_unit, volume_unit=ctx.frame.volume_unit
+        )
         if summary:
             parts.append(_mapping_table(summary, caption="Design summary"))
         schedule = plan.schedule
         if len(schedule):
-            parts.append(_schedule_table(schedule))
+            parts.append(_schedule_table(schedule, ctx.frame))
     return "".join(parts)
 
 
@@ -916,12 +1011,12 @@ def _first(frame: pd.DataFrame, names: Iterable[str]) -> str | None:
     return next((n for n in names if n in frame.columns), None)
 
 
-def _schedule_table(schedule: pd.DataFrame) -> str:
+def _schedule_table(schedule: pd.DataFrame, frame: OutputFrame) -> str:
     top = _first(schedule, ("top_depth", "top"))
     bottom = _first(schedule, ("bottom_depth", "bottom"))
     volume = _first(schedule, ("volume_m3", "volume"))
     if not (top and bottom and volume):
-        return _table(schedule, caption="Injection schedule")
+        return _table(to_output_units(schedule, frame=frame), caption="Injection schedule")
     if "interval" in schedule:
         key = schedule["interval"]
     else:
@@ -939,12 +1034,17 @@ def _schedule_table(schedule: pd.DataFrame) -> str:
         )
         .reset_index(drop=True)
     )
+    for column in ("top", "bottom"):
+        grouped[column] = frame.length(grouped[column].to_numpy(dtype=float))
+    for column in ("per_point", "total"):
+        grouped[column] = frame.volume(grouped[column].to_numpy(dtype=float))
+    length, volume_unit = frame.length_label, frame.volume_label
     grouped.columns = [
-        "mean top depth (m)",
-        "mean bottom depth (m)",
+        f"mean top depth ({length})",
+        f"mean bottom depth ({length})",
         "points",
-        "mean volume per point (m\u00b3)",
-        "total volume (m\u00b3)",
+        f"mean volume per point ({volume_unit})",
+        f"total volume ({volume_unit})",
     ]
     return _table(grouped, caption="Injection volume per depth interval (all points)")
 

@@ -1,9 +1,13 @@
 """One figure per boring: the injection log, what it gives, and its flags.
 
-Five panels share the depth axis (down): recorded pressure with its atmospheric and
-hydrostatic parts, net injection pressure, log-derived K (log axis), EC, and a hydrofacies
-strip from the composited intervals.  Flagged samples are marked with distinct symbols, so the
-marks read without colour.  Categorical colours are the Okabe-Ito colour-blind-safe palette.
+Six tracks share the depth axis (down), results first and the records they come from after:
+a hydrofacies strip from the composited intervals, log-derived K (log axis), net injection
+pressure, recorded pressure with its atmospheric and hydrostatic parts, injection flow, and EC.
+Values are shown in the units the site file declares.  Flagged samples are marked with distinct
+symbols, so the marks read without colour; a failed sensor check is a bold line across its
+sensor's track at the top (check before the log) or the bottom (after) with its values, and a
+run of missing EC is shaded and labelled, never drawn as a low reading.  Categorical colours
+are the Okabe-Ito colour-blind-safe palette.
 
 References
 ----------
@@ -15,7 +19,6 @@ from __future__ import annotations
 
 import io
 import warnings
-from typing import Any
 
 import matplotlib
 
@@ -28,6 +31,9 @@ from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.patches import Patch  # noqa: E402
 
 from geo3d.errors import Geo3dWarning  # noqa: E402
+from geo3d.io.output_frame import LENGTH_LABELS  # noqa: E402
+from geo3d.logs.sensor_checks import in_declared_units  # noqa: E402
+from geo3d.units import from_internal  # noqa: E402
 
 __all__ = ["OKABE_ITO", "LOG_FIGURE_DPI", "facies_colour", "log_figure", "log_figure_pngs"]
 
@@ -89,136 +95,241 @@ def _mark_flags(ax, depth, values, samples: pd.DataFrame, flags) -> list:
     return handles
 
 
-def _pressure_panel(ax_p: Any, axes: Any, s: pd.DataFrame, depth: np.ndarray) -> None:
-    """Draw the recorded pressure and its atmospheric and hydrostatic parts; the water table."""
-    ax_p.plot(s["pressure"], depth, color=OKABE_ITO["black"], lw=0.7, label="recorded")
-    if {"p_atm", "p_hydrostatic"} <= set(s.columns):
-        ax_p.plot(
-            s["p_atm"] + s["p_hydrostatic"],
-            depth,
-            color=OKABE_ITO["sky_blue"],
-            lw=1.2,
-            ls="--",
-            label="atmospheric + hydrostatic",
-        )
-    if "depth_to_water" in s and len(s):
-        dtw = float(s["depth_to_water"].iloc[0])
-        for ax in axes[:4]:
-            ax.axhline(dtw, color=OKABE_ITO["blue"], lw=0.8, ls=":")
-        ax_p.annotate(
-            "water table",
-            (1.0, dtw),
-            xycoords=("axes fraction", "data"),
-            ha="right",
-            va="bottom",
-            fontsize=7,
-            color=OKABE_ITO["blue"],
-        )
-    ax_p.set_xlabel("pressure (kPa)")
-    ax_p.set_ylabel("depth (m)")
-    ax_p.legend(loc="lower left", fontsize=7)
-
-
-def _facies_strip(ax_f: Any, intervals_of_boring: pd.DataFrame) -> None:
-    """Draw the hydrofacies of the intervals as coloured bands, with a legend."""
-    legend: dict[int, Patch] = {}
-    for row in intervals_of_boring.itertuples(index=False):
-        code = int(getattr(row, "facies_code", -1))
-        colour = facies_colour(code)
-        ax_f.axhspan(row.top, row.bottom, color=colour, lw=0)
-        name = str(getattr(row, "facies", "")) or "unclassified"
-        legend.setdefault(code, Patch(color=colour, label=name))
-    ax_f.set_xticks([])
-    ax_f.set_xlabel("facies")
-    if legend:
-        ax_f.legend(
-            handles=[legend[c] for c in sorted(legend)],
-            loc="upper left",
-            bbox_to_anchor=(1.0, 1.0),
-            fontsize=7,
-            frameon=False,
-        )
-
-
 def log_figure(
     samples_of_boring: pd.DataFrame,
     intervals_of_boring: pd.DataFrame,
     *,
     boring_id: str,
+    units=None,
+    checks: pd.DataFrame | None = None,
 ) -> Figure:
-    """Plot one boring's log, net pressure, K, EC and hydrofacies against depth.
+    """Plot one boring's hydrofacies, K, pressures, flow and EC against depth.
+
+    Tracks, left to right: the hydrofacies strip and log-derived K (what the log gives), then
+    net injection pressure, recorded pressure, injection flow and EC (what it was made from).
 
     Parameters
     ----------
     samples_of_boring
         Per-sample rows of one boring (``depth, pressure, p_atm, p_hydrostatic, p_net,
-        k_log, ec`` and flag columns).
+        flow, k_log, ec`` and flag columns), internal units.
     intervals_of_boring
         Composited intervals of the boring (``top, bottom, facies, facies_code``); may be empty.
     boring_id
         Shown in the title.
+    units
+        ``[units]`` of the site file: depth in ``output_length``, pressures in ``pressure``,
+        flow in ``flow`` and EC in ``ec``; None keeps m, kPa, mL/min and mS/m.
+    checks
+        Evaluated sensor checks of the boring (:func:`geo3d.logs.sensor_checks.
+        evaluate_sensor_checks`); each failed check is marked on its sensor's track at the
+        top (pre-log check) or the bottom (post-log check) of the log.
 
     Returns
     -------
     matplotlib.figure.Figure
         Not shown; the caller saves and closes it.
     """
+    shown = _units(units)
     s = samples_of_boring.sort_values("depth")
-    depth = s["depth"].to_numpy(dtype=float)
+    depth = from_internal(s["depth"].to_numpy(dtype=float), shown["length"], "length")
     fig, axes = plt.subplots(
         1,
-        5,
+        6,
         sharey=True,
-        figsize=(11, 8),
-        gridspec_kw={"width_ratios": [3, 3, 3, 3, 0.8]},
+        figsize=(12.5, 8),
+        gridspec_kw={"width_ratios": [0.8, 3, 3, 3, 3, 3]},
         constrained_layout=True,
     )
-    ax_p, ax_net, ax_k, ax_ec, ax_f = axes
+    ax_f, ax_k, ax_net, ax_p, ax_q, ax_ec = axes
+    tracks = axes[1:]
+    _facies_track(ax_f, intervals_of_boring, shown["length"])
+    ax_f.set_ylabel(f"depth ({LENGTH_LABELS.get(shown['length'], shown['length'])})")
 
-    _pressure_panel(ax_p, axes, s, depth)
+    handles = _k_track(ax_k, s, depth)
+    _net_pressure_track(ax_net, s, depth, shown["pressure"])
+    _pressure_track(ax_p, s, depth, shown["pressure"])
+    _flow_track(ax_q, s, depth, shown["flow"])
+    handles += _ec_track(ax_ec, s, depth, shown["ec"])
+    if handles:
+        ax_ec.legend(handles=handles, loc="lower right", fontsize=7)
+    if checks is not None and len(checks) and depth.size:
+        track_of = {"pressure": ax_p, "flow": ax_q, "ec": ax_ec}
+        _mark_checks(track_of, checks, units, float(np.nanmin(depth)), float(np.nanmax(depth)))
+    _water_line(s, tracks, ax_net, shown["length"])
+    if depth.size:
+        pad = float(from_internal(0.1, shown["length"], "length"))
+        ax_f.set_ylim(float(np.nanmax(depth)) + pad, max(0.0, float(np.nanmin(depth)) - pad))
+    for ax in tracks:
+        ax.grid(True, color="#DDDDDD", lw=0.5)
+    fig.suptitle(f"Boring {boring_id}")
+    return fig
 
-    if "p_net" in s:
-        p_net = s["p_net"].to_numpy(dtype=float)
-        ax_net.plot(p_net, depth, color=OKABE_ITO["bluish_green"], lw=0.7)
-        _mark_flags(ax_net, depth, p_net, s, ("out_of_range_high", "out_of_range_low"))
-        ax_net.axvline(0.0, color="#888888", lw=0.5)
-    ax_net.set_xlabel("net injection pressure (kPa)")
 
-    handles = []
+def _k_track(ax, s: pd.DataFrame, depth: np.ndarray) -> list:
+    handles: list = []
     if "k_log" in s:
         k = s["k_log"].to_numpy(dtype=float)
         good = np.isfinite(k) & (k > 0)
-        ax_k.plot(np.where(good, k, np.nan), depth, color=OKABE_ITO["blue"], lw=0.7)
+        ax.plot(np.where(good, k, np.nan), depth, color=OKABE_ITO["blue"], lw=0.7)
         handles += _mark_flags(
-            ax_k,
+            ax,
             depth,
             np.where(good, k, np.nan),
             s,
             ("out_of_range_high", "out_of_range_low", "sensor_check_failed"),
         )
         if good.any():
-            ax_k.set_xscale("log")
-    ax_k.set_xlabel("log-derived K (m/s)")
+            ax.set_xscale("log")
+    ax.set_xlabel("log-derived K (m/s)")
+    return handles
 
+
+def _net_pressure_track(ax, s: pd.DataFrame, depth: np.ndarray, unit: str) -> None:
+    if "p_net" in s:
+        p_net = from_internal(s["p_net"].to_numpy(dtype=float), unit, "pressure")
+        ax.plot(p_net, depth, color=OKABE_ITO["bluish_green"], lw=0.7)
+        _mark_flags(ax, depth, p_net, s, ("out_of_range_high", "out_of_range_low"))
+        ax.axvline(0.0, color="#888888", lw=0.5)
+    ax.set_xlabel(f"net injection pressure ({unit})")
+
+
+def _flow_track(ax, s: pd.DataFrame, depth: np.ndarray, unit: str) -> None:
+    if "flow" in s:
+        flow = from_internal(s["flow"].to_numpy(dtype=float), unit, "flow")
+        ax.plot(flow, depth, color=OKABE_ITO["reddish_purple"], lw=0.7)
+        _mark_flags(ax, depth, flow, s, ("out_of_range_low",))
+    ax.set_xlabel(f"injection flow ({unit})")
+
+
+def _ec_track(ax, s: pd.DataFrame, depth: np.ndarray, unit: str) -> list:
+    handles: list = []
     if "ec" in s:
-        ec = s["ec"].to_numpy(dtype=float)
-        ax_ec.plot(ec, depth, color=OKABE_ITO["orange"], lw=0.7)
-        handles += _mark_flags(ax_ec, depth, ec, s, ("spike", "ionic"))
-    ax_ec.set_xlabel("EC (mS/m)")
-    if handles:
-        ax_ec.legend(handles=handles, loc="lower right", fontsize=7)
-
-    _facies_strip(ax_f, intervals_of_boring)
-
-    if depth.size:
-        ax_p.set_ylim(float(np.nanmax(depth)) + 0.1, max(0.0, float(np.nanmin(depth)) - 0.1))
-    for ax in axes[:4]:
-        ax.grid(True, color="#DDDDDD", lw=0.5)
-    fig.suptitle(f"Boring {boring_id}")
-    return fig
+        ec = from_internal(s["ec"].to_numpy(dtype=float), unit, "ec")
+        ax.plot(ec, depth, color=OKABE_ITO["orange"], lw=0.7)
+        handles = _mark_flags(ax, depth, ec, s, ("spike", "ionic"))
+        _shade_gaps(ax, depth, ec)
+    ax.set_xlabel(f"EC ({unit})")
+    return handles
 
 
-def log_figure_pngs(samples: pd.DataFrame, intervals: pd.DataFrame) -> dict[str, bytes]:
+def _units(units) -> dict[str, str]:
+    return {
+        "length": str(getattr(units, "output_length", "m")),
+        "pressure": str(getattr(units, "pressure", "kPa")),
+        "flow": str(getattr(units, "flow", "mL/min")),
+        "ec": str(getattr(units, "ec", "mS/m")),
+    }
+
+
+def _facies_track(ax, intervals: pd.DataFrame, length_unit: str) -> None:
+    legend = {}
+    for row in intervals.itertuples(index=False):
+        code = int(getattr(row, "facies_code", -1))
+        colour = facies_colour(code)
+        top, bottom = from_internal(np.array([row.top, row.bottom], float), length_unit, "length")
+        ax.axhspan(top, bottom, color=colour, lw=0)
+        name = str(getattr(row, "facies", "")) or "unclassified"
+        legend.setdefault(code, Patch(color=colour, label=name))
+    ax.set_xticks([])
+    ax.set_xlabel("facies")
+    if legend:
+        ax.legend(
+            handles=[legend[c] for c in sorted(legend)],
+            loc="upper center",
+            bbox_to_anchor=(0.5, -0.06),
+            fontsize=7,
+            frameon=False,
+        )
+
+
+def _pressure_track(ax, s: pd.DataFrame, depth: np.ndarray, unit: str) -> None:
+    def shown(column: str) -> np.ndarray:
+        return from_internal(s[column].to_numpy(dtype=float), unit, "pressure")
+
+    if "pressure" in s:
+        ax.plot(shown("pressure"), depth, color=OKABE_ITO["black"], lw=0.7, label="recorded")
+    if {"p_atm", "p_hydrostatic"} <= set(s.columns):
+        ax.plot(
+            shown("p_atm") + shown("p_hydrostatic"),
+            depth,
+            color=OKABE_ITO["sky_blue"],
+            lw=1.2,
+            ls="--",
+            label="atmospheric + hydrostatic",
+        )
+    ax.set_xlabel(f"pressure ({unit})")
+    ax.legend(loc="lower left", fontsize=7)
+
+
+def _water_line(s: pd.DataFrame, tracks, label_ax, length_unit: str) -> None:
+    if "depth_to_water" not in s or not len(s):
+        return
+    dtw = float(from_internal(float(s["depth_to_water"].iloc[0]), length_unit, "length"))
+    if not np.isfinite(dtw):
+        return
+    for ax in tracks:
+        ax.axhline(dtw, color=OKABE_ITO["blue"], lw=0.8, ls=":")
+    label_ax.annotate(
+        "water table",
+        (1.0, dtw),
+        xycoords=("axes fraction", "data"),
+        ha="right",
+        va="bottom",
+        fontsize=7,
+        color=OKABE_ITO["blue"],
+    )
+
+
+def _shade_gaps(ax, depth: np.ndarray, ec: np.ndarray) -> None:
+    """Shade runs of missing EC (a logger gap), so that a gap never reads as a low value."""
+    missing = ~np.isfinite(ec)
+    if not missing.any() or missing.all():
+        return
+    edges = np.flatnonzero(np.diff(np.r_[0, missing.astype(int), 0]))
+    for first, stop in zip(edges[::2], edges[1::2], strict=True):
+        ax.axhspan(depth[first], depth[stop - 1], color="#CCCCCC", lw=0, zorder=0)
+        ax.annotate(
+            "no EC",
+            (0.02, (depth[first] + depth[stop - 1]) / 2),
+            xycoords=("axes fraction", "data"),
+            fontsize=7,
+            va="center",
+            color="#555555",
+        )
+
+
+def _mark_checks(track_of, checks: pd.DataFrame, units, top: float, bottom: float) -> None:
+    """Mark each failed sensor check on its sensor's track, with its values in declared units."""
+    status = checks["passed"].fillna(False).astype(bool) if "passed" in checks else None
+    if status is None:
+        return
+    for row in in_declared_units(checks[~status], units).itertuples(index=False):
+        ax = track_of.get(str(row.sensor))
+        if ax is None:
+            continue
+        at = top if str(row.stage) == "pre" else bottom
+        ax.axhline(at, color=OKABE_ITO["vermillion"], lw=2.0)
+        ax.annotate(
+            f"{row.stage}-log {row.sensor} check failed:\n{row.measured:.4g} {row.unit} "
+            f"(expected {row.expected:.4g} \u00b1 {row.tolerance:.4g})",
+            (0.98, at),
+            xycoords=("axes fraction", "data"),
+            ha="right",
+            va="bottom" if str(row.stage) != "pre" else "top",
+            fontsize=7,
+            color=OKABE_ITO["vermillion"],
+            bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.8},
+        )
+
+
+def log_figure_pngs(
+    samples: pd.DataFrame,
+    intervals: pd.DataFrame,
+    *,
+    units=None,
+    checks: pd.DataFrame | None = None,
+) -> dict[str, bytes]:
     """Draw :func:`log_figure` for every boring, as PNG bytes.
 
     Parameters
@@ -227,6 +338,10 @@ def log_figure_pngs(samples: pd.DataFrame, intervals: pd.DataFrame) -> dict[str,
         Per-sample table of the logs stage (every boring).
     intervals
         Composited intervals of the logs stage.
+    units
+        ``[units]`` of the site file: the figures show the declared units.
+    checks
+        Evaluated sensor checks of the site; each boring's failed checks are marked.
 
     Returns
     -------
@@ -237,9 +352,18 @@ def log_figure_pngs(samples: pd.DataFrame, intervals: pd.DataFrame) -> dict[str,
     intervals_by = dict(tuple(intervals.groupby("boring_id", sort=True)))
     empty = intervals.iloc[0:0]
     for boring_id, log in samples.groupby("boring_id", sort=True):
+        own = None
+        if checks is not None and len(checks) and "boring_id" in checks:
+            own = checks[checks["boring_id"].astype(str) == str(boring_id)]
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", Geo3dWarning)
-            fig = log_figure(log, intervals_by.get(boring_id, empty), boring_id=str(boring_id))
+            fig = log_figure(
+                log,
+                intervals_by.get(boring_id, empty),
+                boring_id=str(boring_id),
+                units=units,
+                checks=own,
+            )
         buffer = io.BytesIO()
         fig.savefig(buffer, format="png", dpi=LOG_FIGURE_DPI)
         plt.close(fig)
