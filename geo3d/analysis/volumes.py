@@ -413,7 +413,9 @@ def zone_volumes(
         codes = classify_log10_k(ds["log10_k"].values, table).astype(int)
     known = codes >= 0
     sims: list[np.ndarray] = []
-    if "realizations" in ds and ds.sizes.get("realization", 0) > 0:
+    if "facies_realizations" in ds:
+        sims = [ds["facies_realizations"].values[r] for r in range(ds.sizes["realization"])]
+    elif "realizations" in ds and ds.sizes.get("realization", 0) > 0:
         for r in range(ds.sizes["realization"]):
             sims.append(classify_log10_k(ds["realizations"].isel(realization=r).values, table))
     mask = ds.voxels.mask
