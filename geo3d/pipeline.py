@@ -208,6 +208,7 @@ def run_model(
     *,
     n_realizations: int | None = None,
     progress: ProgressCallback | None = None,
+    engine: str = "gaussian",
 ) -> Any:
     """Build the voxel model (kriging, cross-validation, simulations) from the intervals.
 
@@ -221,12 +222,21 @@ def run_model(
         Overrides ``[simulation] realizations`` (0 = no simulation).
     progress
         Progress callback (see :data:`ProgressCallback`).
+    engine
+        ``"gaussian"``: kriging and Gaussian simulations of log10 K, facies by thresholds
+        (:func:`geo3d.model.build_voxel_model`); ``"facies"``: facies first, composited within
+        facies runs, then log10 K within each facies
+        (:func:`geo3d.facies_first.build_facies_first_model`).
 
     Returns
     -------
     geo3d.model.ModelResult
     """
     from geo3d.model import build_voxel_model
+
+    if engine not in ("gaussian", "facies"):
+        msg = f"model engine {engine!r} is unknown; expected 'gaussian' or 'facies'"
+        raise ModelError(msg)
 
     options = model_options(site, n_realizations=n_realizations)
     callback = None
@@ -235,12 +245,38 @@ def run_model(
         def callback(fraction: float, message: str = "") -> None:
             progress("model", float(fraction), str(message))
 
+    if engine == "facies":
+        return _facies_first(site, logs, options, callback)
     return build_voxel_model(
         logs.intervals,
         boundary=site.boundary,
         borings=site.borings,
         crs=site.crs,
         facies_classes=_facies_classes(site, logs),
+        water_table=getattr(logs, "water_table", None),
+        dem=getattr(site, "dem", None),
+        progress=callback,
+        **options,
+    )
+
+
+def _facies_first(site: Any, logs: Any, options: dict[str, Any], callback: Any) -> Any:
+    from geo3d.facies_first import build_facies_first_model
+    from geo3d.logs.runs import composite_runs
+
+    classes = _facies_classes(site, logs)
+    intervals = composite_runs(
+        logs.samples,
+        classes,
+        interval=float(site.config.composite.interval),
+        min_thickness=float(site.config.facies.min_thickness),
+    )
+    return build_facies_first_model(
+        intervals,
+        boundary=site.boundary,
+        borings=site.borings,
+        crs=site.crs,
+        facies_classes=classes,
         water_table=getattr(logs, "water_table", None),
         dem=getattr(site, "dem", None),
         progress=callback,

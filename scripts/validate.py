@@ -2,7 +2,8 @@
 
 Usage::
 
-    python scripts/validate.py --sites N --seed S [--keep FOLDER] [--csv FILE]
+    python scripts/validate.py --sites N --seed S [--engine gaussian|facies] [--keep FOLDER]
+        [--csv FILE]
 
 Draws N sites (seeds S, S+1, ...) with :mod:`geo3d.validation.truth`, runs the whole job on
 each through the library and prints, per site, every zone-facies volume and the saturated site
@@ -43,6 +44,9 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--sites", type=int, default=10, help="number of sites")
     parser.add_argument("--seed", type=int, default=1, help="seed of the first site")
+    parser.add_argument(
+        "--engine", default="gaussian", choices=["gaussian", "facies"], help="model engine"
+    )
     parser.add_argument("--keep", type=Path, default=None, help="keep the site folders here")
     parser.add_argument("--csv", type=Path, default=None, help="write every score row here")
     args = parser.parse_args()
@@ -53,7 +57,7 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as scratch:
         folder = args.keep or Path(scratch)
         for seed in range(args.seed, args.seed + args.sites):
-            score = run_site(seed, folder)
+            score = run_site(seed, folder, engine=args.engine)
             _print_site(score)
             scores.append(score)
     if args.csv is not None:

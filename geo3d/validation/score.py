@@ -184,17 +184,14 @@ def score_volumes(
     return pd.concat([zone_rows, site_rows], ignore_index=True)
 
 
-def _default_model(site: Any, logs: Any) -> Any:
-    from geo3d.pipeline import run_model
-
-    return run_model(site, logs)
-
-
 def run_site(
     seed: int,
     folder: str | PathLike,
     *,
+    engine: str = "gaussian",
     model: Callable[[Any, Any], Any] | None = None,
+    n_borings: int | None = None,
+    n_realizations: int | None = None,
 ) -> SiteScore:
     """Draw a site, write it, run the job on it and score the volumes.
 
@@ -204,15 +201,21 @@ def run_site(
         Seed of the site.
     folder
         Where the site folder is written (``<folder>/site_<seed>``).
+    engine
+        Model engine of :func:`geo3d.pipeline.run_model` (``"gaussian"`` or ``"facies"``).
     model
-        ``model(site, logs) -> ModelResult``; default the model stage of the pipeline.
+        ``model(site, logs) -> ModelResult`` to use instead of the pipeline's model stage.
+    n_borings
+        Number of borings of the site (default drawn).
+    n_realizations
+        Overrides the site's realization count (20).
 
     Returns
     -------
     SiteScore
     """
     from geo3d.analysis.volumes import zone_volumes
-    from geo3d.pipeline import run_logs
+    from geo3d.pipeline import run_logs, run_model
     from geo3d.site import read_site
     from geo3d.validation.sitefolder import write_site
     from geo3d.validation.truth import draw_site
@@ -227,7 +230,7 @@ def run_site(
         timings[name] = now - clock
         clock = now
 
-    truth_site = draw_site(seed)
+    truth_site = draw_site(seed, n_borings=n_borings)
     path = write_site(truth_site, Path(folder) / f"site_{seed}")
     truth = pd.DataFrame(json.loads((path / "truth" / "truth.json").read_text())["volumes"])
     lap("truth")
@@ -236,7 +239,10 @@ def run_site(
         site = read_site(path)
         logs = run_logs(site)
         lap("logs")
-        result = (model or _default_model)(site, logs)
+        if model is not None:
+            result = model(site, logs)
+        else:
+            result = run_model(site, logs, engine=engine, n_realizations=n_realizations)
         lap("model")
         zones = site.zones if len(site.zones) else None
         zone_table = zone_volumes(result.dataset, zones)
