@@ -208,6 +208,26 @@ def _ec(table: pd.DataFrame, targets: np.ndarray, variogram, kriging) -> tuple[n
     return OrdinaryKriging(fit.model, **dict(kriging)).fit(coords, values, groups).predict(targets)
 
 
+def _facies_variables(
+    ds: xr.Dataset, sims: np.ndarray, names: Sequence[str]
+) -> tuple[xr.Dataset, np.ndarray]:
+    """Add ``prob_<facies>``, ``facies_code``, ``facies_realizations``; return the probabilities."""
+    dims = ("z", "y", "x")
+    mask = ds["mask"].values
+    realizations = np.full((len(sims),) + mask.shape, -1, dtype=np.int8)
+    realizations[:, mask] = sims
+    prob = np.full((len(names),) + mask.shape, np.nan)
+    for k, name in enumerate(names):
+        prob[k][mask] = (sims == k).mean(axis=0)
+        ds[f"prob_{name}"] = (dims, prob[k])
+        ds[f"prob_{name}"].attrs["long_name"] = f"probability of {name} (facies simulations)"
+    codes = np.full(mask.shape, -1, dtype=np.int8)
+    codes[mask] = np.argmax(prob[:, mask], axis=0)
+    ds["facies_code"] = (dims, codes)
+    ds["facies_realizations"] = (("realization",) + dims, realizations)
+    return ds.assign_coords(realization=np.arange(len(sims))), prob
+
+
 def _settings(variogram: Any, kriging: Any) -> tuple[dict[str, Any], dict[str, Any]]:
     """Pick the variogram and kriging options this model uses from the pipeline's mappings."""
     variogram = dict(variogram or {})
@@ -277,18 +297,7 @@ def build_facies_first_model(
     if progress is not None:
         progress(0.6, "facies simulation")
     dims = ("z", "y", "x")
-    realizations = np.full((n_realizations,) + mask.shape, -1, dtype=np.int8)
-    realizations[:, mask] = sims
-    prob = np.full((n_classes,) + mask.shape, np.nan)
-    for k, name in enumerate(facies.names):
-        prob[k][mask] = (sims == k).mean(axis=0)
-        ds[f"prob_{name}"] = (dims, prob[k])
-        ds[f"prob_{name}"].attrs["long_name"] = f"probability of {name} (facies simulations)"
-    codes = np.full(mask.shape, -1, dtype=np.int8)
-    codes[mask] = np.argmax(prob[:, mask], axis=0)
-    ds["facies_code"] = (dims, codes)
-    ds["facies_realizations"] = (("realization",) + dims, realizations)
-    ds = ds.assign_coords(realization=np.arange(n_realizations))
+    ds, prob = _facies_variables(ds, sims, facies.names)
     log10_k, log10_k_var = _log10_k(table, ds, prob, saturated, v_opts, k_opts)
     ds["log10_k"] = (dims, log10_k)
     ds["log10_k_var"] = (dims, log10_k_var)

@@ -24,6 +24,11 @@ def test_censored_fit_recovers_the_normal_law():
     assert naive > -6.0 + 0.05  # setting censored values at the bound biases the mean up
 
 
+def test_all_censored_values_stay_at_their_bounds():
+    mu, sigma = fit_censored_normal(np.full(10, -7.5), np.full(10, "upper"))
+    assert (mu, sigma) == (-7.5, 1e-3)
+
+
 def test_truncated_expectations():
     # Johnson, Kotz & Balakrishnan (1994) sec. 10.1: E[X | X <= 0] = -phi(0)/Phi(0) =
     # -sqrt(2/pi) for the standard normal; E[X | X >= 1] = phi(1) / (1 - Phi(1))

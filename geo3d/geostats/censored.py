@@ -41,7 +41,9 @@ def fit_censored_normal(
     Returns
     -------
     tuple of float
-        Mean and standard deviation (at least 1e-3).
+        Mean and standard deviation (at least 1e-3).  With fewer than two exact values the
+        spread cannot be estimated: the mean of the values and a standard deviation of 1e-3
+        are returned, so that censored values stay at their bounds.
     """
     x = np.asarray(values, float)
     kind = np.full(x.size, "", dtype=object) if censored is None else np.asarray(censored)
@@ -50,6 +52,8 @@ def fit_censored_normal(
     start_sd = float(np.std(x)) if x.size > 1 and np.std(x) > 0 else 0.3
     if exact.all() or x.size < 3:
         return float(np.mean(x)), max(start_sd, 1e-3)
+    if exact.sum() < 2:
+        return float(np.mean(x)), 1e-3
 
     def nll(theta: np.ndarray) -> float:
         mu, log_sd = theta
