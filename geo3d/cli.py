@@ -270,29 +270,42 @@ def check(site: Path) -> None:
 # --------------------------------------------------------------------------- run and stages
 
 
-def _out_options(function: F) -> F:
-    """Add the options shared by the run and stage commands."""
-    function = click.option("--no-progress", is_flag=True, help="Do not show progress bars.")(
-        function
-    )
-    function = click.option(
-        "--realizations",
-        type=click.IntRange(min=0),
-        default=None,
-        help="Number of conditional simulations (overrides [simulation] realizations).",
-    )(function)
-    function = click.option(
-        "--overwrite", is_flag=True, help="Replace OUT if it exists (only once the run succeeded)."
-    )(function)
-    function = click.option(
-        "-o",
-        "--out",
-        "out_dir",
-        type=click.Path(file_okay=False, path_type=Path),
-        required=True,
-        help="Output folder (must be new or empty unless --overwrite).",
-    )(function)
-    return function
+def _out_options(*, default_out: Path | None = None) -> Callable[[F], F]:
+    """Add the options shared by the run, stage and demo commands.
+
+    ``-o/--out`` is required unless ``default_out`` is given.
+    """
+    options = [
+        click.option(
+            "-o",
+            "--out",
+            "out_dir",
+            type=click.Path(file_okay=False, path_type=Path),
+            required=default_out is None,
+            default=default_out,
+            show_default=default_out is not None,
+            help="Output folder (must be new or empty unless --overwrite).",
+        ),
+        click.option(
+            "--overwrite",
+            is_flag=True,
+            help="Replace OUT if it exists (only once the run succeeded).",
+        ),
+        click.option(
+            "--realizations",
+            type=click.IntRange(min=0),
+            default=None,
+            help="Number of conditional simulations (overrides [simulation] realizations).",
+        ),
+        click.option("--no-progress", is_flag=True, help="Do not show progress bars."),
+    ]
+
+    def decorate(function: F) -> F:
+        for option in reversed(options):
+            function = option(function)
+        return function
+
+    return decorate
 
 
 class _StageProgress:
@@ -445,33 +458,14 @@ def _terminate_as_interrupt():
         signal.signal(signal.SIGTERM, previous)
 
 
-@main.command("run")
-@click.argument("site", type=SITE_PATH)
-@_out_options
-@handle_errors
-def run_command(
-    site: Path, out_dir: Path, overwrite: bool, realizations: int | None, no_progress: bool
-) -> None:
-    """Run the whole job on SITE and write every output into OUT.
+def _stage_command(name: str, doc: str) -> click.Command:
+    """Make the command ``name``: the stage of that name, or the whole job for ``run``."""
+    whole = name == "run"
+    title = "Run complete." if whole else f"Stage '{name}' complete."
 
-    Reads and checks the site, processes the logs, builds the voxel model with its simulations,
-    computes maps, volumes and injection plans, and writes the tables, VTK, GeoTIFF,
-    GeoPackage and NetCDF files, the report and run.log.
-    """
-    _run_stages(
-        site,
-        out_dir,
-        overwrite=overwrite,
-        realizations=realizations,
-        no_progress=no_progress,
-        title="Run complete.",
-    )
-
-
-def _stage_command(name: str, doc: str):
     @main.command(name, help=doc)
     @click.argument("site", type=SITE_PATH)
-    @_out_options
+    @_out_options()
     @handle_errors
     def command(
         site: Path, out_dir: Path, overwrite: bool, realizations: int | None, no_progress: bool
@@ -479,17 +473,23 @@ def _stage_command(name: str, doc: str):
         _run_stages(
             site,
             out_dir,
-            stages=(name,),
+            stages=None if whole else (name,),
             overwrite=overwrite,
             realizations=realizations,
             no_progress=no_progress,
-            title=f"Stage '{name}' complete.",
+            title=title,
         )
 
-    command.__name__ = f"{name}_command"
     return command
 
 
+run_command = _stage_command(
+    "run",
+    "Run the whole job on SITE and write every output into OUT.\n\n"
+    "Reads and checks the site, processes the logs, builds the voxel model with its "
+    "simulations, computes maps, volumes and injection plans, and writes the tables, VTK, "
+    "GeoTIFF, GeoPackage and NetCDF files, the report and run.log.",
+)
 logs_command = _stage_command(
     "logs",
     "Process the injection logs of SITE (water level, K, flags, intervals, hydrofacies) and "
@@ -541,23 +541,7 @@ def demo_site_path() -> Path:
 
 
 @main.command()
-@click.option(
-    "-o",
-    "--out",
-    "out_dir",
-    type=click.Path(file_okay=False, path_type=Path),
-    default=Path("geo3d-demo"),
-    show_default=True,
-    help="Output folder.",
-)
-@click.option("--overwrite", is_flag=True, help="Replace the output folder if it exists.")
-@click.option(
-    "--realizations",
-    type=click.IntRange(min=0),
-    default=None,
-    help="Number of conditional simulations (default from the demo site file).",
-)
-@click.option("--no-progress", is_flag=True, help="Do not show progress bars.")
+@_out_options(default_out=Path("geo3d-demo"))
 @handle_errors
 def demo(out_dir: Path, overwrite: bool, realizations: int | None, no_progress: bool) -> None:
     """Run the whole job on the bundled demo site into a folder (default ./geo3d-demo)."""

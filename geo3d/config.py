@@ -19,13 +19,23 @@ from __future__ import annotations
 import difflib
 import re
 import tomllib
+from dataclasses import dataclass
 from os import PathLike
 from pathlib import Path
 from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    ValidationError,
+    ValidationInfo,
+    field_validator,
+    model_validator,
+)
 
-from geo3d.errors import CRSError, SiteFileError, UnitError, where
+from geo3d.errors import CRSError, SiteFileError, SiteValidationError, UnitError, where
+from geo3d.facies import DEFAULT_CLASSES, FaciesClass, FaciesClasses
 from geo3d.units import check_unit, to_internal
 
 __all__ = [
@@ -46,6 +56,9 @@ __all__ = [
     "SimulationSection",
     "TreatmentSection",
     "OutputSection",
+    "LogsOptions",
+    "ModelOptions",
+    "VolumeOptions",
     "load_config",
     "config_from_dict",
     "TEMPLATE",
@@ -71,6 +84,18 @@ class SiteSection(_Section):
     )
 
 
+#: Field of ``[units]`` -> the quantity its unit must measure.
+_UNIT_FIELDS = {
+    "length": "length",
+    "output_length": "length",
+    "pressure": "pressure",
+    "flow": "flow",
+    "ec": "ec",
+    "k": "k",
+    "output_volume": "volume",
+}
+
+
 class UnitsSection(_Section):
     """``[units]``: the units of the input files and of the tables written for people."""
 
@@ -89,42 +114,13 @@ class UnitsSection(_Section):
     output_length: str = Field("m", description="Length unit of tables written for people.")
     output_volume: str = Field("m3", description="Volume unit of tables written for people.")
 
-    @field_validator("length", "output_length")
+    @field_validator(*_UNIT_FIELDS)
     @classmethod
-    def _length(cls, value: str) -> str:
-        return _check(value, "length")
-
-    @field_validator("pressure")
-    @classmethod
-    def _pressure(cls, value: str) -> str:
-        return _check(value, "pressure")
-
-    @field_validator("flow")
-    @classmethod
-    def _flow(cls, value: str) -> str:
-        return _check(value, "flow")
-
-    @field_validator("ec")
-    @classmethod
-    def _ec(cls, value: str) -> str:
-        return _check(value, "ec")
-
-    @field_validator("k")
-    @classmethod
-    def _k(cls, value: str) -> str:
-        return _check(value, "k")
-
-    @field_validator("output_volume")
-    @classmethod
-    def _volume(cls, value: str) -> str:
-        return _check(value, "volume")
-
-
-def _check(value: str, quantity: str) -> str:
-    try:
-        return check_unit(value, quantity)
-    except UnitError as exc:
-        raise ValueError(str(exc)) from None
+    def _unit(cls, value: str, info: ValidationInfo) -> str:
+        try:
+            return check_unit(value, _UNIT_FIELDS[str(info.field_name)])
+        except UnitError as exc:
+            raise ValueError(str(exc)) from None
 
 
 class FilesSection(_Section):
@@ -298,6 +294,13 @@ class FaciesClassConfig(_Section):
     )
     porosity: float = Field(gt=0, lt=1, description="Total porosity (fraction).")
     effective_porosity: float = Field(gt=0, lt=1, description="Effective porosity (fraction).")
+    ec_max: float | None = Field(
+        None,
+        gt=0,
+        description="EC cut-off, in [units] ec: an interval of this class with a higher bulk "
+        "EC is moved down one class (high EC means finer grains; thresholds method only); "
+        "omitted = no cut-off.",
+    )
 
     @model_validator(mode="after")
     def _porosities(self) -> FaciesClassConfig:
@@ -311,16 +314,14 @@ class FaciesClassConfig(_Section):
 
 
 def _default_classes() -> list[FaciesClassConfig]:
-    # Thresholds: common practice; porosities after Freeze & Cherry (1979) Table 2.4 and
-    # Johnson (1967), as in the template.
     return [
-        FaciesClassConfig(name="storage", log10_k_max=-7.0, porosity=0.45, effective_porosity=0.05),
         FaciesClassConfig(
-            name="transitional", log10_k_max=-5.0, porosity=0.38, effective_porosity=0.15
-        ),
-        FaciesClassConfig(
-            name="transmissive", log10_k_max=0.0, porosity=0.32, effective_porosity=0.25
-        ),
+            name=c.name,
+            log10_k_max=c.log10_k_max,
+            porosity=c.porosity,
+            effective_porosity=c.effective_porosity,
+        )
+        for c in DEFAULT_CLASSES
     ]
 
 
@@ -485,6 +486,27 @@ class SiteConfig(_Section):
     )
     output: OutputSection = Field(default_factory=OutputSection, description="Outputs.")
 
+    def facies_classes(self) -> FaciesClasses:
+        """Return the ``[[facies.classes]]`` as the one facies-class type."""
+        return FaciesClasses(
+            tuple(
+                FaciesClass(c.name, c.log10_k_max, c.porosity, c.effective_porosity)
+                for c in self.facies.classes
+            )
+        )
+
+    def logs_options(self) -> LogsOptions:
+        """Return the settings of the logs stage (see :class:`LogsOptions`)."""
+        return _logs_options(self)
+
+    def model_options(self) -> ModelOptions:
+        """Return the settings of the model stage (see :class:`ModelOptions`)."""
+        return _model_options(self)
+
+    def volume_options(self) -> VolumeOptions:
+        """Return the settings of the volumes stage (see :class:`VolumeOptions`)."""
+        return _volume_options(self)
+
 
 _LENGTHS = {
     "probe": ("screen_length", "screen_diameter"),
@@ -527,6 +549,14 @@ def _to_internal(config: SiteConfig) -> SiteConfig:
         for flow, pressure in config.probe.tool_loss
     ]
     updates["probe"] = probe.model_copy(update={"tool_loss": tool_loss})
+    facies = updates["facies"]
+    classes = [
+        c
+        if c.ec_max is None
+        else c.model_copy(update={"ec_max": to_internal(c.ec_max, units.ec, "ec")})
+        for c in facies.classes
+    ]
+    updates["facies"] = facies.model_copy(update={"classes": classes})
     return config.model_copy(update=updates)
 
 
@@ -603,8 +633,6 @@ def _raise(problems: list[tuple[type[Exception], str]]) -> None:
     if len(problems) == 1:
         cls, message = problems[0]
         raise cls(message)
-    from geo3d.site import SiteValidationError
-
     raise SiteValidationError([m for _, m in problems])
 
 
@@ -699,3 +727,234 @@ def load_config(path: str | PathLike) -> SiteConfig:
         msg = f"{where(file, line=line)}: not valid TOML ({exc})"
         raise SiteFileError(msg) from None
     return config_from_dict(data, path=file, text=text)
+
+
+# --- logs stage options ---------------------------------------------------------------------
+# The settings of the logs stage, built from a validated SiteConfig in one place: every value
+# is read from the schema above (no default is repeated here) and "auto" becomes None.
+
+
+@dataclass(frozen=True)
+class LogsOptions:
+    """Settings of the logs stage, in internal units (m, kPa, m3/s, mS/m).
+
+    Attributes
+    ----------
+    gauge
+        The logger records gauge pressure (``[units] pressure_reference``).
+    atmospheric_pressure
+        Given atmospheric pressure; None = from the collar readings.
+    tool_loss
+        ``(flow, pressure)`` pairs measured in open water.
+    probe_shape, screen_length, screen_diameter
+        The injection screen (``[probe]``).
+    sensor_noise, pressure_limit
+        The pressure sensor (``[probe]``).
+    depth_to_water
+        A site-wide depth to water; None = from the dissipation tests.
+    min_fraction_dissipated
+        Dissipation records dissipating less are refused.
+    water_surface
+        ``'plane'`` or ``'kriging'``: the site-wide water-table surface.
+    out_of_range_high_factor, min_flow_fraction, pressure_limit_fraction
+        Limits of the resolution flags (``[flags]``).
+    hampel_window, hampel_k
+        EC spike filter (``[flags]``).
+    ionic_sigma
+        Ionic-EC flag threshold in residual SDs.
+    min_slug_tests
+        Fewer slug tests than this: physics-only K.
+    composite_interval
+        Length of the composited intervals.
+    facies_method
+        ``'thresholds'`` or ``'mixture'``.
+    min_thickness
+        Thinner hydrofacies runs are merged into their neighbours.
+    facies_classes
+        The hydrofacies classes.
+    ec_cutoffs
+        EC cut-off per class (None = no cut-off), or None when no class has one.
+    seed
+        Random state of the Gaussian mixture (``[simulation] seed``).
+    """
+
+    gauge: bool
+    atmospheric_pressure: float | None
+    tool_loss: tuple[tuple[float, float], ...]
+    probe_shape: str
+    screen_length: float
+    screen_diameter: float
+    sensor_noise: float
+    pressure_limit: float
+    depth_to_water: float | None
+    min_fraction_dissipated: float
+    water_surface: str
+    out_of_range_high_factor: float
+    min_flow_fraction: float
+    pressure_limit_fraction: float
+    hampel_window: float
+    hampel_k: float
+    ionic_sigma: float
+    min_slug_tests: int
+    composite_interval: float
+    facies_method: str
+    min_thickness: float
+    facies_classes: FaciesClasses
+    ec_cutoffs: tuple[float | None, ...] | None
+    seed: int
+
+
+def _logs_options(config: SiteConfig) -> LogsOptions:
+    probe, water, flags, facies = config.probe, config.water, config.flags, config.facies
+    cutoffs = tuple(c.ec_max for c in facies.classes)
+    return LogsOptions(
+        gauge=config.units.pressure_reference == "gauge",
+        atmospheric_pressure=_auto_none(probe.atmospheric_pressure),
+        tool_loss=tuple((float(q), float(p)) for q, p in probe.tool_loss),
+        probe_shape=probe.shape,
+        screen_length=probe.screen_length,
+        screen_diameter=probe.screen_diameter,
+        sensor_noise=probe.sensor_noise,
+        pressure_limit=probe.pressure_limit,
+        depth_to_water=_auto_none(water.depth_to_water),
+        min_fraction_dissipated=water.min_fraction_dissipated,
+        water_surface=water.surface,
+        out_of_range_high_factor=flags.out_of_range_high_factor,
+        min_flow_fraction=flags.min_flow_fraction,
+        pressure_limit_fraction=flags.pressure_limit_fraction,
+        hampel_window=flags.hampel_window,
+        hampel_k=flags.hampel_k,
+        ionic_sigma=flags.ionic_sigma,
+        min_slug_tests=flags.min_slug_tests,
+        composite_interval=config.composite.interval,
+        facies_method=facies.method,
+        min_thickness=facies.min_thickness,
+        facies_classes=config.facies_classes(),
+        ec_cutoffs=None if all(c is None for c in cutoffs) else cutoffs,
+        seed=config.simulation.seed,
+    )
+
+
+# --- model and volumes stage options --------------------------------------------------------
+# The settings of the model and volumes stages, built from a validated SiteConfig in one place.
+# Every value is read from the schema above (no default is repeated here); "auto" becomes None
+# and an empty scheduler becomes dask's local threads.
+
+
+@dataclass(frozen=True)
+class ModelOptions:
+    """Settings of the voxel model, in internal units (m).
+
+    Attributes
+    ----------
+    cell_size
+        ``(dx, dy, dz)`` of the grid (``[grid] cell_size``).
+    base
+        Base elevation of the grid; None = the bottom of the deepest interval (``[grid] base``).
+    padding
+        Grid padding beyond the boundary (``[grid] padding``).
+    variogram_model
+        ``'auto'`` or a covariance family (``[variogram] model``).
+    range_h, range_v
+        Major horizontal and vertical ranges; None = fitted (``[variogram]
+        horizontal_range``, ``vertical_range``).
+    azimuth
+        Degrees clockwise from north of the major horizontal axis.
+    minor_ratio
+        Minor/major horizontal range ratio (``[variogram] anisotropy_minor``).
+    elevation_tolerance
+        Elevation tolerance of horizontal variogram pairs.
+    neighbors
+        Samples per kriging estimate.
+    max_per_group
+        At most this many samples from one boring (0 = no limit; ``[kriging] max_per_boring``).
+    drift
+        ``'none'`` or ``'linear_z'``.
+    max_distance
+        Search distance in variogram ranges; None = no limit.
+    chunk_size
+        Cells per kriging chunk.
+    scheduler
+        Dask scheduler: ``'threads'`` (local threads) or a ``dask.distributed`` address.
+    n_realizations
+        Conditional simulations of log10 K (``[simulation] realizations``).
+    seed
+        Seed of the simulations.
+    """
+
+    cell_size: tuple[float, float, float]
+    base: float | None
+    padding: float
+    variogram_model: str
+    range_h: float | None
+    range_v: float | None
+    azimuth: float
+    minor_ratio: float
+    elevation_tolerance: float
+    neighbors: int
+    max_per_group: int
+    drift: str
+    max_distance: float | None
+    chunk_size: int
+    scheduler: str
+    n_realizations: int
+    seed: int
+
+
+@dataclass(frozen=True)
+class VolumeOptions:
+    """Settings of the volumes stage: the injection design defaults of ``[treatment]``.
+
+    Attributes
+    ----------
+    design_fraction
+        Fraction of the effective pore volume to inject (a zone's own value wins).
+    radius_of_influence
+        Radius of influence of an injection point, m (a zone's own value wins).
+    target
+        ``'transmissive'`` or ``'all'``: the material treated inside each zone.
+    """
+
+    design_fraction: float
+    radius_of_influence: float
+    target: str
+
+
+def _auto_none(value: float | str) -> float | None:
+    return None if isinstance(value, str) else value
+
+
+def _model_options(config: SiteConfig) -> ModelOptions:
+    grid, variogram, kriging = config.grid, config.variogram, config.kriging
+    dx, dy, dz = grid.cell_size
+    return ModelOptions(
+        cell_size=(dx, dy, dz),
+        base=_auto_none(grid.base),
+        padding=grid.padding,
+        variogram_model=variogram.model,
+        range_h=_auto_none(variogram.horizontal_range),
+        range_v=_auto_none(variogram.vertical_range),
+        azimuth=variogram.azimuth,
+        minor_ratio=variogram.anisotropy_minor,
+        elevation_tolerance=variogram.elevation_tolerance,
+        neighbors=kriging.neighbors,
+        max_per_group=kriging.max_per_boring,
+        drift=kriging.drift,
+        max_distance=_auto_none(kriging.max_distance),
+        chunk_size=kriging.chunk_size,
+        scheduler=kriging.scheduler or "threads",
+        n_realizations=config.simulation.realizations,
+        seed=config.simulation.seed,
+    )
+
+
+def _volume_options(config: SiteConfig) -> VolumeOptions:
+    treatment = config.treatment
+    return VolumeOptions(
+        design_fraction=treatment.design_fraction,
+        radius_of_influence=treatment.radius_of_influence,
+        target=treatment.target,
+    )
+
+
+# --- end of model and volumes stage options --------------------------------------------------

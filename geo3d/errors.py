@@ -8,11 +8,13 @@ and what was expected; build them with :func:`where` so they all read alike.
 
 from __future__ import annotations
 
+from collections.abc import Iterable
 from os import PathLike
 
 __all__ = [
     "Geo3dError",
     "SiteFileError",
+    "SiteValidationError",
     "TableFormatError",
     "LogFormatError",
     "UnitError",
@@ -32,6 +34,30 @@ class Geo3dError(Exception):
 
 class SiteFileError(Geo3dError, ValueError):
     """``site.toml`` is missing, unreadable or breaks the schema."""
+
+
+class SiteValidationError(Geo3dError, ValueError):
+    """Several problems were found in a site folder.
+
+    Parameters
+    ----------
+    problems
+        One message per problem; each names the file, row or line, column and what was
+        expected.
+
+    Examples
+    --------
+    >>> print(SiteValidationError(["a.csv, line 2: bad", "b.csv, line 3: worse"]))
+    2 problems found in the site:
+    - a.csv, line 2: bad
+    - b.csv, line 3: worse
+    """
+
+    def __init__(self, problems: Iterable[str]):
+        self.problems: list[str] = list(problems)
+        count = len(self.problems)
+        header = f"{count} problem{'s' if count != 1 else ''} found in the site:"
+        super().__init__("\n".join([header, *(f"- {p}" for p in self.problems)]))
 
 
 class TableFormatError(Geo3dError, ValueError):

@@ -24,10 +24,12 @@ References
 from __future__ import annotations
 
 import logging
-from collections.abc import Sequence
+from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
+from typing import Any, overload
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy.stats import norm
 from sklearn.mixture import GaussianMixture
 from threadpoolctl import threadpool_limits
@@ -36,6 +38,7 @@ from geo3d.errors import ModelError
 
 __all__ = [
     "FaciesClass",
+    "FaciesClasses",
     "DEFAULT_CLASSES",
     "classify_thresholds",
     "classify_mixture",
@@ -67,13 +70,201 @@ class FaciesClass:
     effective_porosity: float
 
 
+# --- FaciesClasses: the one facies-class type (owned with the model) -------------------------
+
+
+_ATTR_NAMES = (
+    "facies_names",
+    "facies_log10_k_max",
+    "facies_porosity",
+    "facies_effective_porosity",
+)
+
+
+@dataclass(frozen=True)
+class FaciesClasses(Sequence[FaciesClass]):
+    """The hydrofacies classes of a site, in code order (lowest K first).
+
+    The code of a class is its index.  The classes are checked on creation: unique names,
+    ``log10_k_max`` increasing from the first class up (the bound of the last class is not
+    used), and ``0 <= effective_porosity <= porosity <= 1``.
+
+    Attributes
+    ----------
+    classes
+        The classes, lowest K first.
+
+    Raises
+    ------
+    ModelError
+        When a check fails.
+
+    Examples
+    --------
+    >>> fc = FaciesClasses((FaciesClass("clay", -7.0, 0.45, 0.05),
+    ...                     FaciesClass("sand", 0.0, 0.32, 0.25)))
+    >>> fc.names, fc.storage, fc.transmissive
+    (('clay', 'sand'), 0, 1)
+    >>> fc.classify([-8.0, -7.0, float("nan")]).tolist()
+    [0, 1, -1]
+    """
+
+    classes: tuple[FaciesClass, ...]
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "classes", tuple(self.classes))
+        names = [c.name for c in self.classes]
+        if not names:
+            msg = "facies: at least one class is needed"
+            raise ModelError(msg)
+        if len(set(names)) != len(names):
+            msg = f"facies: class names must be unique, got {names}"
+            raise ModelError(msg)
+        bounds = [float(c.log10_k_max) for c in self.classes[:-1]]
+        if any(b2 <= b1 for b1, b2 in zip(bounds, bounds[1:], strict=False)):
+            msg = f"facies: log10_k_max must increase from the first class up, got {bounds}"
+            raise ModelError(msg)
+        bad = [
+            c.name
+            for c in self.classes
+            if not (0 <= float(c.effective_porosity) <= float(c.porosity) <= 1)
+        ]
+        if bad:
+            msg = f"facies: classes {bad} need 0 <= effective_porosity <= porosity <= 1"
+            raise ModelError(msg)
+
+    @classmethod
+    def from_items(cls, items: Iterable[Any]) -> FaciesClasses:
+        """Collect classes from objects with the attributes of :class:`FaciesClass`.
+
+        The objects (with ``name``, ``log10_k_max``, ``porosity`` and ``effective_porosity``)
+        may come in any order; they are sorted by ``log10_k_max`` (stable).
+        """
+        items = list(items)
+        for i, item in enumerate(items):
+            for attr in ("name", "log10_k_max", "porosity", "effective_porosity"):
+                if not hasattr(item, attr):
+                    msg = f"facies: class {i} lacks attribute '{attr}'"
+                    raise ModelError(msg)
+        order = np.argsort([float(c.log10_k_max) for c in items], kind="stable")
+        return cls(
+            tuple(
+                FaciesClass(
+                    str(items[i].name),
+                    float(items[i].log10_k_max),
+                    float(items[i].porosity),
+                    float(items[i].effective_porosity),
+                )
+                for i in order
+            )
+        )
+
+    @classmethod
+    def from_attrs(cls, attrs: Mapping[str, Any]) -> FaciesClasses:
+        """Classes recorded in Dataset attributes by :meth:`attrs`."""
+        missing = [name for name in _ATTR_NAMES if name not in attrs]
+        if missing:
+            msg = f"facies: the model lacks the attribute(s) {missing} that record its classes"
+            raise ModelError(msg)
+        names, kmax, por, eff = (np.ravel(attrs[name]) for name in _ATTR_NAMES)
+        if not len(names) == len(kmax) == len(por) == len(eff):
+            msg = "facies: the model's facies attributes have different lengths"
+            raise ModelError(msg)
+        return cls(
+            tuple(
+                FaciesClass(str(n), float(k), float(p), float(e))
+                for n, k, p, e in zip(names, kmax, por, eff, strict=True)
+            )
+        )
+
+    def attrs(self) -> dict[str, Any]:
+        """Return the classes as Dataset attributes (the last bound written as ``inf``)."""
+        return {
+            "facies_names": list(self.names),
+            "facies_log10_k_max": [float(v) for v in self.log10_k_max],
+            "facies_porosity": [float(v) for v in self.porosity],
+            "facies_effective_porosity": [float(v) for v in self.effective_porosity],
+        }
+
+    def __len__(self) -> int:
+        return len(self.classes)
+
+    def __iter__(self) -> Iterator[FaciesClass]:
+        return iter(self.classes)
+
+    @overload
+    def __getitem__(self, index: int) -> FaciesClass: ...
+
+    @overload
+    def __getitem__(self, index: slice) -> tuple[FaciesClass, ...]: ...
+
+    def __getitem__(self, index: int | slice) -> FaciesClass | tuple[FaciesClass, ...]:
+        return self.classes[index]
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        """Class names in code order."""
+        return tuple(c.name for c in self.classes)
+
+    @property
+    def log10_k_max(self) -> np.ndarray:
+        """Upper bound of log10 K (m/s) of each class; the last one is ``+inf``."""
+        kmax = np.array([float(c.log10_k_max) for c in self.classes])
+        kmax[-1] = np.inf
+        return kmax
+
+    @property
+    def log10_k_min(self) -> np.ndarray:
+        """Lower bound of log10 K of each class (the first one is ``-inf``)."""
+        return np.concatenate([[-np.inf], self.log10_k_max[:-1]])
+
+    @property
+    def porosity(self) -> np.ndarray:
+        """Total porosity of each class (fraction)."""
+        return np.array([float(c.porosity) for c in self.classes])
+
+    @property
+    def effective_porosity(self) -> np.ndarray:
+        """Effective porosity of each class (fraction)."""
+        return np.array([float(c.effective_porosity) for c in self.classes])
+
+    def code_of(self, name: str, *, default: int) -> int:
+        """Code of the class called ``name``, or ``default`` when there is none."""
+        names = self.names
+        return names.index(name) if name in names else default
+
+    @property
+    def storage(self) -> int:
+        """Code of the storage class (named so, or the lowest-K class)."""
+        return self.code_of("storage", default=0)
+
+    @property
+    def transmissive(self) -> int:
+        """Code of the transmissive class (named so, or the highest-K class)."""
+        return self.code_of("transmissive", default=len(self.classes) - 1)
+
+    def classify(self, log10_k: ArrayLike) -> np.ndarray:
+        """Facies code (int8) of each log10 K value, ``-1`` for NaN.
+
+        A value equal to a class's ``log10_k_max`` belongs to the next class up.
+        """
+        values = np.asarray(log10_k, float)
+        codes = np.searchsorted(self.log10_k_max[:-1], values, side="right").astype(np.int8)
+        codes[~np.isfinite(values)] = -1
+        return codes
+
+
 #: Default classes (common practice thresholds; porosities after Freeze & Cherry (1979)
 #: Table 2.4 and Johnson (1967), as in the site-file template).
-DEFAULT_CLASSES: tuple[FaciesClass, ...] = (
-    FaciesClass("storage", -7.0, 0.45, 0.05),
-    FaciesClass("transitional", -5.0, 0.38, 0.15),
-    FaciesClass("transmissive", 0.0, 0.32, 0.25),
+DEFAULT_CLASSES = FaciesClasses(
+    (
+        FaciesClass("storage", -7.0, 0.45, 0.05),
+        FaciesClass("transitional", -5.0, 0.38, 0.15),
+        FaciesClass("transmissive", 0.0, 0.32, 0.25),
+    )
 )
+
+# --- end of FaciesClasses ------------------------------------------------------------------
 
 
 def _check_classes(classes: Sequence) -> None:

@@ -45,11 +45,12 @@ import xarray as xr
 
 from geo3d.ec_facies import EcFaciesClassifier
 from geo3d.errors import Geo3dWarning, ModelError
+from geo3d.facies import FaciesClasses
 from geo3d.geostats.censored import censored_expectation, fit_censored_normal
 from geo3d.geostats.facies_simulation import fit_facies_model, simulate_facies
 from geo3d.geostats.transition import bootstrap_borings
 from geo3d.grid import build_mask, ground_surface, make_grid
-from geo3d.model import ModelResult, facies_table
+from geo3d.model import ModelResult
 
 __all__ = ["build_facies_first_model"]
 
@@ -282,7 +283,7 @@ def build_facies_first_model(
     start = time.perf_counter()
     table = intervals.copy()
     table["boring_id"] = table["boring_id"].astype(str)
-    facies = facies_table(facies_classes)
+    facies = FaciesClasses.from_items(facies_classes)
     n_classes = len(facies.names)
     n_realizations = int(n_realizations)
     if n_realizations < 1:

@@ -7,8 +7,9 @@ ascending.  Its attributes hold the CRS (WKT) and the cell size ``(dx, dy, dz)``
 elevations (:meth:`VoxelAccessor.depth_of`) without the 3D model ever storing depth.
 
 Domain methods live on the ``voxels`` accessor (``ds.voxels.cell_volume``,
-``ds.voxels.centres()``, ``ds.voxels.column_fraction(polygon)``, ``ds.voxels.to_pyvista()``) so
-that slicing, plotting and NetCDF come from xarray.
+``ds.voxels.centres()``, ``ds.voxels.column_fraction(polygon)``,
+``ds.voxels.facies_classes``) so that slicing, plotting and NetCDF come from xarray; the VTK
+image of a model is :func:`geo3d.io.vtk.model_to_image`.
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ from __future__ import annotations
 import logging
 import math
 from collections.abc import Sequence
-from typing import Any
+from typing import TYPE_CHECKING, TypeAlias
 
 import numpy as np
 import pandas as pd
@@ -28,19 +29,33 @@ from scipy.ndimage import map_coordinates
 from scipy.spatial import QhullError, cKDTree
 
 from geo3d.errors import CRSError, GeometryError, ModelError
+from geo3d.facies import FaciesClasses
+
+if TYPE_CHECKING:
+    from affine import Affine
 
 __all__ = [
+    "CRSInput",
+    "Raster",
     "make_grid",
     "ground_surface",
     "build_mask",
+    "site_grid",
     "height_fraction",
     "VoxelAccessor",
 ]
 
 logger = logging.getLogger(__name__)
 
+#: A CRS as :meth:`pyproj.CRS.from_user_input` takes it: ``"EPSG:32633"``, an EPSG code, WKT,
+#: a PROJ string or a :class:`pyproj.CRS`; None or ``""`` = no CRS.
+CRSInput: TypeAlias = "pyproj.CRS | str | int | None"
 
-def _crs_wkt(crs: Any) -> str:
+#: A 2D raster and its affine transform (pixel corner to map coordinates).
+Raster: TypeAlias = "tuple[np.ndarray, Affine]"
+
+
+def _crs_wkt(crs: CRSInput) -> str:
     if crs is None or crs == "":
         return ""
     try:
@@ -50,7 +65,7 @@ def _crs_wkt(crs: Any) -> str:
         raise CRSError(msg) from exc
 
 
-def _check_polygon(boundary: Any, what: str = "boundary") -> shapely.Geometry:
+def _check_polygon(boundary: object, what: str = "boundary") -> shapely.Geometry:
     if not isinstance(boundary, shapely.Geometry) or boundary.geom_type not in (
         "Polygon",
         "MultiPolygon",
@@ -63,13 +78,39 @@ def _check_polygon(boundary: Any, what: str = "boundary") -> shapely.Geometry:
     return boundary
 
 
+def _cell_size(cell_size: Sequence[float]) -> tuple[float, float, float]:
+    try:
+        dx, dy, dz = (float(v) for v in cell_size)
+    except (TypeError, ValueError) as exc:
+        msg = f"grid: cell_size must be three numbers (dx, dy, dz), got {cell_size!r}"
+        raise ModelError(msg) from exc
+    if min(dx, dy, dz) <= 0 or not all(map(math.isfinite, (dx, dy, dz))):
+        msg = f"grid: cell_size must be positive and finite, got {(dx, dy, dz)}"
+        raise ModelError(msg)
+    return dx, dy, dz
+
+
+def _plan_axes(
+    boundary: shapely.Geometry, cell_size: Sequence[float], padding: float
+) -> tuple[np.ndarray, np.ndarray]:
+    """Column-centre coordinates ``x`` and ``y`` over the padded bounds of the boundary."""
+    boundary = _check_polygon(boundary)
+    dx, dy, _ = _cell_size(cell_size)
+    minx, miny, maxx, maxy = boundary.bounds
+    minx, miny, maxx, maxy = minx - padding, miny - padding, maxx + padding, maxy + padding
+    # a tolerance keeps a boundary that is a whole number of cells from gaining a cell
+    nx = max(1, math.ceil((maxx - minx) / dx - 1e-9))
+    ny = max(1, math.ceil((maxy - miny) / dy - 1e-9))
+    return minx + dx * (np.arange(nx) + 0.5), miny + dy * (np.arange(ny) + 0.5)
+
+
 def make_grid(
     boundary: shapely.Geometry,
     *,
     cell_size: Sequence[float],
     top: float,
     base: float,
-    crs: Any = None,
+    crs: CRSInput = None,
     padding: float = 0.0,
 ) -> xr.Dataset:
     """Make an empty voxel grid over the bounds of a boundary polygon.
@@ -94,26 +135,13 @@ def make_grid(
         Coordinates ``z``, ``y``, ``x`` at cell centres, ascending; attributes ``crs`` (WKT) and
         ``cell_size``.  No data variables yet.
     """
-    boundary = _check_polygon(boundary)
-    try:
-        dx, dy, dz = (float(v) for v in cell_size)
-    except (TypeError, ValueError) as exc:
-        msg = f"grid: cell_size must be three numbers (dx, dy, dz), got {cell_size!r}"
-        raise ModelError(msg) from exc
-    if min(dx, dy, dz) <= 0 or not all(map(math.isfinite, (dx, dy, dz))):
-        msg = f"grid: cell_size must be positive and finite, got {(dx, dy, dz)}"
-        raise ModelError(msg)
+    x, y = _plan_axes(boundary, cell_size, padding)
+    dx, dy, dz = _cell_size(cell_size)
     if not (math.isfinite(top) and math.isfinite(base)) or top <= base:
         msg = f"grid: top ({top}) must be above base ({base}); both are elevations in m"
         raise ModelError(msg)
-    minx, miny, maxx, maxy = boundary.bounds
-    minx, miny, maxx, maxy = minx - padding, miny - padding, maxx + padding, maxy + padding
-    # a tolerance keeps a boundary that is a whole number of cells from gaining a cell
-    nx = max(1, math.ceil((maxx - minx) / dx - 1e-9))
-    ny = max(1, math.ceil((maxy - miny) / dy - 1e-9))
+    nx, ny = x.size, y.size
     nz = max(1, math.ceil((top - base) / dz - 1e-9))
-    x = minx + dx * (np.arange(nx) + 0.5)
-    y = miny + dy * (np.arange(ny) + 0.5)
     z = base + dz * (np.arange(nz) + 0.5)
     ds = xr.Dataset(coords={"z": z, "y": y, "x": x})
     ds["x"].attrs.update(units="m", long_name="easting of cell centre")
@@ -130,7 +158,7 @@ def ground_surface(
     y: np.ndarray,
     *,
     borings: pd.DataFrame | None = None,
-    dem: tuple[np.ndarray, Any] | None = None,
+    dem: Raster | None = None,
 ) -> np.ndarray:
     """Ground elevation at the centres of the grid columns.
 
@@ -224,10 +252,10 @@ def height_fraction(
     [0.75, 0.5]
     """
     z = np.asarray(z, float)
-    lower = np.nan_to_num(np.asarray(lower, float), nan=-np.inf)
-    upper = np.nan_to_num(np.asarray(upper, float), nan=np.inf)
-    zz = z.reshape((-1,) + (1,) * lower.ndim)
-    covered = np.minimum(zz + dz / 2, upper) - np.maximum(zz - dz / 2, lower)
+    low = np.nan_to_num(np.asarray(lower, float), nan=-np.inf)
+    high = np.nan_to_num(np.asarray(upper, float), nan=np.inf)
+    zz = z.reshape((-1,) + (1,) * low.ndim)
+    covered = np.minimum(zz + dz / 2, high) - np.maximum(zz - dz / 2, low)
     return np.clip(covered / dz, 0.0, 1.0)
 
 
@@ -264,6 +292,68 @@ def build_mask(
     ground = np.asarray(ground, float)
     mask = inside[None] & (z <= ground[None]) & (z >= base)
     return xr.DataArray(mask, dims=("z", "y", "x"), coords={k: grid[k] for k in ("z", "y", "x")})
+
+
+def site_grid(
+    boundary: shapely.Geometry,
+    *,
+    cell_size: Sequence[float],
+    base: float,
+    crs: CRSInput,
+    padding: float,
+    borings: pd.DataFrame | None = None,
+    dem: Raster | None = None,
+) -> xr.Dataset:
+    """Make the model grid of a site: from the base up to the highest ground, with its mask.
+
+    The column centres come from the boundary; the ground surface of each column
+    (:func:`ground_surface`, from the DEM or the collars) sets the top of the grid; the mask
+    (:func:`build_mask`) keeps the cells inside the boundary, below the ground and above the
+    base.
+
+    Parameters
+    ----------
+    boundary
+        Site boundary polygon.
+    cell_size
+        ``(dx, dy, dz)`` in m.
+    base
+        Elevation of the model base (m).
+    crs
+        Site CRS.
+    padding
+        Grid padding beyond the boundary (m).
+    borings
+        Collars: ``x``, ``y``, ``ground_elev`` (used without a DEM).
+    dem
+        ``(array, affine)`` ground raster.
+
+    Returns
+    -------
+    xarray.Dataset
+        A grid from :func:`make_grid` with ``ground_elev`` (y, x), ``mask`` (z, y, x) and the
+        attribute ``base``.
+
+    Raises
+    ------
+    ModelError
+        When the ground is not above the base or no cell is inside the mask.
+    """
+    x, y = _plan_axes(boundary, cell_size, padding)
+    ground = ground_surface(x, y, borings=borings, dem=dem)
+    top = float(np.nanmax(ground))
+    if top <= base:
+        msg = f"model: the ground ({top:.2f} m) is not above the base ({base:.2f} m)"
+        raise ModelError(msg)
+    ds = make_grid(boundary, cell_size=cell_size, top=top, base=base, crs=crs, padding=padding)
+    ds["ground_elev"] = (("y", "x"), ground)
+    ds["ground_elev"].attrs.update(units="m", long_name="ground elevation")
+    ds["mask"] = build_mask(ds, boundary, ground=ground, base=base)
+    if not ds["mask"].values.any():
+        msg = "model: no cell lies inside the boundary, below the ground and above the base"
+        raise ModelError(msg)
+    ds.attrs["base"] = base
+    return ds
 
 
 def _column_fraction(x: np.ndarray, y: np.ndarray, dx: float, dy: float, polygon) -> np.ndarray:
@@ -352,6 +442,11 @@ class VoxelAccessor:
         )
 
     @property
+    def facies_classes(self) -> FaciesClasses:
+        """The hydrofacies classes recorded in the attributes (see :meth:`FaciesClasses.attrs`)."""
+        return FaciesClasses.from_attrs(self._ds.attrs)
+
+    @property
     def ground(self) -> xr.DataArray:
         """Ground elevation per column (``ground_elev``)."""
         if "ground_elev" not in self._ds:
@@ -359,7 +454,7 @@ class VoxelAccessor:
             raise ModelError(msg)
         return self._ds["ground_elev"]
 
-    def depth_of(self, z: Any = None) -> xr.DataArray:
+    def depth_of(self, z: xr.DataArray | np.ndarray | float | None = None) -> xr.DataArray:
         """Depth below the ground surface of an elevation, for each column.
 
         Parameters
@@ -370,35 +465,3 @@ class VoxelAccessor:
         if z is None:
             z = self._ds["z"]
         return self.ground - z
-
-    def elevation_of(self, depth: Any) -> xr.DataArray:
-        """Elevation of a depth below the ground surface, for each column."""
-        return self.ground - depth
-
-    def to_pyvista(self):
-        """Convert to a :class:`pyvista.ImageData` with each ``(z, y, x)`` variable as cell data.
-
-        Booleans become uint8; the ``ground_elev`` map and realizations are left out.
-        """
-        import pyvista as pv
-
-        dx, dy, dz = self.cell_size
-        nz, ny, nx = (self._ds.sizes[d] for d in ("z", "y", "x"))
-        image = pv.ImageData(
-            dimensions=(nx + 1, ny + 1, nz + 1),
-            spacing=(dx, dy, dz),
-            origin=(
-                float(self._ds["x"][0]) - dx / 2,
-                float(self._ds["y"][0]) - dy / 2,
-                float(self._ds["z"][0]) - dz / 2,
-            ),
-        )
-        for name, var in self._ds.data_vars.items():
-            if var.dims != ("z", "y", "x"):
-                continue
-            values = np.asarray(var.values)
-            if values.dtype == bool:
-                values = values.astype(np.uint8)
-            # VTK orders cells with x fastest, then y, then z: C order of (z, y, x)
-            image.cell_data[str(name)] = values.ravel(order="C")
-        return image

@@ -1,8 +1,9 @@
 """The site-wide voxel model: kriged log10 K and EC, hydrofacies probabilities, simulations.
 
-Coordinates are ``(x, y, z)`` in the site CRS, ``z`` the elevation, upward.  The model is a
-``VoxelModel``: an :class:`xarray.Dataset` on a grid from :func:`geo3d.grid.make_grid` with the
-variables listed in the contributor guide (``mask``, ``log10_k``, ``log10_k_var``, ``ec``,
+Coordinates are ``(x, y, z)`` in the site CRS, ``z`` the elevation, upward.  The gridder
+:class:`VoxelModel` is fitted to the composited intervals and grids them on a grid from
+:func:`geo3d.grid.site_grid`; the result (the VoxelModel Dataset) is an :class:`xarray.Dataset`
+with the variables listed in the contributor guide (``mask``, ``log10_k``, ``log10_k_var``, ``ec``,
 ``ec_var``, ``k``, ``facies_code``, ``prob_<facies>``, ``saturated`` and, when simulations are
 run, ``realizations``).  The facies classes are recorded in the attributes ``facies_names``,
 ``facies_log10_k_max``, ``facies_porosity`` and ``facies_effective_porosity`` (in code order,
@@ -14,9 +15,9 @@ from __future__ import annotations
 import logging
 import time
 import warnings
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Protocol, Self
 
 import numpy as np
 import pandas as pd
@@ -25,141 +26,58 @@ import xarray as xr
 from scipy.special import ndtr, ndtri
 
 from geo3d.errors import Geo3dWarning, ModelError
-from geo3d.grid import build_mask, ground_surface, make_grid
+from geo3d.facies import FaciesClasses
+from geo3d.geostats.crossval import CrossValidation, leave_one_group_out
+from geo3d.geostats.kriging import OrdinaryKriging
+from geo3d.geostats.simulation import conditional_simulation
+from geo3d.geostats.variogram import VariogramFit, fit_anisotropic
+from geo3d.grid import CRSInput, Raster, site_grid
 
 __all__ = [
-    "FaciesTable",
-    "facies_table",
-    "classify_log10_k",
-    "facies_probabilities",
-    "NormalScore",
+    "VoxelModel",
     "ModelResult",
+    "Samples",
+    "NormalScore",
+    "WaterTable",
+    "facies_probabilities",
+    "most_likely_facies",
+    "realization_probabilities",
+    "saturated_cells",
+    "deepest_bottom",
     "build_voxel_model",
 ]
 
 logger = logging.getLogger(__name__)
 
+_DIMS = ("z", "y", "x")
 
-@dataclass(frozen=True)
-class FaciesTable:
-    """Hydrofacies classes in code order (lowest K first), as plain arrays.
-
-    Attributes
-    ----------
-    names
-        Class names; the code of a class is its index.
-    log10_k_max
-        Upper bound of log10 K (m/s) of each class; the last one is ``+inf``.
-    porosity, effective_porosity
-        Total and effective porosity of each class (fractions).
-    """
-
-    names: tuple[str, ...]
-    log10_k_max: np.ndarray
-    porosity: np.ndarray
-    effective_porosity: np.ndarray
-
-    @property
-    def log10_k_min(self) -> np.ndarray:
-        """Lower bound of log10 K of each class (the first one is ``-inf``)."""
-        return np.concatenate([[-np.inf], self.log10_k_max[:-1]])
-
-    def code_of(self, name: str, *, default: int) -> int:
-        """Code of the class called ``name``, or ``default`` when there is none."""
-        return self.names.index(name) if name in self.names else default
-
-    @property
-    def transmissive(self) -> int:
-        """Code of the transmissive class (named so, or the highest-K class)."""
-        return self.code_of("transmissive", default=len(self.names) - 1)
-
-    @property
-    def storage(self) -> int:
-        """Code of the storage class (named so, or the lowest-K class)."""
-        return self.code_of("storage", default=0)
-
-    def attrs(self) -> dict[str, Any]:
-        """Return the table as Dataset attributes."""
-        return {
-            "facies_names": list(self.names),
-            "facies_log10_k_max": [float(v) for v in self.log10_k_max],
-            "facies_porosity": [float(v) for v in self.porosity],
-            "facies_effective_porosity": [float(v) for v in self.effective_porosity],
-        }
+#: Attributes of the kriged variables: name -> (units, long_name).
+_KRIGED_ATTRS = {
+    "log10_k": ("log10(m/s)", "kriged log10 hydraulic conductivity"),
+    "log10_k_var": ("log10(m/s)^2", "kriging variance of log10 K"),
+    "ec": ("mS/m", "kriged bulk electrical conductivity"),
+    "ec_var": ("(mS/m)^2", "kriging variance of EC"),
+}
 
 
-def facies_table(classes: Sequence[Any] | None = None, *, model: Any = None) -> FaciesTable:
-    """Collect the facies classes from objects or from a model's attributes.
+class WaterTable(Protocol):
+    """A water-table surface: elevation (m) at points."""
 
-    Parameters
-    ----------
-    classes
-        Objects with ``name``, ``log10_k_max``, ``porosity`` and ``effective_porosity``
-        (such as ``geo3d.facies.FaciesClass``), in any order; sorted by ``log10_k_max``.
-    model
-        A VoxelModel (or a result with ``.dataset``) whose attributes hold the table; used when
-        ``classes`` is None.
-
-    Returns
-    -------
-    FaciesTable
-    """
-    if classes is None:
-        ds = getattr(model, "dataset", model)
-        attrs = getattr(ds, "attrs", {})
-        if "facies_names" not in attrs:
-            msg = "facies: no classes given and the model has no 'facies_names' attribute"
-            raise ModelError(msg)
-        names = [str(n) for n in np.ravel(attrs["facies_names"])]
-        kmax = np.asarray(np.ravel(attrs["facies_log10_k_max"]), float)
-        por = np.asarray(np.ravel(attrs["facies_porosity"]), float)
-        eff = np.asarray(np.ravel(attrs["facies_effective_porosity"]), float)
-    else:
-        items = list(classes)
-        if not items:
-            msg = "facies: at least one class is needed"
-            raise ModelError(msg)
-        for i, item in enumerate(items):
-            for attr in ("name", "log10_k_max", "porosity", "effective_porosity"):
-                if not hasattr(item, attr):
-                    msg = f"facies: class {i} lacks attribute '{attr}'"
-                    raise ModelError(msg)
-        order = np.argsort([float(c.log10_k_max) for c in items], kind="stable")
-        items = [items[i] for i in order]
-        names = [str(c.name) for c in items]
-        kmax = np.array([float(c.log10_k_max) for c in items])
-        por = np.array([float(c.porosity) for c in items])
-        eff = np.array([float(c.effective_porosity) for c in items])
-    if len(set(names)) != len(names):
-        msg = f"facies: class names must be unique, got {names}"
-        raise ModelError(msg)
-    bad = [n for n, p, e in zip(names, por, eff, strict=True) if not (0 <= e <= p <= 1)]
-    if bad:
-        msg = f"facies: classes {bad} need 0 <= effective_porosity <= porosity <= 1"
-        raise ModelError(msg)
-    kmax = kmax.copy()
-    kmax[-1] = np.inf
-    return FaciesTable(tuple(names), kmax, por, eff)
+    def elevation(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+        """Water-table elevation at the points ``(x, y)``."""
+        ...
 
 
-def classify_log10_k(log10_k: np.ndarray, table: FaciesTable) -> np.ndarray:
-    """Facies code of each log10 K value (``-1`` for NaN).
+_PROB_KRIGING = "probability of %s (Gaussian, kriging mean and variance)"
+_PROB_SIM = "probability of %s (frequency over the realizations)"
 
-    A value equal to a class's ``log10_k_max`` belongs to the next class up.
-
-    Examples
-    --------
-    >>> t = FaciesTable(("a", "b"), np.array([-6.0, np.inf]), np.ones(2), np.ones(2))
-    >>> classify_log10_k(np.array([-7.0, -6.0, np.nan]), t).tolist()
-    [0, 1, -1]
-    """
-    values = np.asarray(log10_k, float)
-    codes = np.searchsorted(table.log10_k_max[:-1], values, side="right").astype(np.int8)
-    codes[~np.isfinite(values)] = -1
-    return codes
+#: Called with the name of each finished step.
+Progress = Callable[[str], None]
 
 
-def facies_probabilities(mean: np.ndarray, variance: np.ndarray, table: FaciesTable) -> np.ndarray:
+def facies_probabilities(
+    mean: np.ndarray, variance: np.ndarray, classes: FaciesClasses
+) -> np.ndarray:
     """Probability of each facies from a Gaussian estimate of log10 K.
 
     ``P(class i) = Phi((upper_i - mu) / sigma) - Phi((lower_i - mu) / sigma)`` with ``mu`` the
@@ -170,7 +88,7 @@ def facies_probabilities(mean: np.ndarray, variance: np.ndarray, table: FaciesTa
     ----------
     mean, variance
         Kriging estimate and variance of log10 K, same shape.
-    table
+    classes
         Facies classes.
 
     Returns
@@ -185,8 +103,8 @@ def facies_probabilities(mean: np.ndarray, variance: np.ndarray, table: FaciesTa
     """
     mu = np.asarray(mean, float)
     sigma = np.sqrt(np.clip(np.asarray(variance, float), 0.0, None))
-    upper = table.log10_k_max.reshape((-1,) + (1,) * mu.ndim)
-    lower = table.log10_k_min.reshape((-1,) + (1,) * mu.ndim)
+    upper = classes.log10_k_max.reshape((-1,) + (1,) * mu.ndim)
+    lower = classes.log10_k_min.reshape((-1,) + (1,) * mu.ndim)
     with np.errstate(divide="ignore", invalid="ignore"):
         zu = np.where(sigma > 0, (upper - mu) / sigma, np.where(mu < upper, np.inf, -np.inf))
         zl = np.where(sigma > 0, (lower - mu) / sigma, np.where(mu < lower, np.inf, -np.inf))
@@ -269,53 +187,33 @@ class ModelResult:
     """
 
     dataset: xr.Dataset
-    variograms: dict[str, Any] = field(default_factory=dict)
-    crossval: dict[str, Any] = field(default_factory=dict)
+    variograms: dict[str, VariogramFit] = field(default_factory=dict)
+    crossval: dict[str, CrossValidation] = field(default_factory=dict)
     timings: dict[str, float] = field(default_factory=dict)
 
 
-_VARIOGRAM_KEYS = {
-    "model": "model",
-    "horizontal_range": "range_h",
-    "range_h": "range_h",
-    "vertical_range": "range_v",
-    "range_v": "range_v",
-    "azimuth": "azimuth",
-    "anisotropy_minor": "minor_ratio",
-    "minor_ratio": "minor_ratio",
-    "elevation_tolerance": "elevation_tolerance",
-    "horizontal_lags": "horizontal_lags",
-    "vertical_lag": "vertical_lag",
-}
-_KRIGING_KEYS = {
-    "neighbors": "neighbors",
-    "max_per_boring": "max_per_group",
-    "max_per_group": "max_per_group",
-    "drift": "drift",
-    "max_distance": "max_distance",
-    "chunk_size": "chunk_size",
-    "global_mode": "global_mode",
-}
+@dataclass(frozen=True)
+class Samples:
+    """The finite values of one interval column with their coordinates and borings."""
 
+    coords: np.ndarray
+    values: np.ndarray
+    groups: np.ndarray
 
-def _options(options: Any, keys: Mapping[str, str], what: str) -> dict[str, Any]:
-    """Translate a settings mapping (or pydantic section) into keyword arguments."""
-    if options is None:
-        return {}
-    if hasattr(options, "model_dump"):
-        options = options.model_dump()
-    out: dict[str, Any] = {}
-    for key, value in dict(options).items():
-        if key == "scheduler":
-            continue
-        if key not in keys:
-            msg = f"{what} option {key!r} is unknown; expected one of {sorted(keys)}"
-            raise ModelError(msg)
-        if isinstance(value, str) and value == "auto" and key != "model":
-            value = None
-        if value is not None:
-            out[keys[key]] = value
-    return out
+    @classmethod
+    def of(cls, table: pd.DataFrame, column: str) -> Samples:
+        """Rows of ``table`` where ``column`` is finite."""
+        rows = table[np.isfinite(table[column].to_numpy(float))]
+        return cls(
+            rows[["x", "y", "z_mid"]].to_numpy(float),
+            rows[column].to_numpy(float),
+            rows["boring_id"].to_numpy(),
+        )
+
+    @property
+    def varies(self) -> bool:
+        """At least 4 values, not all equal: enough to fit a variogram."""
+        return len(self.values) >= 4 and bool(np.ptp(self.values) > 0)
 
 
 def _interval_table(intervals: pd.DataFrame) -> pd.DataFrame:
@@ -333,137 +231,170 @@ def _interval_table(intervals: pd.DataFrame) -> pd.DataFrame:
     return table
 
 
-def _base_elevation(table: pd.DataFrame, base: Any) -> float:
-    if base is None or (isinstance(base, str) and base == "auto"):
-        half = 0.0
-        if {"top", "bottom"} <= set(table.columns):
-            half = (table["bottom"] - table["top"]).abs().fillna(0.0).to_numpy() / 2
-        bottoms = table["z_mid"].to_numpy(float) - half
-        finite = bottoms[np.isfinite(bottoms)]
-        if finite.size == 0:
-            msg = "model: no interval has a finite elevation (z_mid)"
-            raise ModelError(msg)
-        return float(finite.min())
-    try:
-        return float(base)
-    except (TypeError, ValueError) as exc:
-        msg = f"model: base must be 'auto' or an elevation in m, got {base!r}"
-        raise ModelError(msg) from exc
-
-
-def _krige(
-    table: pd.DataFrame,
-    column: str,
-    targets: np.ndarray,
-    *,
-    variogram: dict[str, Any],
-    kriging: dict[str, Any],
-    scheduler: Any,
-    crossval: bool,
-) -> tuple[np.ndarray, np.ndarray, Any, Any, np.ndarray, np.ndarray, np.ndarray]:
-    """Fit the variogram of one variable and krige it at the targets."""
-    from geo3d.geostats.crossval import leave_one_group_out
-    from geo3d.geostats.kriging import OrdinaryKriging
-    from geo3d.geostats.variogram import fit_anisotropic
-
-    rows = table[np.isfinite(table[column].to_numpy(float))]
-    coords = rows[["x", "y", "z_mid"]].to_numpy(float)
-    values = rows[column].to_numpy(float)
-    groups = rows["boring_id"].to_numpy()
-    if len(values) < 4 or np.ptp(values) == 0:
-        msg = f"model: {column} needs at least 4 varying values to fit a variogram"
-        raise ModelError(msg)
-    detrend = "linear_z" if kriging.get("drift") == "linear_z" else "none"
-    fit = fit_anisotropic(coords, values, groups, detrend=detrend, **variogram)
-    estimator = OrdinaryKriging(fit.model, **kriging).fit(coords, values, groups)
-    estimate, variance = estimator.predict(targets, scheduler=scheduler)
-    cv = None
-    if crossval and len(pd.unique(groups)) >= 2:
-        cv = leave_one_group_out(coords, values, groups, model=fit.model, **kriging)
-    return estimate, variance, fit, cv, coords, values, groups
-
-
-def build_voxel_model(
-    intervals: pd.DataFrame,
-    *,
-    boundary: shapely.Geometry,
-    borings: pd.DataFrame,
-    crs: Any,
-    cell_size: Sequence[float],
-    facies_classes: Sequence[Any],
-    water_table: Any = None,
-    dem: tuple[np.ndarray, Any] | None = None,
-    base: float | str = "auto",
-    padding: float = 0.0,
-    variogram: Mapping[str, Any] | None = None,
-    kriging: Mapping[str, Any] | None = None,
-    n_realizations: int = 20,
-    seed: int = 0,
-    crossval: bool = True,
-    normal_score: bool = True,
-    progress: Callable[..., None] | None = None,
-) -> ModelResult:
-    """Build the site's voxel model of log10 K and EC with hydrofacies probabilities.
-
-    Steps: grid over the boundary (:func:`geo3d.grid.make_grid`); ground surface from the DEM or
-    the collars; mask (inside the boundary, below the ground, above the base); anisotropic
-    variograms of ``log10_k`` and ``ec`` fitted to the intervals (vertical pairs within
-    borings, horizontal pairs between borings at similar elevation); ordinary kriging of both
-    on the model cells; leave-one-boring-out cross-validation; facies probabilities from the
-    kriging estimate and variance of log10 K (Gaussian); the most likely facies; saturated
-    cells from the water table; and, when ``n_realizations > 0``, conditional simulations of
-    log10 K whose facies frequencies give ``prob_<facies>`` (the Gaussian ones are then kept
-    as ``prob_<facies>_kriging``).
+def deepest_bottom(intervals: pd.DataFrame) -> float:
+    """Elevation of the bottom of the deepest interval: the model base by default.
 
     Parameters
     ----------
     intervals
-        Composited intervals: ``boring_id``, ``x``, ``y``, ``z_mid`` (elevation), ``log10_k``,
-        ``ec`` [, ``top``, ``bottom`` depths].
-    boundary
-        Site boundary polygon.
-    borings
-        Collars: ``x``, ``y``, ``ground_elev``.
-    crs
-        Site CRS.
-    cell_size
-        ``(dx, dy, dz)`` in m.
-    facies_classes
-        Objects with ``name``, ``log10_k_max``, ``porosity``, ``effective_porosity``.
-    water_table
-        Object with ``.elevation(x, y)``; None = every model cell counts as saturated (noted
-        in the attribute ``saturated_source``).
-    dem
-        ``(array, affine)`` ground raster; None = from the collars.
-    base
-        ``'auto'`` (the bottom of the deepest interval) or an elevation (m).
-    padding
-        Grid padding beyond the boundary (m).
-    variogram
-        Options of the variogram fit (``model``, ``horizontal_range``/``range_h``,
-        ``vertical_range``/``range_v``, ``azimuth``, ``minor_ratio``/``anisotropy_minor``,
-        ``elevation_tolerance``; ``None``/``'auto'`` = fitted).
-    kriging
-        Kriging options (``neighbors``, ``max_per_group``/``max_per_boring``, ``drift``,
-        ``max_distance``, ``chunk_size``, ``global_mode``, ``scheduler``: a dask scheduler
-        name or ``dask.distributed`` address; default local threads).
-    n_realizations
-        Conditional simulations of log10 K (0 = none).
-    seed
-        Seed of the simulations.
-    crossval
-        Run the leave-one-boring-out cross-validation.
-    normal_score
-        Simulate in normal-score space (:class:`NormalScore`, variogram fitted to the scores)
-        and back-transform, so that the realizations reproduce the histogram of the data
-        (a bimodal or censored log10 K is not Gaussian); False = simulate log10 K directly
-        with its own variogram.
-    progress
-        Called as ``progress(fraction, message)`` after each step.
+        ``z_mid`` (elevation, m) [, ``top``, ``bottom`` depths] per interval.
+
+    Examples
+    --------
+    >>> deepest_bottom(pd.DataFrame({"z_mid": [5.0, 2.0], "top": [0, 2], "bottom": [1, 4]}))
+    1.0
+    """
+    table = intervals
+    half = 0.0
+    if {"top", "bottom"} <= set(table.columns):
+        half = (table["bottom"] - table["top"]).abs().fillna(0.0).to_numpy() / 2
+    bottoms = table["z_mid"].to_numpy(float) - half
+    finite = bottoms[np.isfinite(bottoms)]
+    if finite.size == 0:
+        msg = "model: no interval has a finite elevation (z_mid)"
+        raise ModelError(msg)
+    return float(finite.min())
+
+
+def most_likely_facies(prob: np.ndarray, classes: FaciesClasses) -> xr.Variable:
+    """Code of the most probable facies of each cell (-1 where the probabilities are NaN).
+
+    Parameters
+    ----------
+    prob
+        ``(n_classes, nz, ny, nx)`` probabilities from :func:`facies_probabilities`.
+    classes
+        The facies classes (their names label the codes).
 
     Returns
     -------
-    ModelResult
+    xarray.Variable
+        int8, dims ``("z", "y", "x")``, CF ``flag_values`` / ``flag_meanings``.
+    """
+    valid = np.isfinite(prob).all(axis=0)
+    codes = np.where(valid, np.argmax(np.nan_to_num(prob, nan=-1.0), axis=0), -1)
+    return xr.Variable(
+        _DIMS,
+        codes.astype(np.int8),
+        {
+            "long_name": "most likely hydrofacies (kriging, Gaussian log10 K)",
+            "flag_values": list(range(len(classes))),
+            "flag_meanings": " ".join(classes.names),
+        },
+    )
+
+
+def realization_probabilities(
+    sims: np.ndarray, classes: FaciesClasses
+) -> list[tuple[str, np.ndarray]]:
+    """Frequency of each facies over realizations of log10 K.
+
+    Parameters
+    ----------
+    sims
+        ``(n_realizations, m)`` simulated log10 K at ``m`` cells.
+    classes
+        The facies classes.
+
+    Returns
+    -------
+    list of (name, ndarray)
+        One ``(m,)`` share per class, in code order; NaN where a realization is NaN.
+
+    References
+    ----------
+    .. [1] Deutsch, C.V., Journel, A.G. (1998) GSLIB, 2nd ed.: probabilities of classes from
+       realizations.
+    """
+    sim_codes = classes.classify(sims)
+    undefined = ~np.isfinite(sims).all(axis=0)
+    shares = []
+    for i, name in enumerate(classes.names):
+        share = (sim_codes == i).mean(axis=0)
+        share[undefined] = np.nan
+        shares.append((name, share))
+    return shares
+
+
+def saturated_cells(grid: xr.Dataset, water_table: WaterTable | None) -> tuple[np.ndarray, str]:
+    """Model cells at or below the water table.
+
+    Parameters
+    ----------
+    grid
+        A grid with a ``mask``.
+    water_table
+        Object with ``.elevation(x, y)`` (m); None = every model cell counts as saturated.
+
+    Returns
+    -------
+    saturated : ndarray of bool
+        ``(nz, ny, nx)``.
+    source : str
+        How the cells were chosen (recorded as the attribute ``saturated_source``).
+    """
+    mask = grid.voxels.mask
+    if water_table is None:
+        return mask.copy(), "no water table given: every model cell counted saturated"
+    xx, yy = np.meshgrid(grid["x"].values, grid["y"].values)
+    wt = np.asarray(water_table.elevation(xx.ravel(), yy.ravel()), float).reshape(xx.shape)
+    return mask & (grid["z"].values[:, None, None] <= wt[None]), "water table"
+
+
+class VoxelModel:
+    """The site's voxel model of log10 K and EC as a gridder: fit to intervals, then grid.
+
+    :meth:`fit` learns from the composited intervals the anisotropic variograms of
+    ``log10_k`` and ``ec`` (vertical pairs within borings, horizontal pairs between borings at
+    similar elevation), an ordinary-kriging estimator of each, their leave-one-boring-out
+    cross-validation and, for the simulations, the normal-score transform of log10 K.
+    :meth:`grid` kriges both variables on the cells of a grid (one code path for both),
+    derives the facies probabilities from the kriging estimate and variance of log10 K
+    (Gaussian), the most likely facies, the saturated cells and, when ``n_realizations > 0``,
+    conditional simulations of log10 K whose facies frequencies give ``prob_<facies>`` (the
+    Gaussian ones are then kept as ``prob_<facies>_kriging``).
+
+    Parameters
+    ----------
+    facies_classes
+        The hydrofacies classes.
+    variogram_model, range_h, range_v, azimuth, minor_ratio, elevation_tolerance
+        Variogram fit (:func:`geo3d.geostats.variogram.fit_anisotropic`; ``variogram_model``
+        is its ``model``, None ranges are fitted).
+    neighbors, max_per_group, drift, max_distance, chunk_size
+        Kriging settings (:class:`geo3d.geostats.kriging.OrdinaryKriging`).
+    scheduler
+        A dask scheduler name (``'threads'``) or a ``dask.distributed`` address.
+    n_realizations
+        Conditional simulations of log10 K (0 = none).
+    seed
+        Seed of the simulations (and of the tie-breaking of the normal-score transform).
+    normal_score
+        Simulate in normal-score space (:class:`NormalScore`, variogram fitted to the scores)
+        and back-transform, so that the realizations reproduce the histogram of the data (a
+        bimodal or censored log10 K is not Gaussian); False = simulate log10 K directly with
+        its own variogram.
+    crossval
+        Run the leave-one-boring-out cross-validation.
+
+    Attributes
+    ----------
+    samples_
+        Column -> :class:`Samples` used for ``log10_k`` and (when kriged) ``ec``; for
+        normal-score simulations also ``'log10_k_normal_score'`` (the scores).
+    variograms_
+        Column -> :class:`geo3d.geostats.variogram.VariogramFit` (and
+        ``'log10_k_normal_score'`` for normal-score simulations).
+    estimators_
+        Column -> fitted :class:`geo3d.geostats.kriging.OrdinaryKriging`.
+    crossval_
+        Column -> :class:`geo3d.geostats.crossval.CrossValidation`.
+    normal_score_
+        The normal-score transform of log10 K (None without it).
+    water_table_
+        The water table given to :meth:`fit`.
+    n_intervals_, n_borings_
+        Counts of the intervals and borings fitted.
 
     References
     ----------
@@ -473,208 +404,328 @@ def build_voxel_model(
        probabilities of classes from realizations; normal-score transform before Gaussian
        simulation.
     """
+
+    samples_: dict[str, Samples]
+    variograms_: dict[str, VariogramFit]
+    estimators_: dict[str, OrdinaryKriging]
+    crossval_: dict[str, CrossValidation]
+    normal_score_: NormalScore | None
+    water_table_: WaterTable | None
+    n_intervals_: int
+    n_borings_: int
+
+    def __init__(
+        self,
+        *,
+        facies_classes: FaciesClasses,
+        variogram_model: str,
+        range_h: float | None,
+        range_v: float | None,
+        azimuth: float,
+        minor_ratio: float,
+        elevation_tolerance: float,
+        neighbors: int,
+        max_per_group: int,
+        drift: str,
+        max_distance: float | None,
+        chunk_size: int,
+        scheduler: str,
+        n_realizations: int,
+        seed: int,
+        normal_score: bool = True,
+        crossval: bool = True,
+    ) -> None:
+        self.facies_classes = facies_classes
+        self.variogram_model = variogram_model
+        self.range_h, self.range_v = range_h, range_v
+        self.azimuth, self.minor_ratio = azimuth, minor_ratio
+        self.elevation_tolerance = elevation_tolerance
+        self.neighbors, self.max_per_group = neighbors, max_per_group
+        self.drift, self.max_distance, self.chunk_size = drift, max_distance, chunk_size
+        self.scheduler = scheduler
+        self.n_realizations, self.seed = int(n_realizations), seed
+        self.normal_score, self.crossval = normal_score, crossval
+        if self.n_realizations < 0:
+            msg = f"model: n_realizations must be >= 0, got {self.n_realizations}"
+            raise ModelError(msg)
+
+    def variogram_settings(self) -> dict[str, Any]:
+        """Keyword arguments of :func:`~geo3d.geostats.variogram.fit_anisotropic`."""
+        return {
+            "model": self.variogram_model,
+            "range_h": self.range_h,
+            "range_v": self.range_v,
+            "azimuth": self.azimuth,
+            "minor_ratio": self.minor_ratio,
+            "elevation_tolerance": self.elevation_tolerance,
+            "detrend": "linear_z" if self.drift == "linear_z" else "none",
+        }
+
+    def kriging_settings(self) -> dict[str, Any]:
+        """Keyword arguments of :class:`~geo3d.geostats.kriging.OrdinaryKriging`."""
+        return {
+            "neighbors": self.neighbors,
+            "max_per_group": self.max_per_group,
+            "drift": self.drift,
+            "max_distance": self.max_distance,
+            "chunk_size": self.chunk_size,
+        }
+
+    def fit(self, intervals: pd.DataFrame, *, water_table: WaterTable | None = None) -> Self:
+        """Learn the variograms, kriging estimators and transforms from the intervals.
+
+        Parameters
+        ----------
+        intervals
+            Composited intervals: ``boring_id``, ``x``, ``y``, ``z_mid`` (elevation),
+            ``log10_k``, ``ec`` [, ``top``, ``bottom`` depths].
+        water_table
+            Its ``.elevation(x, y)`` sets the saturated cells; None = every model cell counts
+            as saturated (noted in the attribute ``saturated_source``).
+
+        Returns
+        -------
+        VoxelModel
+            ``self``, fitted.
+        """
+        table = _interval_table(intervals)
+        self.samples_, self.variograms_, self.estimators_, self.crossval_ = {}, {}, {}, {}
+        for column in ("log10_k", "ec"):
+            samples = Samples.of(table, column)
+            if samples.varies:
+                self._fit_column(column, samples)
+            elif column == "log10_k":
+                msg = "model: log10_k needs at least 4 varying values to fit a variogram"
+                raise ModelError(msg)
+            else:
+                msg = "model: too few EC values to krige EC; ec is left empty"
+                warnings.warn(msg, Geo3dWarning, stacklevel=2)
+        self.normal_score_ = None
+        if self.n_realizations > 0 and self.normal_score:
+            logk = self.samples_["log10_k"]
+            self.normal_score_, scores = NormalScore.fit(logk.values, seed=self.seed)
+            normal = Samples(logk.coords, scores, logk.groups)
+            self.samples_["log10_k_normal_score"] = normal
+            self.variograms_["log10_k_normal_score"] = fit_anisotropic(
+                normal.coords, normal.values, normal.groups, **self.variogram_settings()
+            )
+        self.water_table_ = water_table
+        self.n_intervals_ = len(table)
+        self.n_borings_ = int(table["boring_id"].nunique())
+        return self
+
+    def _fit_column(self, column: str, samples: Samples) -> None:
+        """Fit the variogram, the kriging estimator and the cross-validation of one column."""
+        coords, values, groups = samples.coords, samples.values, samples.groups
+        fit = fit_anisotropic(coords, values, groups, **self.variogram_settings())
+        kriging = self.kriging_settings()
+        self.samples_[column] = samples
+        self.variograms_[column] = fit
+        self.estimators_[column] = OrdinaryKriging(fit.model, **kriging).fit(coords, values, groups)
+        if self.crossval and len(pd.unique(groups)) >= 2:
+            self.crossval_[column] = leave_one_group_out(
+                coords, values, groups, model=fit.model, **kriging
+            )
+
+    def grid(self, grid: xr.Dataset, *, progress: Progress | None = None) -> xr.Dataset:
+        """Krige, classify and simulate on the cells of a grid.
+
+        Parameters
+        ----------
+        grid
+            A grid with ``mask`` (and ``ground_elev``), e.g. from :func:`geo3d.grid.site_grid`.
+        progress
+            Called as ``progress(step)`` after each step (``'log10_k'``, ``'ec'``,
+            ``'simulation'``).
+
+        Returns
+        -------
+        xarray.Dataset
+            The VoxelModel: the grid's variables and ``log10_k``, ``log10_k_var``, ``k``,
+            ``ec``, ``ec_var``, ``facies_code``, ``prob_<facies>`` [, ``prob_<facies>_kriging``,
+            ``realizations``], ``saturated``; NaN outside the mask.
+        """
+        if not hasattr(self, "estimators_"):
+            msg = "VoxelModel.grid called before fit"
+            raise ModelError(msg)
+        if "mask" not in grid:
+            msg = "VoxelModel.grid: the grid has no 'mask'; make it with geo3d.grid.site_grid"
+            raise ModelError(msg)
+        ds = grid.copy()
+        targets = ds.voxels.centres()
+        for column in ("log10_k", "ec"):
+            self._krige_column(ds, column, targets)
+            if column == "log10_k":
+                ds["k"] = 10.0 ** ds["log10_k"]
+                ds["k"].attrs.update(units="m/s", long_name="hydraulic conductivity (10**log10_k)")
+            if progress is not None:
+                progress(column)
+        classes = self.facies_classes
+        prob_kriging = facies_probabilities(ds["log10_k"].values, ds["log10_k_var"].values, classes)
+        ds["facies_code"] = most_likely_facies(prob_kriging, classes)
+        if self.n_realizations > 0:
+            ds = self._simulate(ds, targets, prob_kriging)
+            if progress is not None:
+                progress("simulation")
+        else:
+            for i, name in enumerate(classes.names):
+                ds[f"prob_{name}"] = (_DIMS, prob_kriging[i], {"long_name": _PROB_KRIGING % name})
+        saturated, source = saturated_cells(ds, self.water_table_)
+        ds["saturated"] = (_DIMS, saturated)
+        for var in ds.data_vars:
+            if ds[var].dtype.kind == "f" and ds[var].dims[-3:] == _DIMS:
+                ds[var] = ds[var].where(ds["mask"])
+        ds.attrs = self._attrs(grid, saturated_source=source)
+        return ds
+
+    def _krige_column(self, ds: xr.Dataset, column: str, targets: np.ndarray) -> None:
+        """Write the kriging estimate and variance of one column (NaN when not kriged)."""
+        if column in self.estimators_:
+            estimate, variance = self.estimators_[column].predict(targets, scheduler=self.scheduler)
+        else:
+            estimate = variance = np.full(len(targets), np.nan)
+        mask = ds.voxels.mask
+        for name, values in ((column, estimate), (f"{column}_var", variance)):
+            units, long_name = _KRIGED_ATTRS[name]
+            ds[name] = (_DIMS, _scatter(values, mask), {"units": units, "long_name": long_name})
+
+    def _simulate(
+        self, ds: xr.Dataset, targets: np.ndarray, prob_kriging: np.ndarray
+    ) -> xr.Dataset:
+        """Add the realizations of log10 K and the facies probabilities from them."""
+        key = "log10_k" if self.normal_score_ is None else "log10_k_normal_score"
+        samples = self.samples_[key]
+        sims = conditional_simulation(
+            samples.coords,
+            samples.values,
+            targets,
+            model=self.variograms_[key].model,
+            n_realizations=self.n_realizations,
+            seed=self.seed,
+            groups=samples.groups,
+            scheduler=self.scheduler,
+            **self.kriging_settings(),
+        )
+        if self.normal_score_ is not None:
+            sims = self.normal_score_.inverse(sims)
+        mask = ds.voxels.mask
+        realizations = np.full((self.n_realizations, *mask.shape), np.nan, dtype=np.float32)
+        realizations[:, mask] = sims
+        ds["realizations"] = (
+            ("realization", *_DIMS),
+            realizations,
+            {"units": "log10(m/s)", "long_name": "conditional simulations of log10 K"},
+        )
+        ds = ds.assign_coords(realization=np.arange(self.n_realizations))
+        shares = realization_probabilities(sims, self.facies_classes)
+        for i, (name, share) in enumerate(shares):
+            ds[f"prob_{name}"] = (_DIMS, _scatter(share, mask), {"long_name": _PROB_SIM % name})
+            ds[f"prob_{name}_kriging"] = (
+                _DIMS,
+                prob_kriging[i],
+                {"long_name": _PROB_KRIGING % name},
+            )
+        return ds
+
+    def _attrs(self, grid: xr.Dataset, *, saturated_source: str) -> dict[str, Any]:
+        """Attributes of the VoxelModel: the grid's, the classes and how the model was made."""
+        attrs = dict(grid.attrs)
+        base = attrs.pop("base", None)
+        if base is None:
+            base = float(grid["z"].values[0]) - grid.voxels.cell_size[2] / 2
+        attrs["saturated_source"] = saturated_source
+        attrs.update(self.facies_classes.attrs())
+        attrs.update(base=base, n_realizations=self.n_realizations, seed=int(self.seed))
+        attrs["variogram_log10_k"] = repr(self.variograms_["log10_k"].model)
+        attrs["simulation_space"] = "normal score" if self.normal_score else "log10_k"
+        for key in ("log10_k_normal_score", "ec"):
+            if key in self.variograms_:
+                attrs[f"variogram_{key}"] = repr(self.variograms_[key].model)
+        variogram = {k: v for k, v in self.variogram_settings().items() if k != "detrend"}
+        attrs["metadata"] = (
+            f"Generated by geo3d.model.build_voxel_model: ordinary kriging "
+            f"{_given(self.kriging_settings())!r}, variogram {_given(variogram)!r}, "
+            f"{self.n_intervals_} intervals from {self.n_borings_} borings, "
+            f"{self.n_realizations} realizations (seed {self.seed})"
+        )
+        return attrs
+
+
+def _given(settings: Mapping[str, Any]) -> dict[str, Any]:
+    return {k: v for k, v in settings.items() if v is not None}
+
+
+def _scatter(values: np.ndarray, mask: np.ndarray) -> np.ndarray:
+    """Put the values of the masked cells into a full grid (NaN elsewhere)."""
+    out = np.full(mask.shape, np.nan, dtype=np.asarray(values).dtype)
+    out[mask] = values
+    return out
+
+
+def build_voxel_model(
+    intervals: pd.DataFrame,
+    gridder: VoxelModel,
+    *,
+    boundary: shapely.Geometry,
+    borings: pd.DataFrame,
+    crs: CRSInput,
+    cell_size: tuple[float, float, float],
+    base: float | None,
+    padding: float,
+    dem: Raster | None = None,
+    water_table: WaterTable | None = None,
+    progress: Callable[[float, str], None] | None = None,
+) -> ModelResult:
+    """Fit a :class:`VoxelModel` to the intervals and grid it over the site, in one call.
+
+    The convenience the pipeline uses: ``gridder.fit(intervals)``, the site grid built once
+    (:func:`geo3d.grid.site_grid`, base = ``base`` or the bottom of the deepest interval),
+    ``gridder.grid(grid)``, the timing of each step.
+
+    Parameters
+    ----------
+    intervals
+        Composited intervals (see :meth:`VoxelModel.fit`).
+    gridder
+        An unfitted :class:`VoxelModel` with its settings.
+    boundary, borings, crs, cell_size, padding, dem
+        The site grid (see :func:`geo3d.grid.site_grid`).
+    base
+        Base elevation (m); None = the bottom of the deepest interval (:func:`deepest_bottom`).
+    water_table
+        See :meth:`VoxelModel.fit`.
+    progress
+        Called as ``progress(fraction, step)`` after each step.
+
+    Returns
+    -------
+    ModelResult
+    """
     timings: dict[str, float] = {}
     clock = time.perf_counter()
+    fractions = {"fit": 0.35, "grid": 0.4, "log10_k": 0.55, "ec": 0.6, "simulation": 0.9}
 
-    def step(name: str, fraction: float) -> None:
+    def step(name: str) -> None:
         nonlocal clock
         now = time.perf_counter()
-        timings[name] = now - clock
-        clock = now
+        timings[name], clock = now - clock, now
         logger.info("model: %s done (%.2f s)", name, timings[name])
         if progress is not None:
-            progress(fraction, name)
+            progress(fractions.get(name, 1.0), name)
 
-    table = _interval_table(intervals)
-    facies = facies_table(facies_classes)
-    variogram_options = _options(variogram, _VARIOGRAM_KEYS, "variogram")
-    kriging_settings = dict(kriging or {}) if not hasattr(kriging, "model_dump") else kriging
-    # no scheduler given: dask's local threads (the kriging arithmetic releases the GIL)
-    scheduler: Any = "threads"
-    if isinstance(kriging_settings, Mapping):
-        scheduler = kriging_settings.get("scheduler") or "threads"
-    elif getattr(kriging_settings, "scheduler", None):
-        scheduler = kriging_settings.scheduler
-    kriging_options = _options(kriging_settings, _KRIGING_KEYS, "kriging")
-    n_realizations = int(n_realizations)
-    if n_realizations < 0:
-        msg = f"model: n_realizations must be >= 0, got {n_realizations}"
-        raise ModelError(msg)
-
-    base_elev = _base_elevation(table, base)
-    dx, dy, dz = (float(v) for v in cell_size)
-    columns = make_grid(
+    gridder.fit(intervals, water_table=water_table)
+    step("fit")
+    grid = site_grid(
         boundary,
-        cell_size=(dx, dy, dz),
-        top=base_elev + dz,
-        base=base_elev,
+        cell_size=cell_size,
+        base=deepest_bottom(intervals) if base is None else float(base),
         crs=crs,
         padding=padding,
+        borings=borings,
+        dem=dem,
     )
-    ground = ground_surface(columns["x"].values, columns["y"].values, borings=borings, dem=dem)
-    top = float(np.nanmax(ground))
-    if top <= base_elev:
-        msg = f"model: the ground ({top:.2f} m) is not above the base ({base_elev:.2f} m)"
-        raise ModelError(msg)
-    ds = make_grid(
-        boundary, cell_size=(dx, dy, dz), top=top, base=base_elev, crs=crs, padding=padding
-    )
-    ds["ground_elev"] = (("y", "x"), ground)
-    ds["ground_elev"].attrs.update(units="m", long_name="ground elevation")
-    ds["mask"] = build_mask(ds, boundary, ground=ground, base=base_elev)
-    mask = ds["mask"].values
-    if not mask.any():
-        msg = "model: no cell lies inside the boundary, below the ground and above the base"
-        raise ModelError(msg)
-    targets = ds.voxels.centres()
-    shape = mask.shape
-    step("grid", 0.05)
-
-    def field_of(values: np.ndarray, fill: float = np.nan) -> np.ndarray:
-        out = np.full(shape, fill, dtype=np.asarray(values).dtype)
-        out[mask] = values
-        return out
-
-    variograms: dict[str, Any] = {}
-    crossvals: dict[str, Any] = {}
-    logk_estimate, logk_variance, logk_fit, logk_crossval, logk_coords, logk_values, logk_groups = (
-        _krige(
-            table,
-            "log10_k",
-            targets,
-            variogram=variogram_options,
-            kriging=kriging_options,
-            scheduler=scheduler,
-            crossval=crossval,
-        )
-    )
-    variograms["log10_k"] = logk_fit
-    if logk_crossval is not None:
-        crossvals["log10_k"] = logk_crossval
-    step("log10_k", 0.4)
-    dims = ("z", "y", "x")
-    ds["log10_k"] = (dims, field_of(logk_estimate))
-    ds["log10_k_var"] = (dims, field_of(logk_variance))
-    ds["k"] = 10.0 ** ds["log10_k"]
-    ds["log10_k"].attrs.update(units="log10(m/s)", long_name="kriged log10 hydraulic conductivity")
-    ds["log10_k_var"].attrs.update(units="log10(m/s)^2", long_name="kriging variance of log10 K")
-    ds["k"].attrs.update(units="m/s", long_name="hydraulic conductivity (10**log10_k)")
-
-    ec_ok = np.isfinite(table["ec"].to_numpy(float))
-    ec_est = ec_var = np.full(len(targets), np.nan)
-    if ec_ok.sum() >= 4 and np.ptp(table["ec"].to_numpy(float)[ec_ok]) > 0:
-        ec_est, ec_var, ec_fit, ec_cv, *_ = _krige(
-            table,
-            "ec",
-            targets,
-            variogram=variogram_options,
-            kriging=kriging_options,
-            scheduler=scheduler,
-            crossval=crossval,
-        )
-        variograms["ec"] = ec_fit
-        if ec_cv is not None:
-            crossvals["ec"] = ec_cv
-    else:
-        msg = "model: too few EC values to krige EC; ec is left empty"
-        warnings.warn(msg, Geo3dWarning, stacklevel=2)
-    ds["ec"] = (dims, field_of(ec_est))
-    ds["ec_var"] = (dims, field_of(ec_var))
-    ds["ec"].attrs.update(units="mS/m", long_name="kriged bulk electrical conductivity")
-    ds["ec_var"].attrs.update(units="(mS/m)^2", long_name="kriging variance of EC")
-    step("ec", 0.6)
-
-    prob_kriging = facies_probabilities(ds["log10_k"].values, ds["log10_k_var"].values, facies)
-    valid = np.isfinite(ds["log10_k"].values)
-    codes = np.where(valid, np.argmax(np.nan_to_num(prob_kriging, nan=-1.0), axis=0), -1)
-    ds["facies_code"] = (dims, codes.astype(np.int8))
-    ds["facies_code"].attrs.update(
-        long_name="most likely hydrofacies (kriging, Gaussian log10 K)",
-        flag_values=list(range(len(facies.names))),
-        flag_meanings=" ".join(facies.names),
-    )
-
-    if n_realizations > 0:
-        from geo3d.geostats.simulation import conditional_simulation
-        from geo3d.geostats.variogram import fit_anisotropic
-
-        sim_values, sim_model = logk_values, logk_fit.model
-        transform = None
-        if normal_score:
-            transform, sim_values = NormalScore.fit(logk_values, seed=seed)
-            detrend = "linear_z" if kriging_options.get("drift") == "linear_z" else "none"
-            score_fit = fit_anisotropic(
-                logk_coords, sim_values, logk_groups, detrend=detrend, **variogram_options
-            )
-            variograms["log10_k_normal_score"] = score_fit
-            sim_model = score_fit.model
-        sims = conditional_simulation(
-            logk_coords,
-            sim_values,
-            targets,
-            model=sim_model,
-            n_realizations=n_realizations,
-            seed=seed,
-            groups=logk_groups,
-            scheduler=scheduler,
-            **kriging_options,
-        )
-        if transform is not None:
-            sims = transform.inverse(sims)
-        realizations = np.full((n_realizations,) + shape, np.nan, dtype=np.float32)
-        realizations[:, mask] = sims
-        ds["realizations"] = (("realization",) + dims, realizations)
-        ds["realizations"].attrs.update(
-            units="log10(m/s)", long_name="conditional simulations of log10 K"
-        )
-        ds = ds.assign_coords(realization=np.arange(n_realizations))
-        sim_codes = classify_log10_k(sims, facies)
-        for i, name in enumerate(facies.names):
-            share = (sim_codes == i).mean(axis=0)
-            share[~np.isfinite(sims).all(axis=0)] = np.nan
-            ds[f"prob_{name}"] = (dims, field_of(share))
-            ds[f"prob_{name}"].attrs.update(
-                long_name=f"probability of {name} (frequency over the realizations)"
-            )
-            ds[f"prob_{name}_kriging"] = (dims, prob_kriging[i])
-            ds[f"prob_{name}_kriging"].attrs.update(
-                long_name=f"probability of {name} (Gaussian, kriging mean and variance)"
-            )
-        step("simulation", 0.9)
-    else:
-        for i, name in enumerate(facies.names):
-            ds[f"prob_{name}"] = (dims, prob_kriging[i])
-            ds[f"prob_{name}"].attrs.update(
-                long_name=f"probability of {name} (Gaussian, kriging mean and variance)"
-            )
-
-    if water_table is not None:
-        xx, yy = np.meshgrid(ds["x"].values, ds["y"].values)
-        wt = np.asarray(water_table.elevation(xx.ravel(), yy.ravel()), float).reshape(xx.shape)
-        saturated = mask & (ds["z"].values[:, None, None] <= wt[None])
-        ds.attrs["saturated_source"] = "water table"
-    else:
-        saturated = mask.copy()
-        ds.attrs["saturated_source"] = "no water table given: every model cell counted saturated"
-    ds["saturated"] = (dims, saturated)
-
-    for name in ds.data_vars:
-        if ds[name].dtype.kind == "f" and ds[name].dims[-3:] == dims:
-            ds[name] = ds[name].where(ds["mask"])
-    ds.attrs.update(facies.attrs())
-    ds.attrs["base"] = base_elev
-    ds.attrs["n_realizations"] = n_realizations
-    ds.attrs["seed"] = int(seed)
-    ds.attrs["variogram_log10_k"] = repr(logk_fit.model)
-    ds.attrs["simulation_space"] = "normal score" if normal_score else "log10_k"
-    if "log10_k_normal_score" in variograms:
-        ds.attrs["variogram_log10_k_normal_score"] = repr(variograms["log10_k_normal_score"].model)
-    if "ec" in variograms:
-        ds.attrs["variogram_ec"] = repr(variograms["ec"].model)
-    ds.attrs["metadata"] = (
-        f"Generated by geo3d.model.build_voxel_model: ordinary kriging "
-        f"{kriging_options!r}, variogram {variogram_options!r}, {len(table)} intervals from "
-        f"{table['boring_id'].nunique()} borings, {n_realizations} realizations (seed {seed})"
-    )
-    step("finish", 1.0)
-    return ModelResult(ds, variograms, crossvals, timings)
+    step("grid")
+    dataset = gridder.grid(grid, progress=step)
+    step("finish")
+    crossval = dict(gridder.crossval_)
+    return ModelResult(dataset, dict(gridder.variograms_), crossval, timings)

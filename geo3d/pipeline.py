@@ -1,8 +1,9 @@
 """The whole job as a sequence of library calls: site -> logs -> model -> volumes -> outputs.
 
-Each stage is a plain function usable from a notebook; :func:`run` chains them and writes every
-output into one folder.  This is the only module that reads the :class:`~geo3d.config.SiteConfig`
-to choose options for the library functions.
+Each stage is a plain function usable from a notebook, returning a typed result; :func:`run`
+chains them and writes every output into one folder.  Stage settings come from the site file
+through the options objects of :mod:`geo3d.config` (``logs_options``, ``model_options``,
+``volume_options``); this module passes them on as keyword arguments.
 
 Outputs are built in a staging folder (:func:`geo3d.io.atomic.output_folder`) that replaces the
 output folder only when the whole run succeeded, so a failed run leaves nothing half-written.
@@ -19,7 +20,6 @@ import platform
 import time
 import warnings
 from collections.abc import Callable, Iterator, Sequence
-from dataclasses import dataclass, field
 from datetime import UTC, datetime
 from os import PathLike
 from pathlib import Path
@@ -30,7 +30,20 @@ import pandas as pd
 import xarray as xr
 
 from geo3d import __version__
+from geo3d.analysis.injection import InjectionPlan, injection_plan
+from geo3d.analysis.thickness import thickness_maps
+from geo3d.analysis.volumes import zone_volumes
+from geo3d.analysis.water_table import depth_to_water_map, water_table_map
 from geo3d.errors import Geo3dError, Geo3dWarning, ModelError
+from geo3d.geostats.variogram import VariogramFit
+from geo3d.io import geotiff, gpkg, netcdf, tables, vtk
+from geo3d.io.atomic import atomic_file, output_folder
+from geo3d.logs.process import LogResults, process_logs
+from geo3d.model import ModelResult, VoxelModel, build_voxel_model
+from geo3d.report import write_report
+from geo3d.report.log_figure import log_figure_pngs
+from geo3d.results import RunResults
+from geo3d.site import Site, read_site
 
 __all__ = [
     "STAGES",
@@ -44,7 +57,6 @@ __all__ = [
     "run_report",
     "headline_volumes",
     "planned_stages",
-    "model_options",
 ]
 
 logger = logging.getLogger(__name__)
@@ -56,52 +68,10 @@ STAGES: tuple[str, ...] = ("check", "logs", "model", "volumes", "export", "repor
 ProgressCallback = Callable[[str, float, str], None]
 
 
-@dataclass
-class RunResults:
-    """Everything a run computed.
-
-    Attributes
-    ----------
-    site
-        The validated input (:class:`geo3d.site.Site`).
-    logs
-        Result of the logs stage (:class:`geo3d.logs.process.LogResults`).
-    model
-        Result of the model stage (:class:`geo3d.model.ModelResult`).
-    maps
-        2D maps on the model's ``(y, x)`` grid: thickness maps, water table, depth to water.
-    volumes
-        Volumes per zone, depth band and facies (:func:`geo3d.analysis.volumes.zone_volumes`).
-    injection
-        Zone name -> :class:`geo3d.analysis.injection.InjectionPlan`.
-    timings
-        Stage -> wall-clock seconds.
-    outputs
-        Files written, relative to the output folder.
-    out_dir
-        The output folder (None when nothing was written).
-    """
-
-    site: Any
-    logs: Any = None
-    model: Any = None
-    maps: dict[str, xr.DataArray] = field(default_factory=dict)
-    volumes: pd.DataFrame | None = None
-    injection: dict[str, Any] = field(default_factory=dict)
-    timings: dict[str, float] = field(default_factory=dict)
-    outputs: list[Path] = field(default_factory=list)
-    out_dir: Path | None = None
-
-    @property
-    def dataset(self) -> xr.Dataset | None:
-        """The voxel model Dataset (None before the model stage)."""
-        return None if self.model is None else getattr(self.model, "dataset", self.model)
-
-
 # --------------------------------------------------------------------------- stages
 
 
-def run_check(site_path: str | PathLike) -> Any:
+def run_check(site_path: str | PathLike) -> Site:
     """Read and validate a site folder.
 
     Parameters
@@ -113,103 +83,32 @@ def run_check(site_path: str | PathLike) -> Any:
     -------
     geo3d.site.Site
     """
-    from geo3d.site import read_site
-
     return read_site(site_path)
 
 
-def run_logs(site: Any) -> Any:
+def run_logs(site: Site) -> LogResults:
     """Process every injection log: water level, K, flags, intervals, hydrofacies.
 
     Parameters
     ----------
     site
-        A :class:`geo3d.site.Site`.
+        A validated site.
 
     Returns
     -------
     geo3d.logs.process.LogResults
     """
-    from geo3d.logs.process import process_logs
-
-    return process_logs(site)
-
-
-def _facies_classes(site: Any, logs: Any = None) -> list[Any]:
-    classes = list(getattr(logs, "facies_classes", None) or [])
-    if classes:
-        return classes
-    from geo3d.facies import FaciesClass
-
-    return [
-        FaciesClass(
-            name=c.name,
-            log10_k_max=c.log10_k_max,
-            porosity=c.porosity,
-            effective_porosity=c.effective_porosity,
-        )
-        for c in site.config.facies.classes
-    ]
-
-
-def _auto(value: Any) -> Any:
-    return None if isinstance(value, str) and value == "auto" else value
-
-
-def model_options(site: Any, *, n_realizations: int | None = None) -> dict[str, Any]:
-    """Keyword options of :func:`geo3d.model.build_voxel_model` from the site file.
-
-    Parameters
-    ----------
-    site
-        A :class:`geo3d.site.Site`.
-    n_realizations
-        Overrides ``[simulation] realizations``.
-
-    Returns
-    -------
-    dict
-        ``cell_size``, ``base``, ``padding``, ``variogram``, ``kriging``, ``n_realizations``,
-        ``seed``.
-    """
-    cfg = site.config
-    variogram = {
-        "model": cfg.variogram.model,
-        "horizontal_range": _auto(cfg.variogram.horizontal_range),
-        "vertical_range": _auto(cfg.variogram.vertical_range),
-        "azimuth": cfg.variogram.azimuth,
-        "minor_ratio": cfg.variogram.anisotropy_minor,
-        "elevation_tolerance": cfg.variogram.elevation_tolerance,
-    }
-    kriging = {
-        "neighbors": cfg.kriging.neighbors,
-        "max_per_group": cfg.kriging.max_per_boring,
-        "drift": cfg.kriging.drift,
-        "max_distance": _auto(cfg.kriging.max_distance),
-        "chunk_size": cfg.kriging.chunk_size,
-    }
-    if cfg.kriging.scheduler:
-        kriging["scheduler"] = cfg.kriging.scheduler
-    realizations = cfg.simulation.realizations if n_realizations is None else n_realizations
-    return {
-        "cell_size": tuple(cfg.grid.cell_size),
-        "base": cfg.grid.base,
-        "padding": cfg.grid.padding,
-        "variogram": variogram,
-        "kriging": kriging,
-        "n_realizations": int(realizations),
-        "seed": int(cfg.simulation.seed),
-    }
+    return process_logs(site, options=site.config.logs_options())
 
 
 def run_model(
-    site: Any,
-    logs: Any,
+    site: Site,
+    logs: LogResults,
     *,
     n_realizations: int | None = None,
     progress: ProgressCallback | None = None,
     engine: str = "gaussian",
-) -> Any:
+) -> ModelResult:
     """Build the voxel model (kriging, cross-validation, simulations) from the intervals.
 
     Parameters
@@ -232,42 +131,60 @@ def run_model(
     -------
     geo3d.model.ModelResult
     """
-    from geo3d.model import build_voxel_model
-
     if engine not in ("gaussian", "facies"):
         msg = f"model engine {engine!r} is unknown; expected 'gaussian' or 'facies'"
         raise ModelError(msg)
-
-    options = model_options(site, n_realizations=n_realizations)
+    options = site.config.model_options()
+    gridder = VoxelModel(
+        facies_classes=logs.facies_classes,
+        variogram_model=options.variogram_model,
+        range_h=options.range_h,
+        range_v=options.range_v,
+        azimuth=options.azimuth,
+        minor_ratio=options.minor_ratio,
+        elevation_tolerance=options.elevation_tolerance,
+        neighbors=options.neighbors,
+        max_per_group=options.max_per_group,
+        drift=options.drift,
+        max_distance=options.max_distance,
+        chunk_size=options.chunk_size,
+        scheduler=options.scheduler,
+        n_realizations=options.n_realizations if n_realizations is None else n_realizations,
+        seed=options.seed,
+    )
     callback = None
     if progress is not None:
 
-        def callback(fraction: float, message: str = "") -> None:
-            progress("model", float(fraction), str(message))
+        def callback(fraction: float, message: str) -> None:
+            progress("model", float(fraction), message)
 
     if engine == "facies":
-        return _facies_first(site, logs, options, callback)
+        return _facies_first(site, logs, n_realizations, callback)
     return build_voxel_model(
         logs.intervals,
+        gridder,
         boundary=site.boundary,
         borings=site.borings,
         crs=site.crs,
-        facies_classes=_facies_classes(site, logs),
-        water_table=getattr(logs, "water_table", None),
-        dem=getattr(site, "dem", None),
+        cell_size=options.cell_size,
+        base=options.base,
+        padding=options.padding,
+        dem=site.dem,
+        water_table=logs.water_table,
         progress=callback,
-        **options,
     )
 
 
-def _facies_first(site: Any, logs: Any, options: dict[str, Any], callback: Any) -> Any:
+def _facies_first(
+    site: Site, logs: LogResults, n_realizations: int | None, callback: Any
+) -> ModelResult:
     from geo3d.facies_first import build_facies_first_model
     from geo3d.logs.runs import composite_runs
 
-    classes = _facies_classes(site, logs)
+    options = site.config.model_options()
     intervals = composite_runs(
         logs.samples,
-        classes,
+        logs.facies_classes,
         interval=float(site.config.composite.interval),
         min_thickness=float(site.config.facies.min_thickness),
     )
@@ -276,17 +193,30 @@ def _facies_first(site: Any, logs: Any, options: dict[str, Any], callback: Any) 
         boundary=site.boundary,
         borings=site.borings,
         crs=site.crs,
-        facies_classes=classes,
-        water_table=getattr(logs, "water_table", None),
-        dem=getattr(site, "dem", None),
+        cell_size=options.cell_size,
+        facies_classes=logs.facies_classes,
+        water_table=logs.water_table,
+        dem=site.dem,
+        base="auto" if options.base is None else options.base,
+        padding=options.padding,
+        variogram={
+            "model": options.variogram_model,
+            "elevation_tolerance": options.elevation_tolerance,
+        },
+        kriging={
+            "neighbors": options.neighbors,
+            "max_per_group": options.max_per_group,
+            "chunk_size": options.chunk_size,
+        },
+        n_realizations=options.n_realizations if n_realizations is None else n_realizations,
+        seed=options.seed,
         progress=callback,
-        **options,
     )
 
 
 def run_volumes(
-    site: Any, logs: Any, model: Any
-) -> tuple[dict[str, xr.DataArray], pd.DataFrame, dict[str, Any]]:
+    site: Site, logs: LogResults, model: ModelResult
+) -> tuple[dict[str, xr.DataArray], pd.DataFrame, dict[str, InjectionPlan]]:
     """Compute the maps, the volumes and the injection plans.
 
     Parameters
@@ -307,37 +237,28 @@ def run_volumes(
     injection : dict
         Zone name -> injection plan, for every treatment zone.
     """
-    from geo3d.analysis.injection import injection_plan
-    from geo3d.analysis.thickness import thickness_maps
-    from geo3d.analysis.volumes import zone_volumes
-    from geo3d.analysis.water_table import depth_to_water_map, water_table_map
-
     ds = model.dataset
-    classes = _facies_classes(site, logs)
-    maps = dict(thickness_maps(ds, facies_classes=classes))
-    water_table = getattr(logs, "water_table", None)
-    if water_table is not None:
-        maps["wt_elev"] = water_table_map(ds, water_table)
-        maps["depth_to_water"] = depth_to_water_map(ds, water_table)
+    maps = dict(thickness_maps(ds))
+    maps["wt_elev"] = water_table_map(ds, logs.water_table)
+    maps["depth_to_water"] = depth_to_water_map(ds, logs.water_table)
     crs_wkt = ds.attrs.get("crs")
     for name, da in maps.items():
         da.name = name
         if crs_wkt and "crs" not in da.attrs:
             da.attrs["crs"] = crs_wkt
     zones = site.zones if site.zones is not None and len(site.zones) else None
-    volumes = zone_volumes(ds, zones, facies_classes=classes)
-    treatment = site.config.treatment
-    plans: dict[str, Any] = {}
+    volumes = zone_volumes(ds, zones)
+    options = site.config.volume_options()
+    plans: dict[str, InjectionPlan] = {}
     for zone in [] if zones is None else zones.itertuples(index=False):
-        fraction = _zone_value(zone, "design_fraction", treatment.design_fraction)
-        radius = _zone_value(zone, "radius_of_influence", treatment.radius_of_influence)
+        fraction = _zone_value(zone, "design_fraction", options.design_fraction)
+        radius = _zone_value(zone, "radius_of_influence", options.radius_of_influence)
         plans[str(zone.name)] = injection_plan(
             ds,
             zone,
-            facies_classes=classes,
             design_fraction=fraction,
             radius_of_influence=radius,
-            target=treatment.target,
+            target=options.target,
         )
     return maps, volumes, plans
 
@@ -349,13 +270,12 @@ def _zone_value(zone: Any, name: str, default: float) -> float:
     return float(value)
 
 
-def _schedule(plans: dict[str, Any]) -> pd.DataFrame | None:
+def _schedule(plans: dict[str, InjectionPlan]) -> pd.DataFrame | None:
     frames = []
     for zone, plan in plans.items():
-        schedule = getattr(plan, "schedule", None)
-        if schedule is None or len(schedule) == 0:
+        if plan.schedule is None or len(plan.schedule) == 0:
             continue
-        frame = pd.DataFrame(schedule).copy()
+        frame = pd.DataFrame(plan.schedule).copy()
         if "zone" not in frame.columns:
             frame.insert(0, "zone", zone)
         frames.append(frame)
@@ -364,6 +284,13 @@ def _schedule(plans: dict[str, Any]) -> pd.DataFrame | None:
 
 def _relative(paths: Sequence[Path], root: Path) -> list[Path]:
     return [Path(os.path.relpath(Path(p).resolve(), Path(root).resolve())) for p in paths]
+
+
+def _log_figures(results: RunResults) -> dict[str, bytes]:
+    """Return the per-boring log figures of the run, drawing them on first use."""
+    if not results.log_figures and results.logs is not None:
+        results.log_figures = log_figure_pngs(results.logs.samples, results.logs.intervals)
+    return results.log_figures
 
 
 def run_export(
@@ -390,138 +317,110 @@ def run_export(
     list of Path
         The files written.
     """
-    from geo3d.io import geotiff, netcdf, tables, vtk
-
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
-    site, logs = results.site, results.logs
-    formats = set(site.config.output.formats if formats is None else formats)
-    units = site.config.units
-    written: list[Path] = []
+    site = results.site
+    chosen = set(site.config.output.formats if formats is None else formats)
     ds = results.dataset
-    crs = site.crs
-    facies_names = None
-    if logs is not None and getattr(logs, "facies_names", None):
-        facies_names = list(logs.facies_names)
-    if "csv" in formats:
-        schedule = _schedule(results.injection)
-        summaries = {zone: getattr(p, "summary", {}) for zone, p in results.injection.items()}
-        model = results.model
-        written += tables.write_tables(
-            out,
-            length_unit=units.output_length,
-            volume_unit=units.output_volume,
-            intervals=None if logs is None else logs.intervals,
-            volumes=results.volumes,
-            injection_schedule=schedule,
-            injection_summary=summaries or None,
-            crossval=None if model is None else getattr(model, "crossval", None),
-            water_levels=None if logs is None else logs.water_levels,
-            calibration=None if logs is None else _calibration(logs),
-        )
-        if logs is not None:
-            from geo3d.logs.process import write_log_figures
-
-            written.append(
-                tables.write_csv(
-                    logs.samples,
-                    out / "samples.csv",
-                    length_unit=units.output_length,
-                    volume_unit=units.output_volume,
-                )
-            )
-            # One figure per boring; the report embeds these instead of drawing them again.
-            written += write_log_figures(logs, out / "figures" / "logs")
-        if model is not None and getattr(model, "variograms", None):
-            written.append(
-                tables.write_json(_variograms(model.variograms), out / "variograms.json")
-            )
-    if "vtk" in formats and ds is not None:
-        model_file = vtk.write_model_vti(ds, out / "model.vti")
-        written.append(model_file)
-        borings_file = None
-        if logs is not None:
-            borings_file = vtk.write_borings_vtp(
-                logs.samples, out / "borings.vtp", intervals=logs.intervals
-            )
-            written.append(borings_file)
-        vtm = vtk.write_site_vtm(
-            ds,
-            out / "site.vtm",
-            samples=None if logs is None else logs.samples,
-            intervals=None if logs is None else logs.intervals,
-            zones=site.zones if site.zones is not None and len(site.zones) else None,
-            water_table=_water_table_map(results),
-            model_file=model_file,
-            borings_file=borings_file,
-        )
-        written.append(vtm)
-        written += sorted((out / "site").glob("*"))
-    if "geotiff" in formats and results.maps:
-        written += geotiff.write_maps(results.maps, out / "maps", crs=crs)
-    if "gpkg" in formats:
+    written: list[Path] = []
+    if "csv" in chosen:
+        written += _write_tables(results, out)
+    if "vtk" in chosen and ds is not None:
+        written += _write_vtk(results, ds, out)
+    if "geotiff" in chosen and results.maps:
+        written += geotiff.write_maps(results.maps, out / "maps", crs=site.crs)
+    if "gpkg" in chosen:
         written.append(_write_gpkg(results, out / "site.gpkg"))
-    if "netcdf" in formats and ds is not None:
+    if "netcdf" in chosen and ds is not None:
         written.append(
             netcdf.write_netcdf(
                 ds,
                 out / "model.nc",
-                crs=crs,
-                facies_names=facies_names,
+                crs=site.crs,
+                facies_names=None if results.logs is None else list(results.logs.facies_names),
                 title=f"geo3d voxel model of {site.name}",
             )
         )
     return written
 
 
-def _water_table_map(results: RunResults) -> xr.DataArray | None:
+def _write_tables(results: RunResults, out: Path) -> list[Path]:
+    """Write the CSV/JSON tables and the per-boring log figures."""
+    logs, model = results.logs, results.model
+    units = {
+        "length_unit": results.site.config.units.output_length,
+        "volume_unit": results.site.config.units.output_volume,
+    }
+    summaries = {zone: plan.summary for zone, plan in results.injection.items()}
+    written = tables.write_tables(
+        out,
+        intervals=None if logs is None else logs.intervals,
+        volumes=results.volumes,
+        injection_schedule=_schedule(results.injection),
+        injection_summary=summaries or None,
+        crossval=None if model is None else model.crossval,
+        water_levels=None if logs is None else logs.water_levels,
+        calibration=None if logs is None else logs.calibration_record(),
+        **units,
+    )
+    if logs is not None:
+        written.append(tables.write_csv(logs.samples, out / "samples.csv", **units))
+        for boring_id, png in _log_figures(results).items():
+            path = out / "figures" / "logs" / f"{boring_id}.png"
+            with atomic_file(path) as tmp:
+                tmp.write_bytes(png)
+            written.append(path)
+    if model is not None and model.variograms:
+        written.append(tables.write_json(_variograms(model.variograms), out / "variograms.json"))
+    return written
+
+
+def _write_vtk(results: RunResults, ds: xr.Dataset, out: Path) -> list[Path]:
+    """Write the model image, the boring polylines and the site multiblock."""
+    site, logs = results.site, results.logs
+    model_file = vtk.write_model_vti(ds, out / "model.vti")
+    written = [model_file]
+    borings_file = None
+    if logs is not None:
+        borings_file = vtk.write_borings_vtp(
+            logs.samples, out / "borings.vtp", intervals=logs.intervals
+        )
+        written.append(borings_file)
+    vtm = vtk.write_site_vtm(
+        ds,
+        out / "site.vtm",
+        samples=None if logs is None else logs.samples,
+        intervals=None if logs is None else logs.intervals,
+        zones=site.zones if site.zones is not None and len(site.zones) else None,
+        water_table=_water_table_map(results, ds),
+        model_file=model_file,
+        borings_file=borings_file,
+    )
+    written.append(vtm)
+    written += sorted((out / "site").glob("*"))
+    return written
+
+
+def _water_table_map(results: RunResults, ds: xr.Dataset) -> xr.DataArray | None:
     """Return the water-table map of the run, made from the logs' surface when needed."""
     if "wt_elev" in results.maps:
         return results.maps["wt_elev"]
-    surface = getattr(results.logs, "water_table", None)
-    if surface is None or results.dataset is None:
+    if results.logs is None:
         return None
-    from geo3d.analysis.water_table import water_table_map
-
-    return water_table_map(results.dataset, surface)
+    return water_table_map(ds, results.logs.water_table)
 
 
-def _calibration(logs: Any) -> dict[str, Any]:
-    calibration = dict(getattr(logs, "calibration", {}) or {})
-    calibration["shape_factor_m"] = getattr(logs, "shape_factor", None)
-    water_table = getattr(logs, "water_table", None)
-    if water_table is not None:
-        calibration["water_table"] = {
-            "method": getattr(water_table, "method", None),
-            "gradient": getattr(water_table, "gradient", None),
-            "flow_direction_deg": getattr(water_table, "flow_direction_deg", None),
-        }
-    return calibration
+#: Parameters of a fitted covariance model written to ``variograms.json``.
+_COVARIANCE_KEYS = ("kind", "sill", "nugget", "range_h", "range_v", "azimuth", "minor_ratio")
 
 
-def _variograms(variograms: dict[str, Any]) -> dict[str, Any]:
+def _variograms(variograms: dict[str, VariogramFit]) -> dict[str, Any]:
     out: dict[str, Any] = {}
     for name, fit in variograms.items():
-        model = getattr(fit, "model", None)
-        entry: dict[str, Any] = {
-            "kind": getattr(fit, "kind", None),
-            "rmse": getattr(fit, "rmse", None),
-        }
-        if model is not None:
-            entry["model"] = {
-                key: getattr(model, key, None)
-                for key in (
-                    "kind",
-                    "sill",
-                    "nugget",
-                    "range_h",
-                    "range_v",
-                    "azimuth",
-                    "minor_ratio",
-                )
-            }
+        entry: dict[str, Any] = {"kind": fit.kind, "rmse": fit.rmse}
+        entry["model"] = {key: getattr(fit.model, key) for key in _COVARIANCE_KEYS}
         for part in ("vertical", "horizontal"):
-            table = getattr(fit, part, None)
+            table = getattr(fit, part)
             if isinstance(table, pd.DataFrame):
                 entry[f"{part}_experimental"] = table
         out[name] = entry
@@ -529,11 +428,8 @@ def _variograms(variograms: dict[str, Any]) -> dict[str, Any]:
 
 
 def _write_gpkg(results: RunResults, path: Path) -> Path:
-    from geo3d.io import gpkg
-
     site, logs = results.site, results.logs
-    names = list(getattr(logs, "facies_names", None) or [])
-    transmissive = "transmissive" if "transmissive" in names or not names else names[-1]
+    classes = results.facies_classes
     layers = {
         "borings": gpkg.boring_summary(
             site.borings,
@@ -541,7 +437,7 @@ def _write_gpkg(results: RunResults, path: Path) -> Path:
             samples=None if logs is None else logs.samples,
             intervals=None if logs is None else logs.intervals,
             water_levels=None if logs is None else logs.water_levels,
-            transmissive=transmissive,
+            transmissive=classes.names[classes.transmissive],
         )
     }
     if site.zones is not None and len(site.zones):
@@ -550,7 +446,7 @@ def _write_gpkg(results: RunResults, path: Path) -> Path:
             crs=site.crs,
             volumes=results.volumes,
             plans=results.injection,
-            storage=names[0] if names and "storage" not in names else "storage",
+            storage=classes.names[classes.storage],
         )
     if results.injection:
         layers["injection_points"] = gpkg.injection_points_layer(results.injection, crs=site.crs)
@@ -578,12 +474,23 @@ def run_report(results: RunResults, out_dir: str | PathLike) -> Path:
     Path
         The report file.
     """
-    from geo3d.report import write_report
-
-    return write_report(results, Path(out_dir) / "report.html")
+    return write_report(results, Path(out_dir) / "report.html", log_figures=_log_figures(results))
 
 
 # --------------------------------------------------------------------------- whole run
+
+
+#: Columns of :func:`headline_volumes`.
+_HEADLINE_COLUMNS = (
+    "zone",
+    "storage_volume_m3",
+    "storage_volume_m3_p10",
+    "storage_volume_m3_p50",
+    "storage_volume_m3_p90",
+    "effective_pore_volume_m3",
+    "design_volume_m3",
+    "n_points",
+)
 
 
 def headline_volumes(results: RunResults) -> pd.DataFrame:
@@ -602,31 +509,21 @@ def headline_volumes(results: RunResults) -> pd.DataFrame:
         (NaN without simulations), ``effective_pore_volume_m3`` (all material),
         ``design_volume_m3`` and ``n_points`` (NaN where there is no injection plan).
     """
-    columns = [
-        "zone",
-        "storage_volume_m3",
-        "storage_volume_m3_p10",
-        "storage_volume_m3_p50",
-        "storage_volume_m3_p90",
-        "effective_pore_volume_m3",
-        "design_volume_m3",
-        "n_points",
-    ]
     volumes = results.volumes
     if volumes is None or volumes.empty or not {"zone", "facies"} <= set(volumes.columns):
-        return pd.DataFrame(columns=columns)
+        return pd.DataFrame(columns=list(_HEADLINE_COLUMNS))
     table = volumes
     if "band" in table.columns:
         table = table[table["band"].isna() | (table["band"].astype(str) == "all")]
-    names = list(getattr(results.logs, "facies_names", None) or [])
-    storage_name = "storage" if "storage" in names or not names else names[0]
+    classes = results.facies_classes
+    storage_name = classes.names[classes.storage]
     rows = []
     for zone, part in table.groupby("zone", sort=False):
         facies = part["facies"].astype(str)
         storage = part[facies == storage_name]
         everything = part[facies == "all"]
         plan = results.injection.get(str(zone))
-        summary = getattr(plan, "summary", {}) or {}
+        summary = {} if plan is None else plan.summary
         row = {"zone": str(zone), "storage_volume_m3": _first_value(storage, "bulk_volume_m3")}
         for p in ("p10", "p50", "p90"):
             row[f"storage_volume_m3_{p}"] = _first_value(storage, f"bulk_volume_m3_{p}")
@@ -634,7 +531,7 @@ def headline_volumes(results: RunResults) -> pd.DataFrame:
         row["design_volume_m3"] = _summary_value(summary, "design_volume_m3")
         row["n_points"] = _summary_value(summary, "n_points")
         rows.append(row)
-    return pd.DataFrame(rows, columns=columns)
+    return pd.DataFrame(rows, columns=list(_HEADLINE_COLUMNS))
 
 
 def _first_value(frame: pd.DataFrame, column: str) -> float:
@@ -756,18 +653,8 @@ def run(
     Geo3dError
         Any input or modelling problem; the output folder is then left untouched.
     """
-    from geo3d.io.atomic import output_folder
-    from geo3d.io.tables import write_json
-
     planned = planned_stages(stages)
-    callback: ProgressCallback | None
-    if progress is True:
-
-        def callback(stage: str, fraction: float, message: str) -> None:
-            logger.info("%s: %3.0f%% %s", stage, 100 * fraction, message)
-
-    else:
-        callback = progress or None
+    callback = _progress_callback(progress)
     final = Path(out_dir)
     timings: dict[str, float] = {}
     timer = _Timer(timings, callback)
@@ -778,50 +665,82 @@ def run(
         with timer.stage("check"):
             site = run_check(site_path)
         results = RunResults(site=site, timings=timings)
+        _compute(results, planned, timer, n_realizations=n_realizations, progress=callback)
         chosen_formats = list(site.config.output.formats if formats is None else formats)
         written: list[Path] = []
-        if "logs" in planned:
-            with timer.stage("logs"):
-                results.logs = run_logs(site)
-        if "model" in planned:
-            with timer.stage("model"):
-                results.model = run_model(
-                    site, results.logs, n_realizations=n_realizations, progress=callback
-                )
-            _check_model(results.model)
-        if "volumes" in planned:
-            with timer.stage("volumes"):
-                results.maps, results.volumes, results.injection = run_volumes(
-                    site, results.logs, results.model
-                )
-        export_formats = [f for f in chosen_formats if f != "report"]
         if "export" in planned:
             with timer.stage("export"):
-                if "export" in stages:
-                    written += run_export(results, staging, formats=export_formats)
-                else:
-                    written += run_export(results, staging, formats=_stage_formats(stages))
+                export_formats = (
+                    [f for f in chosen_formats if f != "report"]
+                    if "export" in stages
+                    else _stage_formats(stages)
+                )
+                written += run_export(results, staging, formats=export_formats)
         if "report" in planned and "report" in chosen_formats:
             with timer.stage("report"):
                 written.append(run_report(results, staging))
         timings["total"] = time.perf_counter() - total_start
         results.outputs = sorted(set(_relative(written, staging)))
-        summary = {
-            "geo3d_version": __version__,
-            "python": platform.python_version(),
-            "site": str(site.name),
-            "site_path": str(Path(site_path).resolve()),
-            "started_utc": started.isoformat(timespec="seconds"),
-            "stages": [s for s in STAGES if s in timings],
-            "timings_s": {k: round(v, 3) for k, v in timings.items()},
-            "outputs": [str(p) for p in results.outputs],
-            "headline": headline_volumes(results) if results.volumes is not None else [],
-        }
-        write_json(summary, staging / "run.json")
+        tables.write_json(_run_summary(results, site_path, started), staging / "run.json")
         logger.info("run finished in %.1f s", timings["total"])
     results.out_dir = final
     results.outputs = [*results.outputs, Path("run.json"), Path("run.log")]
     return results
+
+
+def _progress_callback(progress: bool | ProgressCallback) -> ProgressCallback | None:
+    """Return the progress callback of :func:`run` (``True`` logs the progress)."""
+    if progress is True:
+
+        def log_progress(stage: str, fraction: float, message: str) -> None:
+            logger.info("%s: %3.0f%% %s", stage, 100 * fraction, message)
+
+        return log_progress
+    return progress or None
+
+
+def _compute(
+    results: RunResults,
+    planned: Sequence[str],
+    timer: _Timer,
+    *,
+    n_realizations: int | None,
+    progress: ProgressCallback | None,
+) -> None:
+    """Run the computing stages among ``planned`` (logs, model, volumes) into ``results``."""
+    site = results.site
+    if "logs" in planned:
+        with timer.stage("logs"):
+            results.logs = run_logs(site)
+    if "model" in planned and results.logs is not None:
+        with timer.stage("model"):
+            results.model = run_model(
+                site, results.logs, n_realizations=n_realizations, progress=progress
+            )
+        _check_model(results.model)
+    if "volumes" in planned and results.logs is not None and results.model is not None:
+        with timer.stage("volumes"):
+            results.maps, results.volumes, results.injection = run_volumes(
+                site, results.logs, results.model
+            )
+
+
+def _run_summary(
+    results: RunResults, site_path: str | PathLike, started: datetime
+) -> dict[str, Any]:
+    """Return the content of ``run.json``."""
+    timings = results.timings
+    return {
+        "geo3d_version": __version__,
+        "python": platform.python_version(),
+        "site": str(results.site.name),
+        "site_path": str(Path(site_path).resolve()),
+        "started_utc": started.isoformat(timespec="seconds"),
+        "stages": [s for s in STAGES if s in timings],
+        "timings_s": {k: round(v, 3) for k, v in timings.items()},
+        "outputs": [str(p) for p in results.outputs],
+        "headline": headline_volumes(results) if results.volumes is not None else [],
+    }
 
 
 def planned_stages(stages: Sequence[str] = STAGES) -> list[str]:
@@ -876,9 +795,9 @@ def _stage_formats(stages: Sequence[str]) -> list[str]:
     return ["csv"]
 
 
-def _check_model(model: Any) -> None:
-    ds = getattr(model, "dataset", None)
-    if ds is None or "log10_k" not in ds:
+def _check_model(model: ModelResult) -> None:
+    ds = model.dataset
+    if "log10_k" not in ds:
         msg = "the model stage produced no voxel model with log10_k"
         raise ModelError(msg)
     inside = np.asarray(ds["mask"].values, bool) if "mask" in ds else None

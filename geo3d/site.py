@@ -2,14 +2,14 @@
 
 :func:`read_site` reads a site folder (``site.toml`` and the files it names), validates every
 file, converts units once and returns a :class:`Site`. Problems found in different files are
-collected, so one run reports them all (:class:`SiteValidationError`).
+collected, so one run reports them all (:class:`~geo3d.errors.SiteValidationError`).
 """
 
 from __future__ import annotations
 
 import contextlib
 import warnings
-from collections.abc import Iterable, Iterator
+from collections.abc import Iterator
 from dataclasses import dataclass
 from os import PathLike
 from pathlib import Path
@@ -28,6 +28,7 @@ from geo3d.errors import (
     Geo3dWarning,
     GeometryError,
     LogFormatError,
+    SiteValidationError,
     TableFormatError,
     WaterLevelError,
     where,
@@ -37,24 +38,7 @@ from geo3d.io.readers import read_borings, read_dissipation, read_sensor_checks,
 from geo3d.io.vector import ZONE_COLUMNS, parse_crs, read_boundary, read_zones
 from geo3d.units import from_internal, to_internal
 
-__all__ = ["Site", "SiteValidationError", "read_site", "ABSOLUTE_PRESSURE_FLOOR"]
-
-
-class SiteValidationError(Geo3dError, ValueError):
-    """Several problems were found in a site folder.
-
-    Parameters
-    ----------
-    problems
-        One message per problem; each names the file, row or line, column and what was
-        expected.
-    """
-
-    def __init__(self, problems: Iterable[str]):
-        self.problems: list[str] = list(problems)
-        count = len(self.problems)
-        header = f"{count} problem{'s' if count != 1 else ''} found in the site:"
-        super().__init__("\n".join([header, *(f"- {p}" for p in self.problems)]))
+__all__ = ["Site", "read_site", "ABSOLUTE_PRESSURE_FLOOR"]
 
 
 #: Plausibility floor for absolute pressure when [probe] atmospheric_pressure is "auto": the
@@ -250,59 +234,110 @@ def read_site(path: str | PathLike) -> Site:
     """
     given = Path(path)
     root = given.parent if given.is_file() else given
+    toml = given if given.is_file() else root / "site.toml"
     config = load_config(given)
-    units = config.units
-    files = config.files
     problems = _Problems()
-    toml = root / "site.toml" if not given.is_file() else given
-
     crs = declared_crs = None
     with problems.catch():
-        declared_crs, crs = parse_crs(config.site.crs, length_unit=units.length, source=toml)
-
+        declared_crs, crs = parse_crs(config.site.crs, length_unit=config.units.length, source=toml)
     borings = None
-    borings_path = _path(root, files.borings)
+    borings_path = _path(root, config.files.borings) or root / config.files.borings
     with problems.catch():
-        borings = read_borings(borings_path, length_unit=units.length, crs=declared_crs)
+        borings = read_borings(borings_path, length_unit=config.units.length, crs=declared_crs)
+    samples = _read_samples(root, config, borings, borings_path, problems)
+    dissipation = _read_dissipation(root, toml, config, borings, problems)
+    slug_tests, sensor_checks = _read_tests(root, config, borings, problems)
+    boundary = _read_boundary(root, crs, borings, borings_path, config, problems)
+    zones = gpd.GeoDataFrame(_empty(list(ZONE_COLUMNS)), geometry=[], crs=crs)
+    zones_path = _path(root, config.files.zones)
+    if zones_path is not None and crs is not None:
+        with problems.catch():
+            zones = read_zones(
+                zones_path,
+                crs=crs,
+                length_unit=config.units.length,
+                design_fraction=config.treatment.design_fraction,
+                radius_of_influence=config.treatment.radius_of_influence,
+            )
+    dem = None
+    dem_path = _path(root, config.files.dem)
+    if dem_path is not None and crs is not None:
+        with problems.catch():
+            dem = _read_dem(dem_path, config=config)
+    problems.raise_if_any()
+    return Site(
+        name=config.site.name,
+        root=root,
+        config=config,
+        crs=crs,
+        borings=borings,
+        samples=samples,
+        dissipation=dissipation,
+        slug_tests=slug_tests,
+        sensor_checks=sensor_checks,
+        boundary=boundary,
+        zones=zones,
+        dem=dem,
+    )
 
+
+def _read_samples(
+    root: Path,
+    config: SiteConfig,
+    borings: pd.DataFrame | None,
+    borings_path: Path,
+    problems: _Problems,
+) -> pd.DataFrame | None:
+    """Read the logs, check them against the borings table and add each sample's elevation."""
     samples = None
     sources: dict[str, Path] = {}
     with problems.catch():
-        samples, sources = read_logs(files.logs, root=root, logs=config.logs, units=units)
-
-    if borings is not None and samples is not None:
-        known = set(borings["boring_id"])
-        for boring_id, source in sources.items():
-            if boring_id not in known:
-                msg = (
-                    f"{source}: log of boring {boring_id!r} has no row in "
-                    f"{borings_path.name}; expected every logged boring in the borings table"
-                )
-                problems.add(LogFormatError(msg))
-        without = [b for b in borings["boring_id"] if b not in sources]
-        if without:
-            lines = [str(i + 2) for i, b in enumerate(borings["boring_id"]) if b in set(without)]
+        samples, sources = read_logs(
+            config.files.logs, root=root, logs=config.logs, units=config.units
+        )
+    if borings is None or samples is None:
+        return samples
+    known = set(borings["boring_id"])
+    for boring_id, source in sources.items():
+        if boring_id not in known:
             msg = (
-                f"{where(borings_path, column='boring_id')}, line{'s' if len(lines) > 1 else ''} "
-                f"{', '.join(lines[:5])}: no log file for boring"
-                f"{'s' if len(without) > 1 else ''} {', '.join(map(repr, without[:5]))}"
-                f"{' and more' if len(without) > 5 else ''}; expected one log per boring "
-                f"matching {files.logs!r}"
+                f"{source}: log of boring {boring_id!r} has no row in "
+                f"{borings_path.name}; expected every logged boring in the borings table"
             )
-            problems.add(TableFormatError(msg))
-        collars = borings.set_index("boring_id")["ground_elev"]
-        samples = samples[samples["boring_id"].isin(known)].reset_index(drop=True)
-        samples.insert(
-            2, "elev", collars.reindex(samples["boring_id"]).to_numpy() - samples["depth"]
+            problems.add(LogFormatError(msg))
+    without = [b for b in borings["boring_id"] if b not in sources]
+    if without:
+        lines = [str(i + 2) for i, b in enumerate(borings["boring_id"]) if b in set(without)]
+        msg = (
+            f"{where(borings_path, column='boring_id')}, line{'s' if len(lines) > 1 else ''} "
+            f"{', '.join(lines[:5])}: no log file for boring"
+            f"{'s' if len(without) > 1 else ''} {', '.join(map(repr, without[:5]))}"
+            f"{' and more' if len(without) > 5 else ''}; expected one log per boring "
+            f"matching {config.files.logs!r}"
         )
-        _check_pressure_floor(
-            samples,
-            path={b: f for b, f in sources.items() if b in known},
-            config=config,
-            problems=problems,
-            first_line=config.logs.header_rows + 2,
-        )
+        problems.add(TableFormatError(msg))
+    collars = borings.set_index("boring_id")["ground_elev"]
+    samples = samples[samples["boring_id"].isin(known)].reset_index(drop=True)
+    samples.insert(2, "elev", collars.reindex(samples["boring_id"]).to_numpy() - samples["depth"])
+    _check_pressure_floor(
+        samples,
+        path={b: f for b, f in sources.items() if b in known},
+        config=config,
+        problems=problems,
+        first_line=config.logs.header_rows + 2,
+    )
+    return samples
 
+
+def _read_dissipation(
+    root: Path,
+    toml: Path,
+    config: SiteConfig,
+    borings: pd.DataFrame | None,
+    problems: _Problems,
+) -> pd.DataFrame:
+    """Read the dissipation tests; without them the water table needs a given depth."""
+    files, units = config.files, config.units
     dissipation = _empty(["boring_id", "test_id", "depth", "time_s", "pressure"])
     dissipation_path = _path(root, files.dissipation)
     if dissipation_path is not None:
@@ -321,14 +356,20 @@ def read_site(path: str | PathLike) -> Site:
             "[water] depth_to_water = <number> in site.toml"
         )
         problems.add(WaterLevelError(msg))
+    return dissipation
 
+
+def _read_tests(
+    root: Path, config: SiteConfig, borings: pd.DataFrame | None, problems: _Problems
+) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Read the slug tests and the sensor checks (each empty when not given)."""
+    files, units = config.files, config.units
     slug_tests = _empty(["boring_id", "top_depth", "bottom_depth", "k"])
     slug_path = _path(root, files.slug_tests)
     if slug_path is not None:
         with problems.catch():
             slug_tests = read_slug_tests(slug_path, length_unit=units.length, k_unit=units.k)
             _check_known(slug_tests, borings, path=slug_path, problems=problems)
-
     sensor_checks = _empty(["boring_id", "sensor", "stage", "measured", "expected", "tolerance"])
     checks_path = _path(root, files.sensor_checks)
     if checks_path is not None:
@@ -337,63 +378,42 @@ def read_site(path: str | PathLike) -> Site:
                 checks_path, pressure_unit=units.pressure, flow_unit=units.flow, ec_unit=units.ec
             )
             _check_known(sensor_checks, borings, path=checks_path, problems=problems)
+    return slug_tests, sensor_checks
 
+
+def _read_boundary(
+    root: Path,
+    crs: pyproj.CRS | None,
+    borings: pd.DataFrame | None,
+    borings_path: Path,
+    config: SiteConfig,
+    problems: _Problems,
+) -> Polygon | None:
+    """Read the boundary (or take the hull of the borings); warn about borings outside it."""
     boundary = None
-    boundary_path = _path(root, files.boundary)
+    boundary_path = _path(root, config.files.boundary)
     if crs is not None:
         if boundary_path is not None:
             with problems.catch():
                 boundary = read_boundary(boundary_path, crs=crs)
         elif borings is not None:
             boundary = _hull_boundary(borings)
-    if boundary is not None and borings is not None:
-        outside = [
-            b
-            for b, x, y in zip(borings["boring_id"], borings["x"], borings["y"], strict=True)
-            if not boundary.covers(Point(x, y))
-        ]
-        if outside:
-            msg = (
-                f"{where(borings_path, column='x, y')}: boring"
-                f"{'s' if len(outside) > 1 else ''} {', '.join(map(repr, outside[:10]))} "
-                f"outside the site boundary ({boundary_path}); they are used for the model but "
-                "lie outside the mapped area"
-            )
-            warnings.warn(msg, Geo3dWarning, stacklevel=2)
-
-    zones = gpd.GeoDataFrame(_empty(list(ZONE_COLUMNS)), geometry=[], crs=crs)
-    zones_path = _path(root, files.zones)
-    if zones_path is not None and crs is not None:
-        with problems.catch():
-            zones = read_zones(
-                zones_path,
-                crs=crs,
-                length_unit=units.length,
-                design_fraction=config.treatment.design_fraction,
-                radius_of_influence=config.treatment.radius_of_influence,
-            )
-
-    dem = None
-    dem_path = _path(root, files.dem)
-    if dem_path is not None and crs is not None:
-        with problems.catch():
-            dem = _read_dem(dem_path, config=config)
-
-    problems.raise_if_any()
-    return Site(
-        name=config.site.name,
-        root=root,
-        config=config,
-        crs=crs,
-        borings=borings,
-        samples=samples,
-        dissipation=dissipation,
-        slug_tests=slug_tests,
-        sensor_checks=sensor_checks,
-        boundary=boundary,
-        zones=zones,
-        dem=dem,
-    )
+    if boundary is None or borings is None:
+        return boundary
+    outside = [
+        b
+        for b, x, y in zip(borings["boring_id"], borings["x"], borings["y"], strict=True)
+        if not boundary.covers(Point(x, y))
+    ]
+    if outside:
+        msg = (
+            f"{where(borings_path, column='x, y')}: boring"
+            f"{'s' if len(outside) > 1 else ''} {', '.join(map(repr, outside[:10]))} "
+            f"outside the site boundary ({boundary_path}); they are used for the model but "
+            "lie outside the mapped area"
+        )
+        warnings.warn(msg, Geo3dWarning, stacklevel=3)
+    return boundary
 
 
 def _check_known(

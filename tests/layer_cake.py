@@ -7,9 +7,9 @@ probabilities from a zero kriging variance, so every cell is certain.
 import numpy as np
 import shapely
 
-from geo3d.facies import DEFAULT_CLASSES
+from geo3d.facies import DEFAULT_CLASSES, FaciesClasses
 from geo3d.grid import make_grid
-from geo3d.model import classify_log10_k, facies_probabilities, facies_table
+from geo3d.model import facies_probabilities
 
 # The default classes of the site template: storage < -7 <= transitional < -5 <= transmissive
 # (common practice); porosities after Freeze & Cherry (1979) Table 2.4.
@@ -29,13 +29,13 @@ def layer_cake(*, size=(20.0, 10.0), cell=(1.0, 1.0, 0.5), realizations=None, gr
     for top, bottom, value in LAYERS:
         column[(depth > top) & (depth < bottom)] = value
     field = np.broadcast_to(column[:, None, None], shape).copy()
-    table = facies_table(CLASSES)
+    table = FaciesClasses.from_items(CLASSES)
     dims = ("z", "y", "x")
     ds["mask"] = (dims, np.isfinite(field))
     ds["log10_k"] = (dims, field)
     ds["log10_k_var"] = (dims, np.zeros(shape))
     ds["k"] = 10.0 ** ds["log10_k"]
-    ds["facies_code"] = (dims, classify_log10_k(field, table))
+    ds["facies_code"] = (dims, table.classify(field))
     prob = facies_probabilities(field, np.zeros(shape), table)
     for i, name in enumerate(table.names):
         ds[f"prob_{name}"] = (dims, prob[i])

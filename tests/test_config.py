@@ -6,8 +6,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from geo3d.config import TEMPLATE, SiteConfig, config_from_dict, load_config
-from geo3d.errors import CRSError, SiteFileError, UnitError
-from geo3d.site import SiteValidationError
+from geo3d.errors import CRSError, SiteFileError, SiteValidationError, UnitError
 
 FT = 0.3048  # m, international foot (NIST SP 811)
 US_FT = 1200 / 3937  # m, US survey foot (NIST SP 811)
@@ -174,3 +173,32 @@ def test_facies_classes_checked(tmp_path: Path):
 def test_folder_path_reads_site_toml(tmp_path: Path):
     write(tmp_path, MINIMAL)
     assert load_config(tmp_path).site.name == "S"
+
+
+def test_ec_cutoffs_are_converted_and_reach_the_logs_options():
+    # 100 uS/cm = 10 mS/m (SI prefixes: 1 S/m = 1000 mS/m = 10000 uS/cm)
+    data = {
+        "site": {"name": "x", "crs": "EPSG:32631"},
+        "units": {"ec": "uS/cm"},
+        "facies": {
+            "classes": [
+                {"name": "clay", "log10_k_max": -7.0, "porosity": 0.45, "effective_porosity": 0.05},
+                {
+                    "name": "sand",
+                    "log10_k_max": 0.0,
+                    "porosity": 0.32,
+                    "effective_porosity": 0.25,
+                    "ec_max": 100.0,
+                },
+            ]
+        },
+    }
+    options = config_from_dict(data).logs_options()
+    assert options.ec_cutoffs == (None, pytest.approx(10.0))
+    assert options.facies_classes.names == ("clay", "sand")
+    assert config_from_dict({"site": data["site"]}).logs_options().ec_cutoffs is None
+
+
+def test_simulation_seed_default_reaches_every_stage():
+    config = config_from_dict({"site": {"name": "x", "crs": "EPSG:32631"}})
+    assert config.logs_options().seed == config.model_options().seed == config.simulation.seed

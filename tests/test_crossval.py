@@ -1,6 +1,7 @@
 import gstools as gs
 import numpy as np
 import pytest
+from gstools_models import to_gstools
 
 from geo3d.errors import ModelError
 from geo3d.geostats.covariance import CovarianceModel
@@ -16,7 +17,7 @@ def _borings(seed, n_borings=30):
     z = np.arange(0.0, 10.0, 0.5)
     coords = np.array([[x, y, zz] for x, y in xy for zz in z])
     groups = np.repeat(np.array([f"B{i:02d}" for i in range(n_borings)]), len(z))
-    values = gs.SRF(TRUTH.to_gstools(), seed=seed)(coords.T)
+    values = gs.SRF(to_gstools(TRUTH), seed=seed)(coords.T)
     return coords, values, groups
 
 

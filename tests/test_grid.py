@@ -10,6 +10,7 @@ from hypothesis import strategies as st
 
 from geo3d.errors import GeometryError, ModelError
 from geo3d.grid import build_mask, ground_surface, height_fraction, make_grid
+from geo3d.io.vtk import model_to_image
 
 
 def test_make_grid_cell_centres_and_attrs():
@@ -75,7 +76,7 @@ def test_mask_and_accessor():
     assert np.all(centres[:, 0] + centres[:, 1] <= 10) and np.all(centres[:, 2] < 3)
     depth = ds.voxels.depth_of()
     assert float(depth.sel(z=0.5).isel(x=0, y=0)) == 2.5
-    grid = ds.voxels.to_pyvista()
+    grid = model_to_image(ds)
     assert grid.n_cells == 10 * 10 * 5
     assert int(grid.cell_data["mask"].sum()) == 165
     # pyvista cell centre of the first masked cell equals ours (x fastest)
@@ -119,3 +120,27 @@ def test_height_fraction_sums_to_covered_height(lower, thickness):
     expected = max(0.0, min(3.0, lower + thickness) - max(0.0, lower))
     assert frac.sum() * 0.5 == pytest.approx(expected, abs=1e-9)
     assert np.all((frac >= 0) & (frac <= 1))
+
+
+def test_facies_classes_round_trip_through_the_dataset_attributes():
+    from geo3d.facies import DEFAULT_CLASSES, FaciesClass, FaciesClasses
+
+    ds = make_grid(shapely.box(0, 0, 2, 2), cell_size=(1, 1, 1), top=1, base=0)
+    ds.attrs.update(DEFAULT_CLASSES.attrs())
+    classes = ds.voxels.facies_classes
+    assert classes.names == DEFAULT_CLASSES.names
+    assert classes.log10_k_max.tolist() == [-7.0, -5.0, np.inf]
+    assert classes.porosity.tolist() == [0.45, 0.38, 0.32]
+    assert classes.effective_porosity.tolist() == [0.05, 0.15, 0.25]
+    assert (classes.storage, classes.transmissive) == (0, 2)
+    # classes in any order are sorted by their upper bound
+    shuffled = FaciesClasses.from_items(reversed(list(DEFAULT_CLASSES)))
+    assert shuffled.names == DEFAULT_CLASSES.names
+    with pytest.raises(ModelError, match="unique"):
+        FaciesClasses((FaciesClass("a", -7, 0.4, 0.1), FaciesClass("a", 0, 0.3, 0.2)))
+    with pytest.raises(ModelError, match="effective_porosity"):
+        FaciesClasses((FaciesClass("a", 0, 0.2, 0.3),))
+    with pytest.raises(ModelError, match="facies_names"):
+        _ = make_grid(
+            shapely.box(0, 0, 2, 2), cell_size=(1, 1, 1), top=1, base=0
+        ).voxels.facies_classes

@@ -7,7 +7,6 @@ import pytest
 import shapely
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from layer_cake import CLASSES
 from layer_cake import layer_cake as _layer_cake
 from scipy.spatial import cKDTree
 
@@ -82,7 +81,6 @@ def test_layer_cake_plan_matches_hand_design_volume():
     plan = injection_plan(
         layer_cake(),
         zone,
-        facies_classes=CLASSES,
         design_fraction=0.2,
         radius_of_influence=r,
         volume_unit="gal",
@@ -116,7 +114,6 @@ def test_schedule_shares_by_transmissivity():
     plan = injection_plan(
         layer_cake(),
         zone,
-        facies_classes=CLASSES,
         design_fraction=0.1,
         radius_of_influence=3.0,
         target="all",
@@ -141,7 +138,6 @@ def test_radius_from_volume_per_point_and_depth_target():
     plan = injection_plan(
         layer_cake(),
         zone,
-        facies_classes=CLASSES,
         design_fraction=0.25,
         volume_per_point=vp,
         target=(5.0, 6.5),
@@ -163,7 +159,6 @@ def test_percentiles_from_realizations():
     plan = injection_plan(
         layer_cake(sims),
         zone,
-        facies_classes=CLASSES,
         design_fraction=0.2,
         radius_of_influence=2.0,
     )

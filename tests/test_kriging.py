@@ -1,6 +1,7 @@
 import gstools as gs
 import numpy as np
 import pytest
+from gstools_models import to_gstools
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from pykrige.ok3d import OrdinaryKriging3D
@@ -70,7 +71,7 @@ def test_global_mode_equals_gstools(kind):
         kind, sill=1.0, nugget=0.05, range_h=50.0, range_v=6.0, azimuth=45.0, minor_ratio=0.6
     )
     est, var = OrdinaryKriging(model, global_mode=True, chunk_size=30).fit(xyz, v).predict(t)
-    ge, gv = gs.krige.Ordinary(model.to_gstools(), xyz.T, v, exact=True)(t.T, return_var=True)
+    ge, gv = gs.krige.Ordinary(to_gstools(model), xyz.T, v, exact=True)(t.T, return_var=True)
     np.testing.assert_allclose(est, ge, rtol=1e-6)
     np.testing.assert_allclose(var, gv, rtol=1e-6)
     # With all samples as neighbours the moving neighbourhood is the global system.
@@ -100,7 +101,7 @@ def test_anisotropy_improves_prediction_and_rotation_works():
         )
         rng = np.random.default_rng(5)
         pts = np.column_stack([rng.uniform(0, 100, (600, 2)), np.zeros(600)])
-        srf = gs.SRF(truth.to_gstools(), seed=11)
+        srf = gs.SRF(to_gstools(truth), seed=11)
         val = srf(pts.T)
         train, test = pts[:400], pts[400:]
         iso = CovarianceModel("gaussian", sill=1.0, range_h=25.0, range_v=100.0)

@@ -10,9 +10,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from geo3d.config import LogsSection, UnitsSection
-from geo3d.errors import Geo3dWarning, LogFormatError
+from geo3d.errors import Geo3dWarning, LogFormatError, SiteValidationError
 from geo3d.io.logs_reader import read_log, read_logs
-from geo3d.site import SiteValidationError
 
 FT = 0.3048  # m (NIST SP 811)
 PSI = 6.894757  # kPa (NIST SP 811)
@@ -75,32 +74,27 @@ def test_csv_units_header_rows_and_delimiter(tmp_path: Path):
     assert table["boring_id"].iloc[0] == "X9"
 
 
-def test_depth_not_increasing(tmp_path: Path):
+HEADER = "depth,pressure,flow,ec\n"
+
+
+@pytest.mark.parametrize(
+    ("text", "message"),
+    [
+        (
+            HEADER + "1.0,150,300,20\n1.5,150,300,20\n1.4,150,300,20\n",
+            r"B1.csv, line 4, column 'depth'.*strictly increasing",
+        ),
+        (HEADER + "-0.5,150,300,20\n1.5,150,300,20\n", r"line 2, column 'depth'.*negative"),
+        (HEADER + "1.0,150,300,20\n1.5,high,300,20\n", r"line 3, column 'pressure': not a number"),
+        ("depth,presure,flow,ec\n1.0,150,300,20\n", r"missing column 'pressure' \(found 'presure'"),
+        ("", "empty"),
+        (HEADER + "1.0,150,300,20\n1.5,150,-3,20\n", r"line 3, column 'flow'.*>= 0"),
+    ],
+)
+def test_bad_log_is_refused_naming_the_place(tmp_path: Path, text: str, message: str):
     path = tmp_path / "B1.csv"
-    path.write_text("depth,pressure,flow,ec\n1.0,150,300,20\n1.5,150,300,20\n1.4,150,300,20\n")
-    with pytest.raises(
-        LogFormatError, match=r"B1.csv, line 4, column 'depth'.*strictly increasing"
-    ):
-        read_log(path)
-
-
-def test_negative_depth(tmp_path: Path):
-    path = tmp_path / "B1.csv"
-    path.write_text("depth,pressure,flow,ec\n-0.5,150,300,20\n1.5,150,300,20\n")
-    with pytest.raises(LogFormatError, match=r"line 2, column 'depth'.*negative"):
-        read_log(path)
-
-
-def test_non_numeric_and_missing_column(tmp_path: Path):
-    path = tmp_path / "B1.csv"
-    path.write_text("depth,pressure,flow,ec\n1.0,150,300,20\n1.5,high,300,20\n")
-    with pytest.raises(LogFormatError, match=r"line 3, column 'pressure': not a number"):
-        read_log(path)
-    path.write_text("depth,presure,flow,ec\n1.0,150,300,20\n")
-    with pytest.raises(LogFormatError, match=r"missing column 'pressure' \(found 'presure'"):
-        read_log(path)
-    path.write_text("")
-    with pytest.raises(LogFormatError, match="empty"):
+    path.write_text(text)
+    with pytest.raises(LogFormatError, match=message):
         read_log(path)
 
 
@@ -126,13 +120,6 @@ def test_read_logs_sorted_and_globs(tmp_path: Path):
     assert (np.diff(samples[samples.boring_id == "B1"]["depth"]) > 0).all()
     with pytest.raises(LogFormatError, match="no log file matches"):
         read_logs("nothing/*.csv", root=tmp_path)
-
-
-def test_negative_flow_refused(tmp_path: Path):
-    path = tmp_path / "B1.csv"
-    path.write_text("depth,pressure,flow,ec\n1.0,150,300,20\n1.5,150,-3,20\n")
-    with pytest.raises(LogFormatError, match=r"line 3, column 'flow'.*>= 0"):
-        read_log(path)
 
 
 def test_las_null_ec_becomes_nan(tmp_path: Path):

@@ -6,17 +6,18 @@ import numpy as np
 import pandas as pd
 import pytest
 import shapely
+import xarray as xr
 from scipy.stats import norm
 
 from geo3d.analysis.thickness import thickness_maps
 from geo3d.analysis.volumes import zone_volumes
 from geo3d.errors import ModelError
+from geo3d.facies import FaciesClasses
 from geo3d.model import (
     NormalScore,
+    VoxelModel,
     build_voxel_model,
-    classify_log10_k,
     facies_probabilities,
-    facies_table,
 )
 
 
@@ -74,19 +75,51 @@ def layer_cake_intervals(seed=1, noise=0.05):
     return intervals, borings
 
 
+# gridder settings of these tests: exponential variogram, 16 neighbours, at most 6 per boring
+SETTINGS = {
+    "variogram_model": "exponential",
+    "range_h": None,
+    "range_v": None,
+    "azimuth": 0.0,
+    "minor_ratio": 1.0,
+    "elevation_tolerance": 0.5,
+    "neighbors": 16,
+    "max_per_group": 6,
+    "drift": "none",
+    "max_distance": None,
+    "chunk_size": 20000,
+    "scheduler": "threads",
+}
+
+
+def gridder(**changes):
+    settings = {"n_realizations": 0, "seed": 0, **SETTINGS, **changes}
+    return VoxelModel(facies_classes=FaciesClasses.from_items(CLASSES), **settings)
+
+
+def build(intervals, borings, *, cell_size, crs=None, water_table=None, **changes):
+    return build_voxel_model(
+        intervals,
+        gridder(**changes),
+        boundary=SITE,
+        borings=borings,
+        crs=crs,
+        cell_size=cell_size,
+        base=None,
+        padding=0.0,
+        water_table=water_table,
+    )
+
+
 @pytest.fixture(scope="module")
 def built():
     intervals, borings = layer_cake_intervals()
-    return build_voxel_model(
+    return build(
         intervals,
-        boundary=SITE,
-        borings=borings,
+        borings,
         crs="EPSG:32633",
         cell_size=(7.5, 7.5, 0.5),
-        facies_classes=CLASSES,
         water_table=FlatWaterTable(),
-        variogram={"model": "exponential"},
-        kriging={"neighbors": 16, "max_per_boring": 6},
         n_realizations=4,
         seed=7,
         normal_score=False,
@@ -116,12 +149,12 @@ def test_model_contract(built):
 
 @pytest.mark.slow
 def test_layer_cake_is_recovered(built):
-    maps = thickness_maps(built)
+    maps = thickness_maps(built.dataset)
     # flat layers: transmissive 3 m (depth 5-8), storage 2 + 2 m (construction)
     assert np.allclose(maps["transmissive_thickness"], 3.0)
     assert np.allclose(maps["storage_thickness"], 4.0)
     assert np.allclose(maps["transmissive_top_depth"], 5.0)
-    volumes = zone_volumes(built, None).set_index("facies")
+    volumes = zone_volumes(built.dataset, None).set_index("facies")
     # bulk volume 60 x 45 m x 3 m = 8100 m3 (construction): exact from the most likely facies,
     # within 2 % as the expected value under the Gaussian assumption of the kriging
     ds = built.dataset
@@ -160,8 +193,8 @@ def test_realizations_spread_as_the_kriging_variance(built):
     ratio = np.mean(departure**2) / np.mean(ds["log10_k_var"].values[mask])
     assert 0.5 < ratio < 1.5
     # the facies frequencies over the realizations are the prob_ variables (definition)
-    table = facies_table(CLASSES)
-    codes = classify_log10_k(ds["realizations"].values, table)
+    table = FaciesClasses.from_items(CLASSES)
+    codes = table.classify(ds["realizations"].values)
     share = (codes == table.transmissive).mean(axis=0)
     assert np.allclose(share[mask], ds["prob_transmissive"].values[mask])
 
@@ -172,18 +205,8 @@ def test_normal_score_realizations_keep_the_data_range():
     # proportions of the layer cake (4 m storage, 3 m transitional, 3 m transmissive of 10 m;
     # construction) within 0.1
     intervals, borings = layer_cake_intervals()
-    result = build_voxel_model(
-        intervals,
-        boundary=SITE,
-        borings=borings,
-        crs=None,
-        cell_size=(15.0, 15.0, 0.5),
-        facies_classes=CLASSES,
-        variogram={"model": "exponential"},
-        kriging={"neighbors": 16, "max_per_boring": 6},
-        n_realizations=6,
-        seed=3,
-        crossval=False,
+    result = build(
+        intervals, borings, cell_size=(15.0, 15.0, 0.5), n_realizations=6, seed=3, crossval=False
     )
     ds = result.dataset
     assert ds.attrs["simulation_space"] == "normal score"
@@ -191,7 +214,7 @@ def test_normal_score_realizations_keep_the_data_range():
     values = ds["realizations"].values[:, ds["mask"].values]
     assert values.min() >= intervals["log10_k"].min() - 1e-12
     assert values.max() <= intervals["log10_k"].max() + 1e-12
-    codes = classify_log10_k(values, facies_table(CLASSES))
+    codes = FaciesClasses.from_items(CLASSES).classify(values)
     shares = [(codes == i).mean() for i in range(3)]
     assert shares == pytest.approx([0.4, 0.3, 0.3], abs=0.1)
 
@@ -216,7 +239,7 @@ def test_normal_score_transform():
 
 
 def test_facies_probabilities_match_the_normal_law():
-    table = facies_table(CLASSES)
+    table = FaciesClasses.from_items(CLASSES)
     prob = facies_probabilities(np.array([-6.5]), np.array([0.25]), table)
     # N(-6.5, 0.5^2): P(< -7) = Phi(-1), P(-7..-5) = Phi(3) - Phi(-1), P(>= -5) = 1 - Phi(3)
     # (normal law; scipy.stats.norm as reference)
@@ -232,21 +255,22 @@ def test_facies_probabilities_match_the_normal_law():
 def test_bad_inputs_are_reported():
     intervals, borings = layer_cake_intervals()
     with pytest.raises(ModelError, match="z_mid"):
-        build_voxel_model(
-            intervals.drop(columns="z_mid"),
-            boundary=SITE,
-            borings=borings,
-            crs=None,
-            cell_size=(10, 10, 1),
-            facies_classes=CLASSES,
-        )
-    with pytest.raises(ModelError, match="kriging option"):
+        build(intervals.drop(columns="z_mid"), borings, cell_size=(10, 10, 1))
+    with pytest.raises(ModelError, match="n_realizations"):
+        gridder(n_realizations=-1)
+    with pytest.raises(ModelError, match="before fit"):
+        gridder().grid(xr.Dataset())
+    constant = intervals.assign(log10_k=-5.0)
+    with pytest.raises(ModelError, match="4 varying values"):
+        gridder().fit(constant)
+    with pytest.raises(ModelError, match="not above the base"):
         build_voxel_model(
             intervals,
+            gridder(crossval=False),
             boundary=SITE,
             borings=borings,
             crs=None,
             cell_size=(10, 10, 1),
-            facies_classes=CLASSES,
-            kriging={"neigbors": 3},
+            base=12.0,  # above the flat ground at 10 m
+            padding=0.0,
         )

@@ -1,7 +1,6 @@
 """The pipeline: stages in order, outputs in one folder, nothing left behind on failure."""
 
 import json
-from types import SimpleNamespace
 
 import geopandas as gpd
 import numpy as np
@@ -75,9 +74,9 @@ def test_existing_output_needs_overwrite(mini_site, tmp_path):
 def synthetic_model(site, logs):
     """A layered voxel model over the mini site: invented values, real grid and facies code."""
     from geo3d.grid import build_mask, make_grid
-    from geo3d.model import classify_log10_k, facies_probabilities, facies_table
+    from geo3d.model import ModelResult, facies_probabilities
 
-    table = facies_table(logs.facies_classes)
+    table = logs.facies_classes
     grid = make_grid(site.boundary, cell_size=(10.0, 10.0, 0.5), top=50.5, base=46.5, crs=site.crs)
     ground = np.full((grid.sizes["y"], grid.sizes["x"]), 50.0)
     mask = build_mask(grid, site.boundary, ground=ground, base=46.5).values
@@ -95,14 +94,14 @@ def synthetic_model(site, logs):
         k=(("z", "y", "x"), 10**log10_k),
         ec=(("z", "y", "x"), np.where(mask, 20.0, np.nan)),
         ec_var=(("z", "y", "x"), np.where(mask, 1.0, np.nan)),
-        facies_code=(("z", "y", "x"), classify_log10_k(log10_k, table)),
+        facies_code=(("z", "y", "x"), table.classify(log10_k)),
         saturated=(("z", "y", "x"), mask & (z < 48.75)),
         realizations=(("realization", "z", "y", "x"), np.stack([log10_k, log10_k + 0.5])),
     )
     for i, name in enumerate(table.names):
         ds[f"prob_{name}"] = (("z", "y", "x"), prob[i])
     ds.attrs.update(table.attrs())
-    return SimpleNamespace(dataset=ds, variograms={}, crossval={})
+    return ModelResult(dataset=ds)
 
 
 def test_volumes_and_export_on_a_layered_model(mini_site, tmp_path):

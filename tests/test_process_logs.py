@@ -2,12 +2,11 @@ import json
 import warnings
 
 import numpy as np
-import pandas as pd
 import pytest
 
 from geo3d.errors import Geo3dWarning, WaterLevelError
-from geo3d.logs.process import LogResults, process_logs, write_logs_outputs
-from geo3d.report.log_figure import facies_colour, log_figure
+from geo3d.logs.process import LogResults, process_logs
+from geo3d.report.log_figure import facies_colour, log_figure, log_figure_pngs
 from geo3d.site import read_site
 
 GAMMA_W = 9.80665  # kPa/m (NIST SP 811 standard gravity)
@@ -62,7 +61,7 @@ def test_per_sample_and_interval_tables_follow_the_contract(mini_results):
         assert column in iv.columns, column
     # physics K: log10 K = log10(Q gamma_w/(F P_net)) (Hvorslev 1951) with b = 1
     calibration = mini_results.calibration
-    assert calibration["method"] == "physics"  # two slug tests, fewer than the default 3
+    assert calibration.method == "physics"  # two slug tests, fewer than the default 3
     ok = s["q_over_p"].notna()
     np.testing.assert_allclose(
         s.loc[ok, "k_log"],
@@ -75,17 +74,20 @@ def test_per_sample_and_interval_tables_follow_the_contract(mini_results):
     assert mini_results.sensor_checks["passed"].all()
 
 
+def test_calibration_record_is_plain_json(mini_results):
+    record = json.loads(json.dumps(mini_results.calibration_record(), allow_nan=True))
+    assert record["method"] == "physics" and record["n_tests"] == 2
+    assert record["shape_factor_m"] == mini_results.shape_factor
+    assert record["water_table"]["method"] == mini_results.water_table.method
+    # physics-only K: a = log10(gamma_w / F) (Hvorslev 1951)
+    assert mini_results.physics_a == pytest.approx(np.log10(GAMMA_W / mini_results.shape_factor))
+
+
 @pytest.mark.slow
-def test_outputs_are_written(mini_results, tmp_path):
-    written = write_logs_outputs(mini_results, tmp_path / "out")
-    names = {p.relative_to(tmp_path / "out").as_posix() for p in written}
-    assert {"intervals.csv", "samples.csv", "water_levels.csv", "calibration.json"} <= names
-    assert {"figures/logs/B1.png", "figures/logs/B2.png", "figures/logs/B3.png"} <= names
-    back = pd.read_csv(tmp_path / "out" / "samples.csv")
-    assert len(back) == len(mini_results.samples)
-    calibration = json.loads((tmp_path / "out" / "calibration.json").read_text())
-    assert calibration["method"] == "physics" and calibration["n_tests"] == 2
-    assert (tmp_path / "out" / "figures" / "logs" / "B1.png").read_bytes()[:4] == b"\x89PNG"
+def test_log_figures_drawn_for_every_boring(mini_results):
+    pngs = log_figure_pngs(mini_results.samples, mini_results.intervals)
+    assert list(pngs) == ["B1", "B2", "B3"]
+    assert all(png[:8] == b"\x89PNG\r\n\x1a\n" for png in pngs.values())
 
 
 def test_given_depth_to_water_and_gauge_pressure(mini_site):

@@ -126,12 +126,6 @@ def test_slug_tests(tmp_path: Path):
     text = "boring_id,top_depth,bottom_depth,k\nA,1,2,1e-4\n"
     table = read_slug_tests(write(tmp_path, "s.csv", text), k_unit="cm/s")
     assert table["k"].iloc[0] == pytest.approx(1e-6)  # 1 cm/s = 0.01 m/s (definition)
-    text = "boring_id,top_depth,bottom_depth,k\nA,1,2,1e-4\nA,3,2,1e-4\n"
-    with pytest.raises(TableFormatError, match=r"line 3, column 'bottom_depth'"):
-        read_slug_tests(write(tmp_path, "t.csv", text))
-    text = "boring_id,top_depth,bottom_depth,k\nA,1,2,0\n"
-    with pytest.raises(TableFormatError, match=r"line 2, column 'k'.*> 0"):
-        read_slug_tests(write(tmp_path, "u.csv", text))
 
 
 def test_sensor_checks_converted_per_sensor(tmp_path: Path):
@@ -147,13 +141,26 @@ def test_sensor_checks_converted_per_sensor(tmp_path: Path):
     assert table["tolerance"].iloc[2] == pytest.approx(0.1e-3 / 60)  # L/min -> m3/s
 
 
-def test_sensor_checks_unknown_sensor(tmp_path: Path):
-    text = "boring_id,sensor,stage,measured,expected,tolerance\nA,temperature,pre,1,1,1\n"
-    with pytest.raises(TableFormatError, match=r"line 2, column 'sensor'.*pressure, flow, ec"):
-        read_sensor_checks(write(tmp_path, "c.csv", text))
-    text = "boring_id,sensor,stage,measured,expected,tolerance\nA,ec,during,1,1,1\n"
-    with pytest.raises(TableFormatError, match=r"column 'stage'.*pre, post"):
-        read_sensor_checks(write(tmp_path, "d.csv", text))
+SLUG = "boring_id,top_depth,bottom_depth,k\n"
+CHECKS = "boring_id,sensor,stage,measured,expected,tolerance\n"
+
+
+@pytest.mark.parametrize(
+    ("reader", "text", "message"),
+    [
+        (read_slug_tests, SLUG + "A,1,2,1e-4\nA,3,2,1e-4\n", r"line 3, column 'bottom_depth'"),
+        (read_slug_tests, SLUG + "A,1,2,0\n", r"line 2, column 'k'.*> 0"),
+        (
+            read_sensor_checks,
+            CHECKS + "A,temperature,pre,1,1,1\n",
+            r"line 2, column 'sensor'.*pressure, flow, ec",
+        ),
+        (read_sensor_checks, CHECKS + "A,ec,during,1,1,1\n", r"column 'stage'.*pre, post"),
+    ],
+)
+def test_bad_test_tables_are_refused_naming_the_place(tmp_path: Path, reader, text, message):
+    with pytest.raises(TableFormatError, match=message):
+        reader(write(tmp_path, "t.csv", text))
 
 
 def test_borings_geopackage_in_another_crs_is_reprojected(tmp_path: Path):

@@ -1,9 +1,9 @@
 """Tests of the HTML report: sections, embedded figures, self-containment, graceful absence.
 
-The run results below are a small synthetic site (invented data, for tests only). Upstream
-classes are used where they exist (facies classes, covariance models); the rest are plain
-namespaces with the attributes the report reads, so the report is exercised through attribute
-access only, as the pipeline uses it.
+The run results below are a small synthetic site (invented data, for tests only), built from
+the stage result types (site, logs results, calibration, water-table surface, run results);
+the model's variogram fits, cross-validations and injection plans are plain namespaces with the
+attributes of their types.
 """
 
 from __future__ import annotations
@@ -14,6 +14,7 @@ import re
 import struct
 import warnings
 from html.parser import HTMLParser
+from pathlib import Path
 from types import SimpleNamespace
 
 import geopandas as gpd
@@ -27,10 +28,18 @@ from hypothesis import strategies as st
 from shapely import affinity
 from shapely.geometry import Polygon, box
 
+from geo3d.config import config_from_dict
 from geo3d.errors import Geo3dWarning
+from geo3d.facies import DEFAULT_CLASSES
+from geo3d.logs.calibration import Calibration
+from geo3d.logs.hydraulic import shape_factor
+from geo3d.logs.process import LogResults
+from geo3d.logs.water_level import WaterTableSurface
 from geo3d.report import build_report, write_report
 from geo3d.report import figures as fg
 from geo3d.report.html import SECTION_TITLES, _fmt
+from geo3d.results import RunResults
+from geo3d.site import Site
 
 # --------------------------------------------------------------------------- synthetic run
 
@@ -211,19 +220,40 @@ def crossval(intervals: pd.DataFrame):
     return SimpleNamespace(samples=samples, summary=summary, per_group=None)
 
 
-def water_table(levels: pd.DataFrame):
-    # head falling 1 cm per m toward the east (azimuth 90 degrees): common sign convention
-    def elevation(x, y):
-        return 8.0 - 0.01 * (np.asarray(x, dtype=float) - X0) + 0.0 * np.asarray(y)
-
-    return SimpleNamespace(
-        elevation=elevation, gradient=0.01, flow_direction_deg=90.0, method="plane"
+def water_table(levels: pd.DataFrame) -> WaterTableSurface:
+    # head falling 1 cm per m toward the east (azimuth 90 degrees): common sign convention,
+    # wt_elev = 8 - 0.01 (x - X0)
+    return WaterTableSurface(
+        method="plane",
+        a=-0.01,
+        b=0.0,
+        c=8.0 + 0.01 * X0,
+        gradient=0.01,
+        flow_direction_deg=90.0,
+        n_points=len(levels),
     )
 
 
-def make_results(*, with_model: bool = True, with_slug_tests: bool = True):
-    from geo3d.facies import DEFAULT_CLASSES
+def make_site(*, borings_table: pd.DataFrame | None = None, zones=None) -> Site:
+    """A site with the synthetic geometry; the tables the report does not read are empty."""
+    config = config_from_dict({"site": {"name": "Synthetic test site", "crs": "EPSG:32631"}})
+    empty = pd.DataFrame()
+    return Site(
+        name=config.site.name,
+        root=Path("synthetic-site"),
+        config=config,
+        crs=pyproj.CRS("EPSG:32631"),
+        borings=borings() if borings_table is None else borings_table,
+        samples=empty,
+        dissipation=empty,
+        slug_tests=empty,
+        sensor_checks=empty,
+        boundary=boundary(),
+        zones=gpd.GeoDataFrame(geometry=[], crs="EPSG:32631") if zones is None else zones,
+    )
 
+
+def make_results(*, with_model: bool = True, with_slug_tests: bool = True) -> RunResults:
     bor = borings()
     samples, intervals = samples_and_intervals(bor)
     levels = bor.assign(
@@ -248,19 +278,7 @@ def make_results(*, with_model: bool = True, with_slug_tests: bool = True):
         geometry=[box(X0 + 15, Y0 + 10, X0 + 40, Y0 + 30)],
         crs="EPSG:32631",
     )
-    config = SimpleNamespace(
-        facies=SimpleNamespace(classes=list(DEFAULT_CLASSES)),
-        probe=SimpleNamespace(shape="cylinder", screen_length=0.02, screen_diameter=0.01),
-    )
-    site = SimpleNamespace(
-        name="Synthetic test site",
-        root=None,
-        crs=pyproj.CRS("EPSG:32631"),
-        borings=bor,
-        boundary=boundary(),
-        zones=zones,
-        config=config,
-    )
+    site = make_site(borings_table=bor, zones=zones)
     if with_slug_tests:
         residuals = [
             {
@@ -269,6 +287,7 @@ def make_results(*, with_model: bool = True, with_slug_tests: bool = True):
                 "bottom_depth": 7.0,
                 "k_slug": 6e-5,
                 "k_predicted": 5e-5,
+                "k_physics": 4.2e-5,
                 "log10_residual": 0.079,
                 "n_samples": 20,
             },
@@ -278,6 +297,7 @@ def make_results(*, with_model: bool = True, with_slug_tests: bool = True):
                 "bottom_depth": 7.0,
                 "k_slug": 1e-8,
                 "k_predicted": 1.5e-8,
+                "k_physics": 1.2e-8,
                 "log10_residual": -0.176,
                 "n_samples": 20,
             },
@@ -287,32 +307,24 @@ def make_results(*, with_model: bool = True, with_slug_tests: bool = True):
                 "bottom_depth": 6.0,
                 "k_slug": 2e-6,
                 "k_predicted": 1.5e-6,
+                "k_physics": 1.3e-6,
                 "log10_residual": 0.125,
                 "n_samples": 20,
             },
         ]
-        calibration = {
-            "method": "slug_tests",
-            "a": A_PHYS + 0.1,
-            "b": 0.95,
-            "se_a": 0.2,
-            "se_b": 0.05,
-            "n_tests": 3,
-            "r2": 0.97,
-            "residuals": residuals,
-        }
+        calibration = Calibration(
+            method="slug_tests",
+            a=A_PHYS + 0.1,
+            b=0.95,
+            se_a=0.2,
+            se_b=0.05,
+            n_tests=3,
+            r2=0.97,
+            residuals=residuals,
+        )
     else:
-        calibration = {
-            "method": "physics",
-            "a": A_PHYS,
-            "b": 1.0,
-            "se_a": float("nan"),
-            "se_b": float("nan"),
-            "n_tests": 0,
-            "r2": float("nan"),
-            "residuals": [],
-        }
-    logs = SimpleNamespace(
+        calibration = Calibration(method="physics", a=A_PHYS, b=1.0)
+    logs = LogResults(
         samples=samples,
         intervals=intervals,
         water_levels=levels,
@@ -330,16 +342,11 @@ def make_results(*, with_model: bool = True, with_slug_tests: bool = True):
             }
         ),
         profiles=pd.DataFrame(),
+        facies_classes=DEFAULT_CLASSES,
+        ec_trend={},
+        shape_factor=shape_factor("cylinder", length=0.02, diameter=0.01),
     )
-    results = SimpleNamespace(
-        site=site,
-        logs=logs,
-        model=None,
-        maps={},
-        volumes=None,
-        injection={},
-        timings={"logs": 1.2, "model": 3.4},
-    )
+    results = RunResults(site=site, logs=logs, timings={"logs": 1.2, "model": 3.4})
     if not with_model:
         return results
     ds = voxel_model()
@@ -536,17 +543,8 @@ def test_cautions_open_and_close_the_report(full_report):
 @pytest.mark.slow
 def test_methods_cite_their_sources(full_report):
     _, text = full_report
-    for source in (
-        "Hvorslev",
-        "Hampel",
-        "Archie",
-        "Freeze",
-        "Journel",
-        "Huijbregts",
-        "Deutsch",
-        "Pebesma",
-        "Schwarz",
-    ):
+    sources = "Hvorslev Hampel Archie Freeze Journel Huijbregts Deutsch Pebesma Schwarz"
+    for source in sources.split():
         assert source in text
 
 
@@ -608,24 +606,19 @@ def _keep_borings(results, ids):
 
 
 def test_write_report_leaves_only_the_report(tmp_path):
-    results = SimpleNamespace(
-        site=None, logs=None, model=None, maps=None, volumes=None, injection=None, timings=None
-    )
-    path = write_report(results, tmp_path / "out" / "report.html")
+    path = write_report(RunResults(site=make_site()), tmp_path / "out" / "report.html")
     assert path == tmp_path / "out" / "report.html"
     assert [p.name for p in path.parent.iterdir()] == ["report.html"]
     assert path.stat().st_mode & 0o444 == 0o444  # readable by everyone it is shared with
 
 
-def test_log_figures_written_by_the_logs_stage_are_embedded_as_they_are(tmp_path):
+def test_log_figures_handed_over_are_embedded_as_they_are(tmp_path):
     results = _keep_borings(make_results(with_model=False), ["DP-01"])
     fig = fg.new_figure(2.0, 2.0)
     fig.add_subplot().plot([0, 1], [1, 0])
     png = fg.figure_to_png(fig)
-    folder = tmp_path / "figures" / "logs"
-    folder.mkdir(parents=True)
-    (folder / "DP-01.png").write_bytes(png)
-    text = write_report(results, tmp_path / "report.html").read_text(encoding="utf-8")
+    path = write_report(results, tmp_path / "report.html", log_figures={"DP-01": png})
+    text = path.read_text(encoding="utf-8")
     logs = [img for img in parse(text).images if img.get("data-figure") == "log-DP-01"]
     assert len(logs) == 1 and decode_img(logs[0]["src"]) == png
 
@@ -635,8 +628,8 @@ def test_log_figures_written_by_the_logs_stage_are_embedded_as_they_are(tmp_path
 
 def test_absent_parts_give_notes_not_errors(tmp_path):
     results = _keep_borings(make_results(with_model=False, with_slug_tests=False), ["DP-02"])
-    results.logs.sensor_checks = None
-    results.site.zones = None
+    results.logs.sensor_checks = pd.DataFrame()
+    results.site.zones = gpd.GeoDataFrame(geometry=[], crs="EPSG:32631")
     with warnings.catch_warnings():
         warnings.simplefilter("error", Geo3dWarning)
         text = write_report(results, tmp_path / "report.html").read_text(encoding="utf-8")
@@ -650,14 +643,12 @@ def test_absent_parts_give_notes_not_errors(tmp_path):
 
 
 def test_nearly_empty_results_still_make_a_report():
-    results = SimpleNamespace(
-        site=None, logs=None, model=None, maps=None, volumes=None, injection=None, timings=None
-    )
+    results = RunResults(site=make_site(borings_table=borings().iloc[0:0]))
     with warnings.catch_warnings():
         warnings.simplefilter("error", Geo3dWarning)
         text = build_report(results)
     assert parse(text).sections == list(SECTION_TITLES)
-    assert "Unnamed site" in text
+    assert "Synthetic test site" in text
 
 
 def test_failing_section_becomes_a_note_and_a_warning():

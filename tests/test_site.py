@@ -11,10 +11,11 @@ from geo3d.errors import (
     CRSError,
     Geo3dWarning,
     LogFormatError,
+    SiteValidationError,
     TableFormatError,
     WaterLevelError,
 )
-from geo3d.site import ABSOLUTE_PRESSURE_FLOOR, Site, SiteValidationError, read_site
+from geo3d.site import ABSOLUTE_PRESSURE_FLOOR, Site, read_site
 
 US_FT = 1200 / 3937  # m, US survey foot (NIST SP 811)
 
@@ -140,21 +141,29 @@ def test_many_problems_collected_in_one_pass(mini_site: Path):
     assert any("zones.geojson" in p and "empty" in p for p in problems)
 
 
-def test_tables_referring_to_unknown_borings(mini_site: Path):
-    edit(mini_site / "slug_tests.csv", "B3,", "B9,")
-    with pytest.raises(TableFormatError, match=r"slug_tests.csv, column 'boring_id'.*'B9'"):
-        read_site(mini_site)
-
-
-def test_empty_crs_refused(mini_site: Path):
-    edit(mini_site / "site.toml", '"EPSG:32631"', '""')
-    with pytest.raises(CRSError, match=r"site.toml, column '\[site\] crs': no CRS given"):
-        read_site(mini_site)
-
-
-def test_geographic_crs_refused(mini_site: Path):
-    edit(mini_site / "site.toml", "EPSG:32631", "EPSG:4326")
-    with pytest.raises(CRSError, match=r"site.toml.*not a projected CRS"):
+@pytest.mark.parametrize(
+    ("file", "old", "new", "error", "message"),
+    [
+        (
+            "slug_tests.csv",
+            "B3,",
+            "B9,",
+            TableFormatError,
+            r"slug_tests.csv, column 'boring_id'.*'B9'",
+        ),
+        (
+            "site.toml",
+            '"EPSG:32631"',
+            '""',
+            CRSError,
+            r"site.toml, column '\[site\] crs': no CRS given",
+        ),
+        ("site.toml", "EPSG:32631", "EPSG:4326", CRSError, r"site.toml.*not a projected CRS"),
+    ],
+)
+def test_bad_input_is_refused_naming_the_file(mini_site: Path, file, old, new, error, message):
+    edit(mini_site / file, old, new)
+    with pytest.raises(error, match=message):
         read_site(mini_site)
 
 

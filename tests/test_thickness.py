@@ -9,8 +9,8 @@ from layer_cake import CLASSES, layer_cake
 
 from geo3d.analysis.thickness import column_runs, nan_percentiles, thickness_maps
 from geo3d.errors import ModelError
+from geo3d.facies import FaciesClasses
 from geo3d.grid import make_grid
-from geo3d.model import classify_log10_k, facies_table
 
 
 def test_layer_cake_thickness_maps_exact():
@@ -77,10 +77,10 @@ def test_thickness_properties(seed, n_sims, top, thick):
     ground = rng.uniform(2, 6, shape[1:])
     ds["ground_elev"] = (("y", "x"), ground)
     ds["mask"] = (("z", "y", "x"), ds["z"].values[:, None, None] <= ground[None])
-    table = facies_table(CLASSES)
+    table = FaciesClasses.from_items(CLASSES)
     field = np.where(ds["mask"].values, rng.normal(-6, 2, shape), np.nan)
     ds["log10_k"] = (("z", "y", "x"), field)
-    ds["facies_code"] = (("z", "y", "x"), classify_log10_k(field, table))
+    ds["facies_code"] = (("z", "y", "x"), table.classify(field))
     ds.attrs.update(table.attrs())
     if n_sims:
         sims = np.where(ds["mask"].values, rng.normal(-6, 2, (n_sims,) + shape), np.nan)

@@ -2,6 +2,7 @@ import gstools as gs
 import numpy as np
 import pytest
 import skgstat as skg
+from gstools_models import to_gstools
 
 from geo3d.errors import ModelError
 from geo3d.geostats.covariance import CovarianceModel
@@ -78,7 +79,7 @@ def _borings(seed, truth, n_borings=36):
     z = np.arange(0.0, 15.0, 0.25)
     coords = np.array([[x, y, zz] for x, y in xy for zz in z])
     groups = np.repeat(np.arange(n_borings), len(z))
-    values = gs.SRF(truth.to_gstools(), seed=seed)(coords.T)
+    values = gs.SRF(to_gstools(truth), seed=seed)(coords.T)
     return coords, values, groups
 
 

@@ -18,8 +18,9 @@ from geo3d.analysis.volumes import (
     zone_volumes,
 )
 from geo3d.errors import GeometryError
+from geo3d.facies import FaciesClasses
 from geo3d.grid import make_grid
-from geo3d.model import classify_log10_k, facies_probabilities, facies_table
+from geo3d.model import facies_probabilities
 
 
 def rows(table, zone="site", band="all"):
@@ -28,7 +29,7 @@ def rows(table, zone="site", band="all"):
 
 
 def test_layer_cake_site_volumes_exact():
-    table = zone_volumes(layer_cake(), None, facies_classes=CLASSES)
+    table = zone_volumes(layer_cake(), None)
     site = rows(table)
     # bulk = 20 m x 10 m x layer thickness (construction); pore = bulk x n, effective = bulk
     # x n_e with the class porosities (Freeze & Cherry 1979, section 2.5)
@@ -54,7 +55,7 @@ def test_zone_half_outside_grid_with_cut_cells():
         "bottom": 6.1,
         "reference": "depth",
     }
-    table = zone_volumes(layer_cake(), [zone], facies_classes=CLASSES, include_site=False)
+    table = zone_volumes(layer_cake(), [zone], include_site=False)
     a = rows(table, "A")
     area = (20 - 14.3) * (8.2 - 2.6)  # part of the box inside the grid (geometry)
     assert a.loc["all", "area_m2"] == pytest.approx(area)
@@ -71,7 +72,7 @@ def test_elevation_zone_from_geodataframe_and_bands():
         {"name": ["B"], "top": [6.0], "bottom": [2.5], "reference": ["elevation"]},
         geometry=[shapely.box(0, 0, 10, 10)],
     )
-    table = zone_volumes(layer_cake(), zones, facies_classes=CLASSES, bands=[(0, 4)])
+    table = zone_volumes(layer_cake(), zones, bands=[(0, 4)])
     b = rows(table, "B")
     # elevations 6 to 2.5 = depths 4 to 7.5: 1 m storage, 2.5 m transmissive over 100 m2
     assert b.loc["storage", "bulk_volume_m3"] == pytest.approx(100.0)
@@ -85,7 +86,7 @@ def test_stored_mass_in_storage_material():
     # Kd = Koc foc (Karickhoff et al. 1979): 0.1 m3/kg x 0.002 = 2e-4 m3/kg;
     # R = 1 + rho_b Kd / n (Freeze & Cherry 1979, eq. 9.14) = 1 + 1600 x 2e-4 / 0.45
     mass = StoredMassInputs(concentration=1e-3, bulk_density=1600.0, koc=0.1, foc=0.002)
-    table = zone_volumes(layer_cake(), None, facies_classes=CLASSES, mass=mass)
+    table = zone_volumes(layer_cake(), None, mass=mass)
     storage = rows(table).loc["storage"]
     r = 1 + 1600 * 2e-4 / 0.45
     assert storage["retardation"] == pytest.approx(r)
@@ -98,7 +99,7 @@ def test_stored_mass_in_storage_material():
 def test_realization_percentiles_of_volumes():
     field = layer_cake()["log10_k"].values
     sims = np.stack([field + s for s in (-1.5, -0.5, 0.0, 0.5, 1.5)])
-    table = zone_volumes(layer_cake(realizations=sims), None, facies_classes=CLASSES)
+    table = zone_volumes(layer_cake(realizations=sims), None)
     site = rows(table)
     # transmissive thickness 0, 3, 3, 3, 6 m over 200 m2 under these shifts (construction);
     # numpy's linear-interpolation percentiles
@@ -119,10 +120,10 @@ def test_volumes_converge_with_refinement():
         ds["ground_elev"] = (("y", "x"), np.full(shape[1:], 10.0))
         depth = np.broadcast_to(10.0 - ds["z"].values[:, None, None], shape)
         field = np.where((depth > 5.1) & (depth < 7.4), -4.0, -8.0)
-        table = facies_table(CLASSES)
+        table = FaciesClasses.from_items(CLASSES)
         ds["mask"] = (("z", "y", "x"), np.ones(shape, bool))
         ds["log10_k"] = (("z", "y", "x"), field)
-        ds["facies_code"] = (("z", "y", "x"), classify_log10_k(field, table))
+        ds["facies_code"] = (("z", "y", "x"), table.classify(field))
         ds.attrs.update(table.attrs())
         volume = rows(zone_volumes(ds, None)).loc["transmissive", "bulk_volume_m3"]
         errors.append(abs(volume - 460.0))
@@ -146,12 +147,12 @@ def test_volume_properties(seed, n_sims, x0, top, thick):
     ground = rng.uniform(2, 5, shape[1:])
     ds["ground_elev"] = (("y", "x"), ground)
     mask = ds["z"].values[:, None, None] <= ground[None]
-    table = facies_table(CLASSES)
+    table = FaciesClasses.from_items(CLASSES)
     mean = np.where(mask, rng.normal(-6, 2, shape), np.nan)
     var = rng.uniform(0, 2, shape)
     ds["mask"] = (("z", "y", "x"), mask)
     ds["log10_k"] = (("z", "y", "x"), mean)
-    ds["facies_code"] = (("z", "y", "x"), classify_log10_k(mean, table))
+    ds["facies_code"] = (("z", "y", "x"), table.classify(mean))
     prob = facies_probabilities(mean, var, table)
     for i, name in enumerate(table.names):
         ds[f"prob_{name}"] = (("z", "y", "x"), prob[i])
@@ -159,7 +160,7 @@ def test_volume_properties(seed, n_sims, x0, top, thick):
     ds["realizations"] = (("realization", "z", "y", "x"), sims)
     ds.attrs.update(table.attrs())
     zone = Region("Z", shapely.box(x0, 0.5, x0 + 2.5, 2.7), top, top + thick, "depth")
-    out = zone_volumes(ds, [zone], facies_classes=CLASSES)
+    out = zone_volumes(ds, [zone])
     for name in ("site", "Z"):
         part = rows(out, name)
         facies = part.drop(index="all")

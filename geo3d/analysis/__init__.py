@@ -1,7 +1,8 @@
 """Answers from the voxel model: thickness maps, volumes, injection plans, water-table products.
 
-Every function takes a VoxelModel (an :class:`xarray.Dataset` from :mod:`geo3d.model`) or a
-``ModelResult`` and keyword-only options.
+Every function takes the VoxelModel (the :class:`xarray.Dataset` made by
+:class:`geo3d.model.VoxelModel`) and keyword-only options; the facies classes are read from the
+model's attributes (``ds.voxels.facies_classes``).
 """
 
 from geo3d.analysis.injection import InjectionPlan, injection_plan, triangular_layout

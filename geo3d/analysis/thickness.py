@@ -12,14 +12,14 @@ from __future__ import annotations
 
 import logging
 from collections.abc import Sequence
-from typing import Any
 
 import numpy as np
 import xarray as xr
 
+from geo3d.analysis.fields import facies_codes, plan_map, realization_fields, require_model
 from geo3d.errors import ModelError
+from geo3d.facies import FaciesClasses
 from geo3d.grid import height_fraction
-from geo3d.model import FaciesTable, classify_log10_k, facies_table
 
 __all__ = ["thickness_maps", "depth_range_fraction", "column_runs", "nan_percentiles"]
 
@@ -36,14 +36,6 @@ _UNITS = {
     "storage_layers": "1",
     "transmissivity": "m2/s",
 }
-
-
-def _dataset(model: Any) -> xr.Dataset:
-    ds = getattr(model, "dataset", model)
-    if not isinstance(ds, xr.Dataset):
-        msg = f"expected a VoxelModel (xarray.Dataset) or a ModelResult, got {type(model)!r}"
-        raise ModelError(msg)
-    return ds
 
 
 def depth_range_fraction(ds: xr.Dataset, depth_range: Sequence[float] | None) -> np.ndarray:
@@ -139,7 +131,7 @@ def _maps_from_codes(
     log10_k: np.ndarray,
     weight: np.ndarray,
     ds: xr.Dataset,
-    table: FaciesTable,
+    classes: FaciesClasses,
 ) -> dict[str, np.ndarray]:
     """Compute the maps of one facies field (``weight``: covered height fraction per cell)."""
     _, _, dz = ds.voxels.cell_size
@@ -147,8 +139,8 @@ def _maps_from_codes(
     ground = ds["ground_elev"].values if "ground_elev" in ds else None
     in_range = weight > 0
     present = in_range.any(axis=0)
-    transmissive = (codes == table.transmissive) & in_range
-    storage = (codes == table.storage) & in_range
+    transmissive = (codes == classes.transmissive) & in_range
+    storage = (codes == classes.storage) & in_range
     out: dict[str, np.ndarray] = {}
     out["column_height"] = (weight * dz).sum(axis=0)
     out["transmissive_thickness"] = (transmissive * weight * dz).sum(axis=0)
@@ -176,22 +168,17 @@ def _maps_from_codes(
 
 
 def thickness_maps(
-    model: Any,
-    *,
-    depth_range: Sequence[float] | None = None,
-    facies_classes: Sequence[Any] | None = None,
+    ds: xr.Dataset, *, depth_range: Sequence[float] | None = None
 ) -> dict[str, xr.DataArray]:
     """Thickness maps of the transmissive and storage material.
 
     Parameters
     ----------
-    model
-        VoxelModel (xarray Dataset) or a ``ModelResult``.
+    ds
+        The VoxelModel (its facies classes are read from its attributes).
     depth_range
         ``(top_depth, bottom_depth)`` in m below ground limiting every map (cells cut by the
         limits count by their covered height); None = the whole model column.
-    facies_classes
-        Facies classes; default the ones recorded in the model's attributes.
 
     Returns
     -------
@@ -208,32 +195,22 @@ def thickness_maps(
     .. [1] Freeze, R.A., Cherry, J.A. (1979) Groundwater. Prentice-Hall, section 2.6:
        transmissivity T = K b, summed over layers for a layered aquifer.
     """
-    ds = _dataset(model)
-    table = facies_table(facies_classes, model=ds)
+    ds = require_model(ds)
+    classes = ds.voxels.facies_classes
     weight = depth_range_fraction(ds, depth_range)
-    if "facies_code" in ds:
-        codes = ds["facies_code"].values.astype(int)
-    else:
-        codes = classify_log10_k(ds["log10_k"].values, table).astype(int)
-    maps = _maps_from_codes(codes, ds["log10_k"].values, weight, ds, table)
-    if "realizations" in ds and ds.sizes.get("realization", 0) > 0:
-        stacks: dict[str, list[np.ndarray]] = {name: [] for name in maps}
-        for r in range(ds.sizes["realization"]):
-            field = ds["realizations"].isel(realization=r).values
-            sim = _maps_from_codes(classify_log10_k(field, table), field, weight, ds, table)
-            for name, values in sim.items():
-                stacks[name].append(values)
-        for name, values in stacks.items():
-            p10, p50, p90 = nan_percentiles(np.stack(values), (10, 50, 90))
+    maps = _maps_from_codes(facies_codes(ds), ds["log10_k"].values, weight, ds, classes)
+    stacks: dict[str, list[np.ndarray]] = {name: [] for name in maps}
+    for field in realization_fields(ds):
+        sim = _maps_from_codes(classes.classify(field), field, weight, ds, classes)
+        for name, values in sim.items():
+            stacks[name].append(values)
+    for name, stack in stacks.items():
+        if stack:
+            p10, p50, p90 = nan_percentiles(np.stack(stack), (10, 50, 90))
             maps[f"{name}_p10"], maps[f"{name}_p50"], maps[f"{name}_p90"] = p10, p50, p90
-    coords = {"y": ds["y"], "x": ds["x"]}
     result = {}
     for name, values in maps.items():
         base = name.rsplit("_p", 1)[0] if name.endswith(("_p10", "_p50", "_p90")) else name
-        result[name] = xr.DataArray(
-            values, dims=("y", "x"), coords=coords, name=name, attrs={"units": _UNITS[base]}
-        )
-        if ds.attrs.get("crs"):
-            result[name].attrs["crs"] = ds.attrs["crs"]
+        result[name] = plan_map(ds, values, name, {"units": _UNITS[base]})
     logger.debug("thickness maps: %s", sorted(result))
     return result

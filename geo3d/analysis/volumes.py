@@ -21,26 +21,32 @@ import logging
 import math
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, TypeAlias
 
 import numpy as np
 import pandas as pd
 import shapely
 import xarray as xr
 
-from geo3d.analysis.thickness import _dataset
+from geo3d.analysis.fields import (
+    facies_codes,
+    probability_stack,
+    realization_facies,
+    require_model,
+)
 from geo3d.errors import GeometryError, ModelError
+from geo3d.facies import FaciesClasses
 from geo3d.grid import height_fraction
-from geo3d.model import FaciesTable, classify_log10_k, facies_table
 
 __all__ = [
     "Region",
+    "ZoneLike",
+    "Zones",
     "StoredMassInputs",
     "partition_coefficient",
     "retardation_factor",
     "stored_mass",
     "region_weights",
-    "probability_stack",
     "interface_area",
     "zone_volumes",
 ]
@@ -179,14 +185,14 @@ class Region:
     """
 
     name: str
-    geometry: Any = None
+    geometry: shapely.Geometry | None = None
     top: float | None = None
     bottom: float | None = None
     reference: str = "depth"
     band: str = "all"
 
     @classmethod
-    def from_zone(cls, zone: Any) -> Region:
+    def from_zone(cls, zone: ZoneLike) -> Region:
         """Make a region from a zone row (mapping or Series with name, top, bottom, ...)."""
         if isinstance(zone, Region):
             return zone
@@ -230,6 +236,14 @@ class Region:
             msg = f"zone {self.name!r}: bottom is above top"
             raise GeometryError(msg)
         return lower, upper
+
+
+#: One treatment zone: a :class:`Region`, or a mapping or row (pandas Series, named tuple)
+#: with ``name``, ``top``, ``bottom``, ``reference`` and ``geometry``.
+ZoneLike: TypeAlias = Region | Mapping[str, Any] | pd.Series | tuple[Any, ...]
+
+#: Treatment zones: a (Geo)DataFrame of zone rows, one zone, several, or None.
+Zones: TypeAlias = pd.DataFrame | ZoneLike | Iterable[ZoneLike] | None
 
 
 def region_weights(ds: xr.Dataset, region: Region) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -306,13 +320,13 @@ def interface_area(
 
 
 def _regions(
-    zones: Any, bands: Iterable[Sequence[float]] | None, include_site: bool
+    zones: Zones, bands: Iterable[Sequence[float]] | None, include_site: bool
 ) -> list[Region]:
     regions: list[Region] = []
     if include_site:
         regions.append(Region("site"))
     if zones is not None:
-        rows: Iterable[Any]
+        rows: Iterable[ZoneLike]
         if isinstance(zones, pd.DataFrame):
             rows = (row for _, row in zones.iterrows())
         elif isinstance(zones, Region | Mapping):
@@ -338,18 +352,6 @@ def _regions(
     return regions
 
 
-def probability_stack(ds: xr.Dataset, table: FaciesTable) -> np.ndarray:
-    """Facies probabilities ``(n_classes, nz, ny, nx)`` of a model (0 where unknown).
-
-    From the ``prob_<facies>`` variables, or the indicators of ``facies_code`` without them.
-    """
-    names = [f"prob_{n}" for n in table.names]
-    if all(n in ds for n in names):
-        return np.stack([np.nan_to_num(ds[n].values, nan=0.0) for n in names])
-    codes = ds["facies_code"].values
-    return np.stack([(codes == i).astype(float) for i in range(len(table.names))])
-
-
 def _percentiles(values: np.ndarray) -> tuple[float, float, float]:
     if values.size == 0:
         return (math.nan, math.nan, math.nan)
@@ -357,11 +359,145 @@ def _percentiles(values: np.ndarray) -> tuple[float, float, float]:
     return float(p10), float(p50), float(p90)
 
 
+@dataclass(frozen=True)
+class _Storage:
+    """The inputs of the stored mass with the porosity and retardation they resolve to."""
+
+    inputs: StoredMassInputs
+    porosity: float
+    retardation: float
+
+    @classmethod
+    def of(cls, mass: StoredMassInputs, classes: FaciesClasses) -> _Storage:
+        porosity = classes.porosity[classes.storage] if mass.porosity is None else mass.porosity
+        return cls(
+            mass, porosity, retardation_factor(mass.bulk_density, mass.partition(), porosity)
+        )
+
+    def add_to(self, row: dict[str, Any]) -> None:
+        """Add the retardation and the stored mass of each bulk volume of a row."""
+        row["retardation"] = self.retardation
+        for suffix in ("", "_most_likely", "_p10", "_p50", "_p90"):
+            row[f"mass_kg{suffix}"] = stored_mass(
+                row[f"bulk_volume_m3{suffix}"],
+                porosity=self.porosity,
+                retardation=self.retardation,
+                concentration=self.inputs.concentration,
+            )
+
+
+@dataclass(frozen=True)
+class _Fields:
+    """The facies fields of a model that every region is measured on."""
+
+    classes: FaciesClasses
+    prob: np.ndarray
+    codes: np.ndarray
+    sims: list[np.ndarray]
+    cell_size: tuple[float, float, float]
+    cell_volume: float
+
+    @classmethod
+    def of(cls, ds: xr.Dataset) -> _Fields:
+        classes = ds.voxels.facies_classes
+        sims = realization_facies(ds)
+        return cls(
+            classes,
+            probability_stack(ds),
+            facies_codes(ds),
+            sims,
+            ds.voxels.cell_size,
+            ds.voxels.cell_volume,
+        )
+
+    def interface(self, codes: np.ndarray, weight: np.ndarray) -> float:
+        """Transmissive-storage interface area of a code field in a region."""
+        return interface_area(
+            codes,
+            weight,
+            self.cell_size,
+            first=self.classes.transmissive,
+            second=self.classes.storage,
+        )
+
+    def bulk(self, weight: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Bulk volume (m3) per class: expected, most likely, and per realization."""
+        nclass, cell_volume = len(self.classes), self.cell_volume
+        expected = (self.prob * weight[None]).reshape(nclass, -1).sum(axis=1) * cell_volume
+        likely = np.array(
+            [float((weight * (self.codes == i)).sum()) * cell_volume for i in range(nclass)]
+        )
+        sims = np.array(
+            [
+                np.bincount(
+                    s.ravel().astype(int) + 1, weights=weight.ravel(), minlength=nclass + 1
+                )[1:]
+                * cell_volume
+                for s in self.sims
+            ]
+        ).reshape(len(self.sims), nclass)
+        return expected, likely, sims
+
+
+def _set_percentiles(row: dict[str, Any], key: str, values: np.ndarray) -> None:
+    row[f"{key}_p10"], row[f"{key}_p50"], row[f"{key}_p90"] = _percentiles(values)
+
+
+def _facies_rows(
+    base: dict[str, Any],
+    fields: _Fields,
+    bulk: tuple[np.ndarray, np.ndarray, np.ndarray],
+    storage: _Storage | None,
+) -> list[dict[str, Any]]:
+    """One row per facies: bulk, pore and effective pore volumes (and the stored mass)."""
+    classes = fields.classes
+    expected, likely, sims = bulk
+    rows = []
+    for i, name in enumerate(classes.names):
+        row = dict(base, facies=name)
+        for key, factor in (
+            ("bulk_volume_m3", 1.0),
+            ("pore_volume_m3", classes.porosity[i]),
+            ("effective_pore_volume_m3", classes.effective_porosity[i]),
+        ):
+            row[key] = expected[i] * factor
+            row[f"{key}_most_likely"] = likely[i] * factor
+            _set_percentiles(row, key, sims[:, i] * factor)
+        if storage is not None and i == classes.storage:
+            storage.add_to(row)
+        rows.append(row)
+    return rows
+
+
+def _total_row(
+    base: dict[str, Any],
+    fields: _Fields,
+    bulk: tuple[np.ndarray, np.ndarray, np.ndarray],
+    weight: np.ndarray,
+) -> dict[str, Any]:
+    """Sum the facies of a region into its ``facies='all'`` row, with the interface area."""
+    por, eff = fields.classes.porosity, fields.classes.effective_porosity
+    expected, likely, sims = bulk
+    total = float(weight.sum()) * fields.cell_volume
+    row = dict(base, facies="all", bulk_volume_m3=total, bulk_volume_m3_most_likely=total)
+    row["pore_volume_m3"] = float(expected @ por)
+    row["effective_pore_volume_m3"] = float(expected @ eff)
+    row["pore_volume_m3_most_likely"] = float(likely @ por)
+    row["effective_pore_volume_m3_most_likely"] = float(likely @ eff)
+    _set_percentiles(row, "bulk_volume_m3", sims.sum(axis=1))
+    _set_percentiles(row, "pore_volume_m3", sims @ por)
+    _set_percentiles(row, "effective_pore_volume_m3", sims @ eff)
+    row["interface_area_m2"] = fields.interface(fields.codes, weight)
+    _set_percentiles(
+        row, "interface_area_m2", np.array([fields.interface(s, weight) for s in fields.sims])
+    )
+    return row
+
+
 def zone_volumes(
-    model: Any,
-    zones: Any = None,
+    ds: xr.Dataset,
+    zones: Zones = None,
     *,
-    facies_classes: Sequence[Any] | None = None,
     bands: Iterable[Sequence[float]] | None = None,
     mass: StoredMassInputs | None = None,
     include_site: bool = True,
@@ -370,13 +506,12 @@ def zone_volumes(
 
     Parameters
     ----------
-    model
-        VoxelModel (xarray Dataset) or a ``ModelResult``.
+    ds
+        The VoxelModel (its facies classes, with their porosities, are read from its
+        attributes).
     zones
         Treatment zones: a GeoDataFrame (``name``, ``top``, ``bottom``, ``reference``,
         ``geometry``), an iterable of such rows or :class:`Region` objects, or None.
-    facies_classes
-        Facies classes (porosities); default the ones recorded in the model's attributes.
     bands
         Depth bands ``(top_depth, bottom_depth)`` (m below ground) over the whole site.
     mass
@@ -401,80 +536,18 @@ def zone_volumes(
     .. [1] Freeze, R.A., Cherry, J.A. (1979) Groundwater. Prentice-Hall, section 2.5: porosity
        and effective porosity as void and drainable fractions of the bulk volume.
     """
-    ds = _dataset(model)
-    table = facies_table(facies_classes, model=ds)
-    nclass = len(table.names)
-    cell_volume = ds.voxels.cell_volume
-    cell_area = ds.voxels.cell_area
-    prob = probability_stack(ds, table)
-    if "facies_code" in ds:
-        codes = ds["facies_code"].values.astype(int)
-    else:
-        codes = classify_log10_k(ds["log10_k"].values, table).astype(int)
-    known = codes >= 0
-    sims: list[np.ndarray] = []
-    if "facies_realizations" in ds:
-        sims = [ds["facies_realizations"].values[r] for r in range(ds.sizes["realization"])]
-    elif "realizations" in ds and ds.sizes.get("realization", 0) > 0:
-        for r in range(ds.sizes["realization"]):
-            sims.append(classify_log10_k(ds["realizations"].isel(realization=r).values, table))
+    ds = require_model(ds)
+    fields = _Fields.of(ds)
+    storage = None if mass is None else _Storage.of(mass, fields.classes)
     mask = ds.voxels.mask
-    retardation = None
-    n_mass = None
-    if mass is not None:
-        n_mass = table.porosity[table.storage] if mass.porosity is None else mass.porosity
-        retardation = retardation_factor(mass.bulk_density, mass.partition(), n_mass)
     rows = []
     for region in _regions(zones, bands, include_site):
         weight, colfrac, _ = region_weights(ds, region)
-        area = float((colfrac * mask.any(axis=0)).sum() * cell_area)
+        area = float((colfrac * mask.any(axis=0)).sum() * ds.voxels.cell_area)
         base = {"zone": region.name, "band": region.band, "area_m2": area}
-        bulk_expected = (prob * weight[None]).reshape(nclass, -1).sum(axis=1) * cell_volume
-        bulk_likely = np.array(
-            [float((weight * (codes == i)).sum()) * cell_volume for i in range(nclass)]
-        )
-        bulk_sims = np.array(
-            [
-                np.bincount(
-                    s.ravel().astype(int) + 1, weights=weight.ravel(), minlength=nclass + 1
-                )[1:]
-                * cell_volume
-                for s in sims
-            ]
-        ).reshape(len(sims), nclass)
-        interface = interface_area(
-            codes, weight, ds.voxels.cell_size, first=table.transmissive, second=table.storage
-        )
-        interface_sims = np.array(
-            [
-                interface_area(
-                    s, weight, ds.voxels.cell_size, first=table.transmissive, second=table.storage
-                )
-                for s in sims
-            ]
-        )
-        for i, name in enumerate(table.names):
-            row = dict(base, facies=name)
-            for key, factor in (
-                ("bulk_volume_m3", 1.0),
-                ("pore_volume_m3", table.porosity[i]),
-                ("effective_pore_volume_m3", table.effective_porosity[i]),
-            ):
-                row[key] = bulk_expected[i] * factor
-                row[f"{key}_most_likely"] = bulk_likely[i] * factor
-                p = _percentiles(bulk_sims[:, i] * factor)
-                row[f"{key}_p10"], row[f"{key}_p50"], row[f"{key}_p90"] = p
-            if mass is not None and i == table.storage:
-                row["retardation"] = retardation
-                for suffix in ("", "_most_likely", "_p10", "_p50", "_p90"):
-                    row[f"mass_kg{suffix}"] = stored_mass(
-                        row[f"bulk_volume_m3{suffix}"],
-                        porosity=n_mass,
-                        retardation=retardation,
-                        concentration=mass.concentration,
-                    )
-            rows.append(row)
-        unknown = float((weight * ~known).sum()) * cell_volume
+        bulk = fields.bulk(weight)
+        rows += _facies_rows(base, fields, bulk, storage)
+        unknown = float((weight * (fields.codes < 0)).sum()) * ds.voxels.cell_volume
         if unknown > 0:
             rows.append(
                 dict(
@@ -484,25 +557,7 @@ def zone_volumes(
                     bulk_volume_m3_most_likely=unknown,
                 )
             )
-        total = float(weight.sum()) * cell_volume
-        row = dict(base, facies="all", bulk_volume_m3=total, bulk_volume_m3_most_likely=total)
-        row["pore_volume_m3"] = float(bulk_expected @ table.porosity)
-        row["effective_pore_volume_m3"] = float(bulk_expected @ table.effective_porosity)
-        row["pore_volume_m3_most_likely"] = float(bulk_likely @ table.porosity)
-        row["effective_pore_volume_m3_most_likely"] = float(bulk_likely @ table.effective_porosity)
-        totals = {
-            "bulk_volume_m3": bulk_sims.sum(axis=1),
-            "pore_volume_m3": bulk_sims @ table.porosity,
-            "effective_pore_volume_m3": bulk_sims @ table.effective_porosity,
-        }
-        for key, values in totals.items():
-            p = _percentiles(values)
-            row[f"{key}_p10"], row[f"{key}_p50"], row[f"{key}_p90"] = p
-        row["interface_area_m2"] = interface
-        p = _percentiles(interface_sims)
-        row["interface_area_m2_p10"], row["interface_area_m2_p50"] = p[0], p[1]
-        row["interface_area_m2_p90"] = p[2]
-        rows.append(row)
+        rows.append(_total_row(base, fields, bulk, weight))
     table_out = pd.DataFrame(rows)
     first = ["zone", "band", "facies", "area_m2"]
     return table_out[first + [c for c in table_out.columns if c not in first]]

@@ -15,9 +15,10 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from geo3d.analysis.thickness import _dataset
-from geo3d.analysis.volumes import Region, _regions, region_weights
+from geo3d.analysis.fields import plan_map, require_model
+from geo3d.analysis.volumes import Region, Zones, _regions, region_weights
 from geo3d.errors import WaterLevelError
+from geo3d.model import WaterTable
 
 __all__ = [
     "water_table_map",
@@ -30,7 +31,7 @@ __all__ = [
 logger = logging.getLogger(__name__)
 
 
-def _elevation(water_table: Any, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+def _elevation(water_table: WaterTable, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     if not hasattr(water_table, "elevation"):
         msg = f"water table: expected an object with .elevation(x, y), got {type(water_table)!r}"
         raise WaterLevelError(msg)
@@ -42,13 +43,13 @@ def _elevation(water_table: Any, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     return values.reshape(xx.shape)
 
 
-def water_table_map(model: Any, water_table: Any) -> xr.DataArray:
+def water_table_map(ds: xr.Dataset, water_table: WaterTable) -> xr.DataArray:
     """Water-table elevation at the centre of every grid column.
 
     Parameters
     ----------
-    model
-        VoxelModel or ``ModelResult``.
+    ds
+        The VoxelModel.
     water_table
         Object with ``.elevation(x, y)``; its ``gradient``, ``flow_direction_deg`` and
         ``method`` are copied into the attributes when present.
@@ -58,41 +59,37 @@ def water_table_map(model: Any, water_table: Any) -> xr.DataArray:
     xarray.DataArray
         ``wt_elev`` (m), dims ``("y", "x")``, NaN for columns outside the model.
     """
-    ds = _dataset(model)
+    ds = require_model(ds)
     values = _elevation(water_table, ds["x"].values, ds["y"].values)
-    inside = ds.voxels.mask.any(axis=0)
-    out = xr.DataArray(
-        np.where(inside, values, np.nan),
-        dims=("y", "x"),
-        coords={"y": ds["y"], "x": ds["x"]},
-        name="wt_elev",
-        attrs={"units": "m", "long_name": "water-table elevation"},
-    )
+    attrs: dict[str, Any] = {"units": "m", "long_name": "water-table elevation"}
     for attr in ("gradient", "flow_direction_deg", "method"):
         value = getattr(water_table, attr, None)
         if value is not None:
-            out.attrs[attr] = value if isinstance(value, str) else float(value)
-    if ds.attrs.get("crs"):
-        out.attrs["crs"] = ds.attrs["crs"]
-    return out
+            attrs[attr] = value if isinstance(value, str) else float(value)
+    return plan_map(ds, _inside(ds, values), "wt_elev", attrs)
 
 
-def depth_to_water_map(model: Any, water_table: Any) -> xr.DataArray:
+def _inside(ds: xr.Dataset, values: np.ndarray) -> np.ndarray:
+    """Values of the model's columns, NaN outside the model."""
+    return np.where(ds.voxels.mask.any(axis=0), values, np.nan)
+
+
+def depth_to_water_map(ds: xr.Dataset, water_table: WaterTable) -> xr.DataArray:
     """Depth from the ground surface to the water table per column (m; negative = artesian)."""
-    ds = _dataset(model)
+    ds = require_model(ds)
     wt = water_table_map(ds, water_table)
     out = (ds.voxels.ground - wt).rename("depth_to_water")
     out.attrs = {"units": "m", "long_name": "depth to water"}
     return out
 
 
-def water_table_gradient(model: Any, water_table: Any) -> dict[str, xr.DataArray]:
+def water_table_gradient(ds: xr.Dataset, water_table: WaterTable) -> dict[str, xr.DataArray]:
     """Hydraulic gradient of the water table per column, by central differences on the grid.
 
     Parameters
     ----------
-    model
-        VoxelModel or ``ModelResult``.
+    ds
+        The VoxelModel.
     water_table
         Object with ``.elevation(x, y)``.
 
@@ -108,7 +105,7 @@ def water_table_gradient(model: Any, water_table: Any) -> dict[str, xr.DataArray
     .. [1] Freeze, R.A., Cherry, J.A. (1979) Groundwater. Prentice-Hall, section 2.11: flow
        down the hydraulic gradient, i = -grad h, in an isotropic aquifer.
     """
-    ds = _dataset(model)
+    ds = require_model(ds)
     x, y = ds["x"].values, ds["y"].values
     head = _elevation(water_table, x, y)
     if len(x) < 2 or len(y) < 2:
@@ -117,36 +114,32 @@ def water_table_gradient(model: Any, water_table: Any) -> dict[str, xr.DataArray
     dh_dy, dh_dx = np.gradient(head, y, x)
     magnitude = np.hypot(dh_dx, dh_dy)
     direction = np.degrees(np.arctan2(-dh_dx, -dh_dy)) % 360.0
-    inside = ds.voxels.mask.any(axis=0)
-    coords = {"y": ds["y"], "x": ds["x"]}
     return {
-        "wt_gradient": xr.DataArray(
-            np.where(inside, magnitude, np.nan),
-            dims=("y", "x"),
-            coords=coords,
-            name="wt_gradient",
-            attrs={"units": "1", "long_name": "hydraulic gradient of the water table"},
+        "wt_gradient": plan_map(
+            ds,
+            _inside(ds, magnitude),
+            "wt_gradient",
+            {"units": "1", "long_name": "hydraulic gradient of the water table"},
         ),
-        "wt_flow_direction_deg": xr.DataArray(
-            np.where(inside, direction, np.nan),
-            dims=("y", "x"),
-            coords=coords,
-            name="wt_flow_direction_deg",
-            attrs={"units": "degree", "long_name": "down-gradient azimuth from north"},
+        "wt_flow_direction_deg": plan_map(
+            ds,
+            _inside(ds, direction),
+            "wt_flow_direction_deg",
+            {"units": "degree", "long_name": "down-gradient azimuth from north"},
         ),
     }
 
 
-def saturated_fraction(model: Any, water_table: Any) -> np.ndarray:
+def saturated_fraction(ds: xr.Dataset, water_table: WaterTable) -> np.ndarray:
     """Fraction of each cell's height below the water table, shape ``(nz, ny, nx)``."""
-    ds = _dataset(model)
+    ds = require_model(ds)
     wt = _elevation(water_table, ds["x"].values, ds["y"].values)
     _, _, dz = ds.voxels.cell_size
     z = ds["z"].values[:, None, None]
     return np.clip((wt[None] - (z - dz / 2)) / dz, 0.0, 1.0)
 
 
-def saturated_thickness(model: Any, zones: Any, *, water_table: Any) -> pd.DataFrame:
+def saturated_thickness(ds: xr.Dataset, zones: Zones, *, water_table: WaterTable) -> pd.DataFrame:
     """Saturated thickness of each treatment zone (and of the whole model).
 
     The saturated thickness of a column is the height of its zone interval below the water
@@ -155,8 +148,8 @@ def saturated_thickness(model: Any, zones: Any, *, water_table: Any) -> pd.DataF
 
     Parameters
     ----------
-    model
-        VoxelModel or ``ModelResult``.
+    ds
+        The VoxelModel.
     zones
         Treatment zones (as for :func:`geo3d.analysis.volumes.zone_volumes`), or None.
     water_table
@@ -169,7 +162,7 @@ def saturated_thickness(model: Any, zones: Any, *, water_table: Any) -> pd.DataF
         ``min_saturated_thickness_m``, ``max_saturated_thickness_m``,
         ``saturated_volume_m3``.
     """
-    ds = _dataset(model)
+    ds = require_model(ds)
     sat = saturated_fraction(ds, water_table)
     dx, dy, dz = ds.voxels.cell_size
     rows = []

@@ -68,12 +68,8 @@ def leave_one_group_out(
 
     Parameters
     ----------
-    coords
-        ``(n, 3)`` x, y, z.
-    values
-        ``(n,)`` values.
-    groups
-        ``(n,)`` group (boring) labels.
+    coords, values, groups
+        Samples: ``(n, 3)`` x, y, z, ``(n,)`` values and ``(n,)`` group (boring) labels.
     model
         Covariance model.
     **kriging_options

@@ -23,6 +23,7 @@ from __future__ import annotations
 import logging
 import warnings
 from collections.abc import Callable, Sequence
+from typing import Any, Protocol
 
 import numpy as np
 from scipy import linalg, sparse
@@ -46,6 +47,21 @@ _FULL_COV_MAX = 6000
 #: Elements of the data-by-target covariance block in global mode.
 _GLOBAL_BLOCK = 4_000_000
 _LOCAL_SCHEDULERS = ("threads", "processes", "synchronous", "sync", "single-threaded")
+
+
+class DaskClient(Protocol):
+    """What the kriging uses of a ``dask.distributed.Client``."""
+
+    def compute(self, tasks: list[Any]) -> Any:
+        """Submit delayed tasks; return their futures."""
+
+    def gather(self, futures: Any) -> Any:
+        """Wait for futures; return their results."""
+
+
+#: Where the chunks run: None or "" = serially; a local dask scheduler name (``'threads'``);
+#: a ``dask.distributed`` address or client.
+Scheduler = str | DaskClient | None
 
 
 class OrdinaryKriging:
@@ -218,7 +234,7 @@ class OrdinaryKriging:
 
     # ------------------------------------------------------------- predict
     def predict(
-        self, targets: np.ndarray, *, scheduler: str | object | None = None
+        self, targets: np.ndarray, *, scheduler: Scheduler = None
     ) -> tuple[np.ndarray, np.ndarray]:
         """Krige at target points.
 
@@ -244,9 +260,8 @@ class OrdinaryKriging:
             msg = f"target coordinates must be an (m, 3) array of x, y, z; got {targets.shape}"
             raise ModelError(msg)
         m = len(targets)
-        cs = int(self.chunk_size)
-        slices = [slice(i, min(m, i + cs)) for i in range(0, m, cs)] or [slice(0, 0)]
-        results = _run_chunks(self._predict_chunk, [targets[s] for s in slices], scheduler)
+        chunks = _chunks(targets, int(self.chunk_size)) or [targets[:0]]
+        results = _run_chunks(self._predict_chunk, chunks, scheduler)
         est = np.concatenate([r[0] for r in results], axis=0)
         var = np.concatenate([r[1] for r in results], axis=0)
         n_nan = int(np.isnan(var).sum())
@@ -454,10 +469,16 @@ def _check_duplicates(scaled: np.ndarray) -> None:
         raise ModelError(msg)
 
 
+def _chunks(targets: np.ndarray, size: int) -> list[np.ndarray]:
+    """Consecutive chunks of at most ``size`` target rows (none for no targets)."""
+    m = len(targets)
+    return [targets[i : min(m, i + size)] for i in range(0, m, size)]
+
+
 def _run_chunks(
     func: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray]],
     chunks: list[np.ndarray],
-    scheduler: str | object | None,
+    scheduler: Scheduler,
 ) -> list[tuple[np.ndarray, np.ndarray]]:
     """Apply ``func`` to every chunk, serially or on dask."""
     if scheduler is None or scheduler == "":
@@ -479,4 +500,4 @@ def _run_chunks(
             return list(client.gather(client.compute(tasks)))
         finally:
             client.close()
-    return list(scheduler.gather(scheduler.compute(tasks)))
+    return list(scheduler.gather(scheduler.compute(tasks)))  # a dask.distributed Client

@@ -39,12 +39,11 @@ class NeighbourSearch:
         self.n = len(self.points)
         self.tree = cKDTree(self.points, leafsize=32)
         self.workers = workers
+        self.groups: np.ndarray | None = None
         if groups is not None:
             _, codes = np.unique(np.asarray(groups), return_inverse=True)
             # Sentinel group -1 for the missing index n.
             self.groups = np.append(codes.astype(np.int64), -1)
-        else:
-            self.groups = None
 
     def query(
         self,
@@ -95,6 +94,7 @@ class NeighbourSearch:
         # threads, and another thread must never see a half-built list.
         trees = getattr(self, "_trees", None)
         if trees is None:
+            assert self.groups is not None  # only called with groups
             codes = self.groups[:-1]
             trees = []
             for g in range(int(codes.max()) + 1):
@@ -188,6 +188,7 @@ class NeighbourSearch:
         One pass over the candidate columns (nearest first) with a per-row count of samples
         taken from each group; stops as soon as every row has k neighbours.
         """
+        assert self.groups is not None  # only called with groups
         m, kc = idx.shape
         n_groups = int(self.groups.max()) + 2
         taken = np.zeros((m, n_groups), dtype=np.int32)

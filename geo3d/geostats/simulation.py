@@ -20,10 +20,11 @@ import logging
 import math
 
 import numpy as np
+from scipy.spatial import cKDTree
 
 from geo3d.errors import ModelError
 from geo3d.geostats.covariance import CovarianceModel, _matern_scale
-from geo3d.geostats.kriging import OrdinaryKriging, _run_chunks
+from geo3d.geostats.kriging import OrdinaryKriging, Scheduler, _chunks, _run_chunks
 
 __all__ = ["conditional_simulation", "unconditional_fields"]
 
@@ -170,6 +171,38 @@ def unconditional_fields(
     return np.array([srf(points) for srf in srfs]).reshape(n_realizations, -1)
 
 
+def _check_simulation(values: np.ndarray, targets: np.ndarray, n_realizations: int) -> None:
+    if n_realizations < 1:
+        msg = f"n_realizations must be >= 1, got {n_realizations}"
+        raise ModelError(msg)
+    if values.ndim != 1:
+        msg = f"values must be a 1-D array, got shape {values.shape}"
+        raise ModelError(msg)
+    if targets.ndim != 2 or targets.shape[1] != 3:
+        msg = f"targets must be an (m, 3) array of x, y, z; got {targets.shape}"
+        raise ModelError(msg)
+
+
+def _nugget_noise(
+    model: CovarianceModel,
+    coords: np.ndarray,
+    targets: np.ndarray,
+    rng: np.random.Generator,
+    n_realizations: int,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Independent nugget draws at the data and the targets, ``(r, n)`` and ``(r, m)``.
+
+    A target on a datum shares that datum's draw, so the datum is reproduced.
+    """
+    sd = np.sqrt(model.nugget)
+    noise_d = rng.normal(0.0, sd, size=(n_realizations, len(coords)))
+    noise_t = rng.normal(0.0, sd, size=(n_realizations, len(targets)))
+    dist, near = cKDTree(model.scaled(coords)).query(model.scaled(targets), k=1)
+    on = dist <= 1e-12
+    noise_t[:, on] = noise_d[:, near[on]]
+    return noise_d, noise_t
+
+
 def conditional_simulation(
     coords: np.ndarray,
     values: np.ndarray,
@@ -179,7 +212,7 @@ def conditional_simulation(
     n_realizations: int,
     seed: int,
     groups: np.ndarray | None = None,
-    scheduler: str | object | None = None,
+    scheduler: Scheduler = None,
     mode_no: int = 1000,
     **kriging_options,
 ) -> np.ndarray:
@@ -224,15 +257,7 @@ def conditional_simulation(
     coords = np.asarray(coords, dtype=float)
     values = np.asarray(values, dtype=float)
     targets = np.asarray(targets, dtype=float)
-    if n_realizations < 1:
-        msg = f"n_realizations must be >= 1, got {n_realizations}"
-        raise ModelError(msg)
-    if values.ndim != 1:
-        msg = f"values must be a 1-D array, got shape {values.shape}"
-        raise ModelError(msg)
-    if targets.ndim != 2 or targets.shape[1] != 3:
-        msg = f"targets must be an (m, 3) array of x, y, z; got {targets.shape}"
-        raise ModelError(msg)
+    _check_simulation(values, targets, n_realizations)
     r = int(n_realizations)
     seq = np.random.SeedSequence(seed)
     field_seeds = seq.generate_state(r)
@@ -242,15 +267,7 @@ def conditional_simulation(
     m = len(targets)
     noise_t = None
     if model.nugget > 0:
-        sd = np.sqrt(model.nugget)
-        noise_d = noise_rng.normal(0.0, sd, size=(r, len(coords)))
-        noise_t = noise_rng.normal(0.0, sd, size=(r, m))
-        # A target on a datum shares that datum's nugget draw, so the datum is reproduced.
-        from scipy.spatial import cKDTree
-
-        dist, near = cKDTree(model.scaled(coords)).query(model.scaled(targets), k=1)
-        on = dist <= 1e-12
-        noise_t[:, on] = noise_d[:, near[on]]
+        noise_d, noise_t = _nugget_noise(model, coords, targets, noise_rng, r)
         u_data = u_data + noise_d
     ok = OrdinaryKriging(model, **kriging_options)
     ok.fit(coords, np.column_stack([values, u_data.T]), groups)
@@ -260,9 +277,7 @@ def conditional_simulation(
         u_t = np.array([srf(t) for srf in srfs]).reshape(r, -1)
         return est[:, 0][None, :] + u_t - est[:, 1:].T, np.empty(0)
 
-    cs = int(ok.chunk_size)
-    slices = [slice(i, min(m, i + cs)) for i in range(0, m, cs)]
-    parts = _run_chunks(chunk, [targets[s] for s in slices], scheduler)
+    parts = _run_chunks(chunk, _chunks(targets, int(ok.chunk_size)), scheduler)
     out = np.concatenate([p[0] for p in parts], axis=1) if parts else np.empty((r, 0))
     if noise_t is not None:
         out += noise_t

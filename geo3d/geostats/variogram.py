@@ -133,12 +133,8 @@ def experimental_vertical(
 
     Parameters
     ----------
-    coords
-        ``(n, 3)`` x, y, z.
-    values
-        ``(n,)`` values.
-    groups
-        ``(n,)`` boring labels.
+    coords, values, groups
+        Samples: ``(n, 3)`` x, y, z, ``(n,)`` values and ``(n,)`` boring labels.
     lag
         Bin width (m) of the elevation difference.
     max_lag
@@ -187,12 +183,9 @@ def experimental_horizontal(
 
     Parameters
     ----------
-    coords
-        ``(n, 3)`` x, y, z.
-    values
-        ``(n,)`` values.
-    groups
-        ``(n,)`` boring labels; pairs within one boring are not used.
+    coords, values, groups
+        Samples: ``(n, 3)`` x, y, z, ``(n,)`` values and ``(n,)`` boring labels (pairs
+        within one boring are not used).
     lags
         Bin edges (m, ascending), or a number of equal bins up to ``max_lag``.
     elevation_tolerance
@@ -220,12 +213,7 @@ def experimental_horizontal(
         msg = f"elevation_tolerance must be >= 0, got {elevation_tolerance}"
         raise ModelError(msg)
     _, gcode = np.unique(groups, return_inverse=True)
-    if np.ndim(lags) == 0:
-        if max_lag is None:
-            max_lag = 0.5 * _max_group_distance(coords, gcode)
-        edges = np.linspace(0.0, float(max_lag), int(lags) + 1)
-    else:
-        edges = np.asarray(lags, dtype=float)
+    edges = _horizontal_edges(coords, gcode, lags, max_lag)
     order = np.argsort(coords[:, 2], kind="stable")
     c, v, g = coords[order], values[order], gcode[order]
     z = c[:, 2]
@@ -254,6 +242,20 @@ def experimental_horizontal(
         dists.append(d)
         sqs.append((v[pj] - v[pi]) ** 2)
     return _bin_pairs(np.concatenate(dists), np.concatenate(sqs), edges)
+
+
+def _horizontal_edges(
+    coords: np.ndarray, gcode: np.ndarray, lags: np.ndarray | int, max_lag: float | None
+) -> np.ndarray:
+    """Return the bin edges: given, or ``lags`` equal bins up to ``max_lag``.
+
+    ``max_lag`` defaults to half the largest distance between groups.
+    """
+    if np.ndim(lags) != 0:
+        return np.asarray(lags, dtype=float)
+    if max_lag is None:
+        max_lag = 0.5 * _max_group_distance(coords, gcode)
+    return np.linspace(0.0, float(max_lag), int(lags) + 1)
 
 
 def _max_group_distance(coords: np.ndarray, gcode: np.ndarray) -> float:
@@ -338,11 +340,11 @@ def _fit(
         gs.append(table["gamma"].to_numpy(float))
         ws.append(w / w.sum())
         rs.append(np.full(len(table), r))
-    h, g, w, r = (np.concatenate(a) for a in (hs, gs, ws, rs))
+    h, g, w, rr = (np.concatenate(a) for a in (hs, gs, ws, rs))
     sw = np.sqrt(w)
     g_scale = max(float(np.max(g)), 1e-300)
     free = [i for i in range(n_ranges) if i not in fixed_ranges]
-    h_max = [float(h[r == i].max()) for i in range(n_ranges)]
+    h_max = [float(h[rr == i].max()) for i in range(n_ranges)]
 
     def unpack(x):
         nug = x[0] if fit_nugget else 0.0
@@ -355,10 +357,10 @@ def _fit(
 
     def resid(x):
         nug, sill, ranges = unpack(x)
-        model = nug + sill * (1.0 - correlation(kind, h / ranges[r], nu=nu))
+        model = nug + sill * (1.0 - correlation(kind, h / ranges[rr], nu=nu))
         return sw * (model - g) / g_scale
 
-    best = None
+    best: optimize.OptimizeResult | None = None
     g_hi = float(np.max(g))
     for frac in (0.25, 0.5, 1.0):
         x0 = ([0.1 * g_hi] if fit_nugget else []) + [0.9 * g_hi]
@@ -371,6 +373,7 @@ def _fit(
         )
         if best is None or res.cost < best.cost:
             best = res
+    assert best is not None  # three starts ran
     nug, sill, ranges = unpack(best.x)
     rmse = float(np.sqrt(2.0 * best.cost / len(series))) * g_scale
     return np.array([nug, sill, *ranges]), rmse
@@ -441,12 +444,8 @@ def fit_anisotropic(
 
     Parameters
     ----------
-    coords
-        ``(n, 3)`` x, y, z.
-    values
-        ``(n,)`` values.
-    groups
-        ``(n,)`` boring labels.
+    coords, values, groups
+        Samples: ``(n, 3)`` x, y, z, ``(n,)`` values and ``(n,)`` boring labels.
     model
         A kind from :data:`~geo3d.geostats.covariance.KINDS`, or ``'auto'`` to try each of
         ``kinds`` and keep the lowest weighted misfit.
@@ -477,6 +476,62 @@ def fit_anisotropic(
     Pebesma, E.J. (2004). Computers & Geosciences 30, 683-691 (weights N_j/h_j^2).
     """
     coords, values, groups = _as_arrays(coords, values, groups)
+    tried = _check_fit(coords, detrend, model, kinds)
+    trend = linear_trend_z(coords[:, 2], values) if detrend == "linear_z" else None
+    resid = values if trend is None else values - (trend[0] + trend[1] * coords[:, 2])
+    vertical, horizontal = _experimental_pair(
+        coords,
+        resid,
+        groups,
+        vertical=(vertical_lag, max_vertical_lag),
+        horizontal=(horizontal_lags, max_horizontal_lag),
+        elevation_tolerance=elevation_tolerance,
+    )
+    fixed = {"range_h": range_h, "range_v": range_v}
+    candidates, kind, (nugget, sill, rh, rv) = _fit_directions(horizontal, vertical, tried, **fixed)
+    cov = CovarianceModel(kind, sill, nugget, rh, rv, azimuth=azimuth, minor_ratio=minor_ratio)
+    log.info("variogram fit: %r (weighted rmse %.4g; tried %s)", cov, candidates[kind], candidates)
+    return VariogramFit(
+        cov, kind, candidates[kind], vertical, horizontal, candidates, detrend, trend
+    )
+
+
+def _experimental_pair(
+    coords: np.ndarray,
+    values: np.ndarray,
+    groups: np.ndarray,
+    *,
+    vertical: tuple[float | None, float | None],
+    horizontal: tuple[np.ndarray | int, float | None],
+    elevation_tolerance: float,
+) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Compute the vertical and horizontal experimental variograms.
+
+    The lag settings are those of :func:`fit_anisotropic`.
+    """
+    vertical_lag, max_vertical_lag = vertical
+    if vertical_lag is None or max_vertical_lag is None:
+        spacing, length = _boring_spacing(coords[:, 2], groups)
+        vertical_lag = vertical_lag or spacing
+        max_vertical_lag = max_vertical_lag or 0.5 * length
+    lags, max_lag = horizontal
+    return (
+        experimental_vertical(coords, values, groups, lag=vertical_lag, max_lag=max_vertical_lag),
+        experimental_horizontal(
+            coords,
+            values,
+            groups,
+            lags=lags,
+            elevation_tolerance=elevation_tolerance,
+            max_lag=max_lag,
+        ),
+    )
+
+
+def _check_fit(
+    coords: np.ndarray, detrend: str, model: str, kinds: tuple[str, ...]
+) -> tuple[str, ...]:
+    """Check the inputs of :func:`fit_anisotropic`; return the kinds to try."""
     if coords.shape[1] != 3:
         msg = f"coordinates must be (n, 3) x, y, z; got {coords.shape}"
         raise ModelError(msg)
@@ -488,26 +543,22 @@ def fit_anisotropic(
         if k not in KINDS:
             msg = f"variogram model {k!r} is unknown; expected 'auto' or one of {KINDS}"
             raise ModelError(msg)
-    trend = None
-    resid = values
-    if detrend == "linear_z":
-        trend = linear_trend_z(coords[:, 2], values)
-        resid = values - (trend[0] + trend[1] * coords[:, 2])
-    if vertical_lag is None or max_vertical_lag is None:
-        spacing, length = _boring_spacing(coords[:, 2], groups)
-        vertical_lag = vertical_lag or spacing
-        max_vertical_lag = max_vertical_lag or 0.5 * length
-    vertical = experimental_vertical(
-        coords, resid, groups, lag=vertical_lag, max_lag=max_vertical_lag
-    )
-    horizontal = experimental_horizontal(
-        coords,
-        resid,
-        groups,
-        lags=horizontal_lags,
-        elevation_tolerance=elevation_tolerance,
-        max_lag=max_horizontal_lag,
-    )
+    return tried
+
+
+def _fit_directions(
+    horizontal: pd.DataFrame,
+    vertical: pd.DataFrame,
+    tried: tuple[str, ...],
+    *,
+    range_h: float | None,
+    range_v: float | None,
+) -> tuple[dict[str, float], str, tuple[float, float, float, float]]:
+    """Fit each kind to both directions at once and keep the best.
+
+    Returns the misfit of each kind, the best kind and its ``(nugget, sill, range_h,
+    range_v)``.
+    """
     if len(horizontal) + len(vertical) < 4:
         msg = (
             f"too few lag bins to fit a variogram ({len(vertical)} vertical, "
@@ -524,7 +575,7 @@ def fit_anisotropic(
             f"only {only} pairs: the other range cannot be fitted and is set equal to this one "
             "unless given",
             Geo3dWarning,
-            stacklevel=2,
+            stacklevel=3,
         )
         series = [(vertical if len(vertical) else horizontal, 0)]
         fixed = {0: float(given)} if given is not None else {}
@@ -534,7 +585,7 @@ def fit_anisotropic(
         params, rmse = _fit(series, kind=k, fit_nugget=True, nu=1.5, fixed_ranges=fixed)
         candidates[k] = rmse
         results[k] = params
-    best = min(candidates, key=candidates.get)
+    best = min(candidates, key=candidates.__getitem__)
     p = results[best]
     if len(series) == 2:
         rh, rv = p[2], p[3]
@@ -542,26 +593,7 @@ def fit_anisotropic(
         rh, rv = (range_h if range_h is not None else p[2]), p[2]
     else:
         rh, rv = p[2], (range_v if range_v is not None else p[2])
-    cov = CovarianceModel(
-        best,
-        sill=float(p[1]),
-        nugget=float(p[0]),
-        range_h=float(rh),
-        range_v=float(rv),
-        azimuth=azimuth,
-        minor_ratio=minor_ratio,
-    )
-    log.info("variogram fit: %r (weighted rmse %.4g; tried %s)", cov, candidates[best], candidates)
-    return VariogramFit(
-        model=cov,
-        kind=best,
-        rmse=candidates[best],
-        vertical=vertical,
-        horizontal=horizontal,
-        candidates=candidates,
-        detrend=detrend,
-        trend=trend,
-    )
+    return candidates, best, (float(p[0]), float(p[1]), float(rh), float(rv))
 
 
 def _boring_spacing(z: np.ndarray, groups: np.ndarray) -> tuple[float, float]:

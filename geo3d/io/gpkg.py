@@ -36,6 +36,7 @@ import xarray as xr
 from matplotlib.ticker import MaxNLocator
 
 from geo3d.errors import GeometryError
+from geo3d.logs.flags import FLAGS
 
 __all__ = [
     "boring_summary",
@@ -47,15 +48,6 @@ __all__ = [
 ]
 
 logger = logging.getLogger(__name__)
-
-_FLAGS = (
-    "above_water",
-    "out_of_range_high",
-    "out_of_range_low",
-    "spike",
-    "ionic",
-    "sensor_check_failed",
-)
 
 
 def boring_summary(
@@ -112,7 +104,7 @@ def boring_summary(
             surface = key.map(grouped["depth_to_water"].median())
             out["depth_to_water"] = surface
             out.loc[surface.notna(), "water_level_source"] = "surface"
-        for flag in _FLAGS:
+        for flag in FLAGS:
             if flag in samples:
                 counts = grouped[flag].apply(lambda s: int(s.fillna(False).astype(bool).sum()))
                 out[f"n_{flag}"] = key.map(counts).fillna(0).astype(int)

@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 from geo3d.config import LogsSection, UnitsSection
-from geo3d.errors import Geo3dWarning, LogFormatError, where
+from geo3d.errors import Geo3dWarning, LogFormatError, SiteValidationError, where
 from geo3d.io.readers import numeric_column, read_table
 from geo3d.units import to_internal
 
@@ -102,6 +102,23 @@ def _mapping(logs: LogsSection) -> dict[str, str]:
     return names
 
 
+def _numeric_values(
+    table: pd.DataFrame, names: dict[str, str], *, path: Path
+) -> dict[str, np.ndarray]:
+    """Read the mapped columns as numbers (EC and time may be empty; flow must be >= 0)."""
+    return {
+        key: numeric_column(
+            table,
+            column,
+            path=path,
+            allow_empty=key in ("ec", "time_s"),
+            minimum=0.0 if key == "flow" else None,
+            error=LogFormatError,
+        )
+        for key, column in names.items()
+    }
+
+
 def _read_csv_log(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.DataFrame:
     names = _mapping(logs)
     required = list(names.values())
@@ -115,17 +132,7 @@ def _read_csv_log(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.D
         error=LogFormatError,
     )
     first = frame.attrs["first_line"]
-    values = {}
-    for key, column in names.items():
-        optional = key in ("ec", "time_s")
-        values[key] = numeric_column(
-            frame,
-            column,
-            path=path,
-            allow_empty=optional,
-            minimum=0.0 if key == "flow" else None,
-            error=LogFormatError,
-        )
+    values = _numeric_values(frame, names, path=path)
     if logs.boring_id == "filename":
         boring_id = path.stem
     else:
@@ -192,17 +199,7 @@ def _read_las_log(path: Path, *, logs: LogsSection, units: UnitsSection) -> pd.D
                 break
     table.columns = [str(c).strip().lower() for c in table.columns]
     table.attrs["first_line"] = first_line
-    values = {}
-    for key, column in names.items():
-        optional = key in ("ec", "time_s")
-        values[key] = numeric_column(
-            table,
-            column.lower(),
-            path=path,
-            allow_empty=optional,
-            minimum=0.0 if key == "flow" else None,
-            error=LogFormatError,
-        )
+    values = _numeric_values(table, {k: c.lower() for k, c in names.items()}, path=path)
     if logs.boring_id == "filename":
         boring_id = path.stem
     else:
@@ -322,8 +319,6 @@ def read_logs(
     if len(problems) == 1:
         raise problems[0]
     if problems:
-        from geo3d.site import SiteValidationError
-
         raise SiteValidationError(str(p) for p in problems)
     samples = pd.concat(tables, ignore_index=True)
     samples = samples.sort_values(["boring_id", "depth"], kind="stable").reset_index(drop=True)

@@ -40,30 +40,19 @@ import xarray as xr
 
 from geo3d.errors import GeometryError
 from geo3d.io.geotiff import axis_spacing
+from geo3d.logs.flags import FLAGS
 
 __all__ = [
-    "FLAG_COLUMNS",
     "model_to_image",
     "borings_to_polydata",
     "zone_outlines",
     "water_table_surface",
-    "site_multiblock",
     "write_model_vti",
     "write_borings_vtp",
     "write_site_vtm",
 ]
 
 logger = logging.getLogger(__name__)
-
-#: Boolean per-sample flags carried onto the boring polylines.
-FLAG_COLUMNS: tuple[str, ...] = (
-    "above_water",
-    "out_of_range_high",
-    "out_of_range_low",
-    "spike",
-    "ionic",
-    "sensor_check_failed",
-)
 
 
 def _cell_sizes(ds: xr.Dataset) -> tuple[float, float, float]:
@@ -161,7 +150,7 @@ def borings_to_polydata(
     ----------
     samples
         Per-sample table: ``boring_id``, ``x``, ``y``, ``elev``, ``depth`` and, when present,
-        ``log10_k``, ``ec`` and the boolean flags of :data:`FLAG_COLUMNS`.
+        ``log10_k``, ``ec`` and the boolean flags of :data:`geo3d.logs.flags.FLAGS`.
     intervals
         Composited intervals with ``boring_id``, ``top``, ``bottom``, ``facies_code``; gives
         each sample the facies code of the interval holding it (-1 where none).
@@ -197,7 +186,7 @@ def borings_to_polydata(
         values = samples[name].to_numpy(float) if name in samples else np.full(len(samples), np.nan)
         poly.point_data[name] = values
     poly.point_data["facies_code"] = _facies_at(samples, intervals)
-    for flag in FLAG_COLUMNS:
+    for flag in FLAGS:
         if flag in samples:
             poly.point_data[flag] = samples[flag].fillna(False).to_numpy(bool).astype(np.uint8)
     poly.point_data["boring_index"] = boring_index
@@ -314,71 +303,23 @@ def water_table_surface(wt_map: xr.DataArray) -> pv.StructuredGrid:
     return grid
 
 
-def site_multiblock(
-    model: xr.Dataset,
-    *,
-    samples: pd.DataFrame | None = None,
-    intervals: pd.DataFrame | None = None,
-    zones: gpd.GeoDataFrame | None = None,
-    water_table: xr.DataArray | None = None,
-) -> pv.MultiBlock:
-    """Bundle the model, the borings, the zone outlines and the water table.
-
-    Parameters
-    ----------
-    model
-        Voxel model.
-    samples, intervals
-        Per-sample table and intervals (see :func:`borings_to_polydata`).
-    zones
-        Treatment zones (see :func:`zone_outlines`).
-    water_table
-        Water-table elevation map (see :func:`water_table_surface`).
-
-    Returns
-    -------
-    pyvista.MultiBlock
-        Blocks ``model``, and when given ``borings``, ``zones``, ``water_table``.
-    """
-    blocks = pv.MultiBlock()
-    blocks["model"] = model_to_image(model)
-    if samples is not None and len(samples):
-        blocks["borings"] = borings_to_polydata(samples, intervals=intervals)
-    if zones is not None and len(zones):
-        blocks["zones"] = zone_outlines(zones, model=model)
-    if water_table is not None:
-        blocks["water_table"] = water_table_surface(water_table)
-    return blocks
-
-
 def write_model_vti(
     model: xr.Dataset, path: str | PathLike, *, include_realizations: bool = False
 ) -> Path:
-    """Write the voxel model as ``.vti`` (see :func:`model_to_image`).
-
-    Returns
-    -------
-    Path
-        The file written.
-    """
-    path = Path(path)
-    model_to_image(model, include_realizations=include_realizations).save(path)
-    logger.debug("wrote %s", path)
-    return path
+    """Write the voxel model as ``.vti`` (see :func:`model_to_image`); return the file."""
+    return _save(model_to_image(model, include_realizations=include_realizations), path)
 
 
 def write_borings_vtp(
     samples: pd.DataFrame, path: str | PathLike, *, intervals: pd.DataFrame | None = None
 ) -> Path:
-    """Write the borings as ``.vtp`` polylines (see :func:`borings_to_polydata`).
+    """Write the borings as ``.vtp`` polylines (see :func:`borings_to_polydata`)."""
+    return _save(borings_to_polydata(samples, intervals=intervals), path)
 
-    Returns
-    -------
-    Path
-        The file written.
-    """
+
+def _save(dataset: pv.DataSet, path: str | PathLike) -> Path:
     path = Path(path)
-    borings_to_polydata(samples, intervals=intervals).save(path)
+    dataset.save(path)
     logger.debug("wrote %s", path)
     return path
 
@@ -398,8 +339,14 @@ def write_site_vtm(
 
     Parameters
     ----------
-    model, samples, intervals, zones, water_table
-        See :func:`site_multiblock`.
+    model
+        Voxel model.
+    samples, intervals
+        Per-sample table and intervals (see :func:`borings_to_polydata`).
+    zones
+        Treatment zones (see :func:`zone_outlines`).
+    water_table
+        Water-table elevation map (see :func:`water_table_surface`).
     path
         The ``.vtm`` file.
     model_file, borings_file

@@ -224,6 +224,57 @@ def calibrate(
             stacklevel=2,
         )
         return Calibration("physics", a0, b0)
+    tests, groups = _usable_tests(samples, slug_tests, usable, min_samples_per_test)
+    observed = np.log10(tests["k"].to_numpy(dtype=float))
+    needed = max(int(min_slug_tests), 2)
+    if len(groups) < needed:
+        reason = (
+            f"{len(groups)} usable slug test(s), fewer than {needed}: log-derived K rests on "
+            "the probe's shape factor alone (physics)"
+        )
+        return _physics(tests, groups, observed, (a0, b0), reason=reason)
+    a, b, se, fixed = _fit(groups, observed, (a0, b0), slope=slope)
+    if not b > 0:
+        reason = (
+            f"slug-test calibration gave slope b = {b:.3f} <= 0 (K falling as Q/P rises); "
+            "using physics instead"
+        )
+        return _physics(tests, groups, observed, (a0, b0), reason=reason)
+    predicted = _screen_prediction(groups, a, b)
+    result = Calibration(
+        "slug_tests",
+        a,
+        b,
+        float(se[0]),
+        float(se[1]),
+        len(groups),
+        _r2(observed, predicted),
+        _residual_table(tests, groups, predicted, physics=(a0, b0)),
+        slope_fixed=fixed,
+    )
+    _log_fit(result)
+    return result
+
+
+def _log_fit(result: Calibration) -> None:
+    logger.info(
+        "calibration on %d slug tests: a=%.3f+-%.3f b=%.3f+-%.3f r2=%.3f",
+        result.n_tests,
+        result.a,
+        result.se_a,
+        result.b,
+        result.se_b,
+        result.r2,
+    )
+
+
+def _usable_tests(
+    samples: pd.DataFrame,
+    slug_tests: pd.DataFrame,
+    usable: np.ndarray | None,
+    min_samples_per_test: int,
+) -> tuple[pd.DataFrame, list[np.ndarray]]:
+    """Return the slug tests with enough usable samples over their screen, and the samples."""
     tests = slug_tests.reset_index(drop=True)
     groups = screen_samples(samples, tests, usable=usable)
     keep = np.array([g.size >= min_samples_per_test for g in groups], dtype=bool)
@@ -234,40 +285,54 @@ def calibrate(
                 f"({test.top_depth:g}-{test.bottom_depth:g} m): "
                 f"fewer than {min_samples_per_test} usable log samples over its screen; left out",
                 Geo3dWarning,
-                stacklevel=2,
+                stacklevel=3,
             )
     tests = tests[keep].reset_index(drop=True)
-    groups = [g for g, kept in zip(groups, keep, strict=True) if kept]
-    observed = np.log10(tests["k"].to_numpy(dtype=float))
-    needed = max(int(min_slug_tests), 2)
-    if len(groups) < needed:
-        warnings.warn(
-            f"{len(groups)} usable slug test(s), fewer than {needed}: log-derived K rests on "
-            "the probe's shape factor alone (physics)",
-            Geo3dWarning,
-            stacklevel=2,
-        )
-        predicted = _screen_prediction(groups, a0, b0) if groups else np.array([])
-        return Calibration(
-            "physics",
-            a0,
-            b0,
-            n_tests=len(groups),
-            r2=_r2(observed, predicted),
-            residuals=_residual_table(tests, groups, predicted, physics=(a0, b0)),
-        )
+    return tests, [g for g, kept in zip(groups, keep, strict=True) if kept]
 
+
+def _physics(
+    tests: pd.DataFrame,
+    groups: list[np.ndarray],
+    observed: np.ndarray,
+    physics: tuple[float, float],
+    *,
+    reason: str,
+) -> Calibration:
+    """Warn why, and return the physics-only calibration with its misfit to the slug tests."""
+    warnings.warn(reason, Geo3dWarning, stacklevel=3)
+    a0, b0 = physics
+    predicted = _screen_prediction(groups, a0, b0) if groups else np.array([])
+    return Calibration(
+        "physics",
+        a0,
+        b0,
+        n_tests=len(groups),
+        r2=_r2(observed, predicted),
+        residuals=_residual_table(tests, groups, predicted, physics=physics),
+    )
+
+
+def _fit(
+    groups: list[np.ndarray],
+    observed: np.ndarray,
+    start: tuple[float, float],
+    *,
+    slope: str,
+) -> tuple[float, float, np.ndarray, bool]:
+    """Fit ``a`` (and ``b`` unless held at 1): ``(a, b, standard errors, slope held)``."""
     if slope not in ("auto", "free", "fixed"):
         msg = f"slope: expected 'auto', 'free' or 'fixed', got {slope!r}"
         raise ValueError(msg)
     index = np.arange(len(groups), dtype=float)
 
-    def model(idx, a, b):
+    def model(idx: np.ndarray, a: float, b: float) -> np.ndarray:
         return _screen_prediction([groups[int(i)] for i in idx], a, b)
 
-    a, b, se = a0, b0, np.array([np.nan, np.nan])
+    a, b = start
+    se = np.array([np.nan, np.nan])
     if slope != "fixed" and len(groups) >= 3:
-        params, cov = curve_fit(model, index, observed, p0=(a0, b0), maxfev=10000)
+        params, cov = curve_fit(model, index, observed, p0=start, maxfev=10000)
         a, b = (float(v) for v in params)
         with np.errstate(invalid="ignore"):
             if np.all(np.isfinite(cov)):
@@ -281,41 +346,4 @@ def calibrate(
         se_a = float(offsets.std(ddof=1) / np.sqrt(offsets.size)) if offsets.size > 1 else np.nan
         se = np.array([se_a, np.nan])
         logger.info("slope held at b = 1 (not determined by %d slug tests)", len(groups))
-    if not b > 0:
-        warnings.warn(
-            f"slug-test calibration gave slope b = {b:.3f} <= 0 (K falling as Q/P rises); "
-            "using physics instead",
-            Geo3dWarning,
-            stacklevel=2,
-        )
-        predicted = _screen_prediction(groups, a0, b0)
-        return Calibration(
-            "physics",
-            a0,
-            b0,
-            n_tests=len(groups),
-            r2=_r2(observed, predicted),
-            residuals=_residual_table(tests, groups, predicted, physics=(a0, b0)),
-        )
-    predicted = _screen_prediction(groups, a, b)
-    result = Calibration(
-        "slug_tests",
-        a,
-        b,
-        float(se[0]),
-        float(se[1]),
-        len(groups),
-        _r2(observed, predicted),
-        _residual_table(tests, groups, predicted, physics=(a0, b0)),
-        slope_fixed=fixed,
-    )
-    logger.info(
-        "calibration on %d slug tests: a=%.3f+-%.3f b=%.3f+-%.3f r2=%.3f",
-        result.n_tests,
-        a,
-        result.se_a,
-        b,
-        result.se_b,
-        result.r2,
-    )
-    return result
+    return a, b, se, fixed

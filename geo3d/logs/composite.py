@@ -19,18 +19,10 @@ import numpy as np
 import pandas as pd
 
 from geo3d.errors import LogFormatError
+from geo3d.logs.flags import FLAGS
 
-__all__ = ["FLAGS", "K_EXCLUDING_FLAGS", "EC_EXCLUDING_FLAGS", "composite"]
+__all__ = ["K_EXCLUDING_FLAGS", "EC_EXCLUDING_FLAGS", "composite"]
 
-#: Every per-sample flag, in output order.
-FLAGS: tuple[str, ...] = (
-    "above_water",
-    "out_of_range_high",
-    "out_of_range_low",
-    "spike",
-    "ionic",
-    "sensor_check_failed",
-)
 #: Flags whose samples are left out of the log10 K average.
 K_EXCLUDING_FLAGS: tuple[str, ...] = ("above_water", "out_of_range_high", "out_of_range_low")
 #: Flags whose samples are left out of the EC average.
@@ -53,7 +45,7 @@ def composite(
     ----------
     samples
         Per-sample table with at least ``boring_id, depth, elev, x, y, log10_k, ec`` and any
-        boolean flag columns among :data:`FLAGS`.
+        boolean flag columns among :data:`geo3d.logs.flags.FLAGS`.
     interval
         Interval length, m (> 0).
     k_excluding, ec_excluding

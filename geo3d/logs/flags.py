@@ -40,6 +40,7 @@ from scipy.ndimage import median_filter
 from sklearn.linear_model import HuberRegressor
 
 __all__ = [
+    "FLAGS",
     "MAD_SCALE",
     "resolution_flags",
     "hampel",
@@ -48,6 +49,16 @@ __all__ = [
 ]
 
 logger = logging.getLogger(__name__)
+
+#: Every per-sample flag, in output order (the boolean columns of the samples table).
+FLAGS: tuple[str, ...] = (
+    "above_water",
+    "out_of_range_high",
+    "out_of_range_low",
+    "spike",
+    "ionic",
+    "sensor_check_failed",
+)
 
 #: Factor that makes the median absolute deviation a consistent estimate of a normal SD.
 MAD_SCALE: float = 1.4826

@@ -41,6 +41,7 @@ from geo3d.errors import Geo3dWarning, WaterLevelError
 from geo3d.logs.hydraulic import GAMMA_W
 
 __all__ = [
+    "LEVEL_COLUMNS",
     "DissipationResult",
     "static_pressure",
     "aitken_extrapolation",
@@ -288,7 +289,8 @@ def depth_to_water(probe_depth, p_static, p_atm):
     return float(d) if d.ndim == 0 else d
 
 
-_LEVEL_COLUMNS = [
+#: Columns of the water-level table (:func:`water_levels`), in order.
+LEVEL_COLUMNS = [
     "boring_id",
     "test_id",
     "x",
@@ -393,7 +395,7 @@ def water_levels(
     if not rows:
         msg = "no dissipation test could be trusted: " + "; ".join(refused)
         raise WaterLevelError(msg)
-    return pd.DataFrame(rows, columns=_LEVEL_COLUMNS)
+    return pd.DataFrame(rows, columns=LEVEL_COLUMNS)
 
 
 def boring_water_levels(levels: pd.DataFrame) -> pd.DataFrame:

@@ -35,7 +35,7 @@ from matplotlib.lines import Line2D  # noqa: E402
 from matplotlib.patches import Patch, Rectangle  # noqa: E402
 
 # One Okabe & Ito (2008) palette for every figure of the report.
-from geo3d.report.log_figure import OKABE_ITO  # noqa: E402
+from geo3d.report.log_figure import OKABE_ITO, facies_colour  # noqa: E402
 
 __all__ = [
     "OKABE_ITO",
@@ -47,8 +47,6 @@ __all__ = [
     "facies_colors",
     "figure_to_data_uri",
     "figure_to_png",
-    "log_panel_figure",
-    "map_figure",
     "png_to_data_uri",
     "sample_section",
     "section_figure",
@@ -86,8 +84,6 @@ def facies_colors(n_classes: int) -> list[str]:
     Okabe, M., Ito, K. (2008) Color Universal Design (CUD): how to make figures and
     presentations that are friendly to colorblind people.
     """
-    from geo3d.report.log_figure import facies_colour
-
     return [facies_colour(code) for code in range(n_classes)]
 
 
@@ -157,20 +153,7 @@ def png_to_data_uri(png: bytes) -> str:
 
 
 def figure_to_data_uri(fig: Figure, *, dpi: float | None = None) -> str:
-    """Render a figure to an embeddable PNG ``data:`` URI.
-
-    Parameters
-    ----------
-    fig
-        The figure.
-    dpi
-        Resolution; the figure's own when None.
-
-    Returns
-    -------
-    str
-        ``data:image/png;base64,...``.
-    """
+    """Render a figure to an embeddable PNG ``data:`` URI (see :func:`figure_to_png`)."""
     return png_to_data_uri(figure_to_png(fig, dpi=dpi))
 
 
@@ -409,53 +392,6 @@ def site_map_figure(
     return fig
 
 
-def map_figure(
-    grid: xr.DataArray,
-    *,
-    title: str,
-    units: str,
-    cmap: str = "viridis",
-    vmin: float | None = None,
-    vmax: float | None = None,
-    boundary=None,
-    borings: pd.DataFrame | None = None,
-    crs_label: str | None = None,
-) -> Figure:
-    """Plan-view raster map of a 2D DataArray with dims ``("y", "x")``.
-
-    Parameters
-    ----------
-    grid
-        The map, cell centres on ``x`` and ``y``.
-    title
-        Figure title.
-    units
-        Label of the colour bar.
-    cmap
-        A perceptually uniform matplotlib colour map name.
-    vmin, vmax
-        Colour limits; from the data when None.
-    boundary, borings
-        Drawn on top when given.
-    crs_label
-        Name of the CRS.
-
-    Returns
-    -------
-    matplotlib.figure.Figure
-    """
-    return map_panels_figure(
-        [(title, grid)],
-        units=units,
-        cmap=cmap,
-        vmin=vmin,
-        vmax=vmax,
-        boundary=boundary,
-        borings=borings,
-        crs_label=crs_label,
-    )
-
-
 def map_panels_figure(
     panels: Sequence[tuple[str, xr.DataArray]],
     *,
@@ -627,95 +563,6 @@ def water_table_figure(
 
 
 # --------------------------------------------------------------------------- logs
-
-
-def log_panel_figure(
-    samples: pd.DataFrame | None,
-    intervals: pd.DataFrame | None,
-    *,
-    boring_id: str,
-    facies_names: Sequence[str],
-    depth_to_water: float | None = None,
-) -> Figure:
-    """Small three-track log of one boring: log10 K, EC and hydrofacies against depth.
-
-    Parameters
-    ----------
-    samples
-        Per-sample rows of this boring (``depth``, ``log10_k``, ``ec``; optional flags).
-    intervals
-        Composited intervals of this boring (``top``, ``bottom``, ``log10_k``,
-        ``facies_code``).
-    boring_id
-        Title.
-    facies_names
-        Class names, lowest K first.
-    depth_to_water
-        Drawn as a line when given.
-
-    Returns
-    -------
-    matplotlib.figure.Figure
-    """
-    fig = new_figure(4.2, 5.0)
-    axes = fig.subplots(1, 3, sharey=True, gridspec_kw={"width_ratios": [3, 2, 0.8]})
-    ax_k, ax_ec, ax_f = axes
-    flag_cols = [
-        c
-        for c in ("out_of_range_high", "out_of_range_low", "spike", "ionic", "above_water")
-        if samples is not None and c in samples
-    ]
-    if samples is not None and len(samples):
-        depth = samples["depth"].to_numpy(dtype=float)
-        flagged = np.zeros(len(samples), dtype=bool)
-        for col in flag_cols:
-            flagged |= samples[col].fillna(False).to_numpy(dtype=bool)
-        if "log10_k" in samples:
-            lk = samples["log10_k"].to_numpy(dtype=float)
-            ax_k.plot(np.where(flagged, np.nan, lk), depth, color="0.35", linewidth=0.6)
-            if flagged.any():
-                ax_k.plot(
-                    lk[flagged],
-                    depth[flagged],
-                    linestyle="none",
-                    marker=".",
-                    markersize=2,
-                    color=OKABE_ITO["reddish_purple"],
-                    label="flagged",
-                )
-        if "ec" in samples:
-            ax_ec.plot(
-                samples["ec"].to_numpy(dtype=float), depth, color=OKABE_ITO["orange"], linewidth=0.7
-            )
-    if intervals is not None and len(intervals):
-        top = intervals["top"].to_numpy(dtype=float)
-        bottom = intervals["bottom"].to_numpy(dtype=float)
-        if "log10_k" in intervals:
-            lk = intervals["log10_k"].to_numpy(dtype=float)
-            ax_k.hlines(top, lk, lk, color=OKABE_ITO["blue"])
-            ax_k.vlines(
-                lk, top, bottom, color=OKABE_ITO["blue"], linewidth=1.2, label="interval mean"
-            )
-        if "facies_code" in intervals and len(facies_names):
-            colors = facies_colors(len(facies_names))
-            for t, b, code in zip(top, bottom, intervals["facies_code"], strict=True):
-                if pd.notna(code) and 0 <= int(code) < len(colors):
-                    ax_f.axhspan(t, b, color=colors[int(code)], linewidth=0)
-    if depth_to_water is not None and np.isfinite(depth_to_water):
-        for ax in axes:
-            ax.axhline(depth_to_water, color=OKABE_ITO["sky_blue"], linewidth=1.0, linestyle="--")
-    ax_k.invert_yaxis()
-    ax_k.set_ylabel("depth (m)")
-    ax_k.set_xlabel("log10 K (m/s)", fontsize=8)
-    ax_ec.set_xlabel("EC (mS/m)", fontsize=8)
-    ax_f.set_xticks([])
-    ax_f.set_xlabel("facies", fontsize=8)
-    for ax in axes:
-        ax.tick_params(labelsize=7)
-        ax.grid(True, axis="y", color="0.92")
-    ax_k.legend(fontsize=6, loc="lower left")
-    fig.suptitle(str(boring_id), fontsize=10)
-    return fig
 
 
 # --------------------------------------------------------------------------- calibration

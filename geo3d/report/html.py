@@ -26,14 +26,23 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
+import geopandas as gpd
 import numpy as np
 import pandas as pd
 import xarray as xr
 
 import geo3d
 from geo3d.errors import Geo3dWarning
+from geo3d.geostats.covariance import CovarianceModel
 from geo3d.io.atomic import atomic_file
+from geo3d.logs.flags import FLAGS
+from geo3d.logs.process import LogResults
+from geo3d.logs.water_level import LEVEL_COLUMNS
+from geo3d.model import ModelResult
 from geo3d.report import figures as fg
+from geo3d.report.log_figure import log_figure_pngs
+from geo3d.results import RunResults
+from geo3d.site import Site
 
 __all__ = ["SECTION_TITLES", "build_report", "write_report"]
 
@@ -267,21 +276,6 @@ def _img(uri: str, *, name: str, alt: str, caption: str) -> str:
     )
 
 
-def _get(obj: Any, name: str, default: Any = None) -> Any:
-    return getattr(obj, name, default) if obj is not None else default
-
-
-def _frame(value: Any) -> pd.DataFrame | None:
-    if value is None:
-        return None
-    if isinstance(value, pd.DataFrame):
-        return value
-    try:
-        return pd.DataFrame(value)
-    except (TypeError, ValueError):
-        return None
-
-
 # --------------------------------------------------------------------------- context
 
 
@@ -289,43 +283,38 @@ def _frame(value: Any) -> pd.DataFrame | None:
 class _Context:
     """Everything the sections share, gathered once from the run results."""
 
-    results: Any
-    site: Any
-    logs: Any
-    model: Any
+    results: RunResults
+    site: Site
+    logs: LogResults | None
+    model: ModelResult | None
     dataset: xr.Dataset | None
     facies_names: list[str]
     borings: pd.DataFrame | None
     boundary: Any
-    zones: Any
+    zones: gpd.GeoDataFrame | None
     crs_label: str
     sections: list = field(default_factory=list)
-    log_figure_dir: Path | None = None
+    log_figures: Mapping[str, bytes] = field(default_factory=dict)
 
     @classmethod
-    def from_results(cls, results: Any) -> _Context:
-        site = _get(results, "site")
-        logs = _get(results, "logs")
-        model = _get(results, "model")
-        dataset = _get(model, "dataset")
-        if dataset is not None and not isinstance(dataset, xr.Dataset):
-            dataset = None
-        borings = _frame(_get(site, "borings"))
-        intervals = _frame(_get(logs, "intervals"))
+    def from_results(cls, results: RunResults) -> _Context:
+        site, logs, model = results.site, results.logs, results.model
+        dataset = None if model is None else model.dataset
+        borings = site.borings
+        intervals = None if logs is None else logs.intervals
         if (borings is None or not len(borings)) and intervals is not None and len(intervals):
             borings = intervals.groupby("boring_id", as_index=False)[["x", "y"]].first()
-        boundary = _get(site, "boundary")
         ctx = cls(
             results=results,
             site=site,
             logs=logs,
             model=model,
             dataset=dataset,
-            facies_names=_facies_names(site, intervals, dataset),
+            facies_names=list(results.facies_classes.names),
             borings=borings,
-            boundary=boundary,
-            zones=_get(site, "zones"),
-            crs_label=_crs_label(_get(site, "crs")),
+            boundary=site.boundary,
+            zones=site.zones,
+            crs_label=_crs_label(site.crs),
         )
         bounds = None
         if dataset is not None:
@@ -338,39 +327,18 @@ class _Context:
         elif borings is not None and len(borings) >= 2:
             bounds = (borings.x.min(), borings.y.min(), borings.x.max(), borings.y.max())
         try:
-            ctx.sections = fg.default_section_lines(boundary, fallback_bounds=bounds)
+            ctx.sections = fg.default_section_lines(site.boundary, fallback_bounds=bounds)
         except Exception as exc:  # degenerate geometry: no sections, said in that section
             logger.warning("no section lines: %s", exc)
         return ctx
 
     @property
     def intervals(self) -> pd.DataFrame | None:
-        return _frame(_get(self.logs, "intervals"))
+        return None if self.logs is None else self.logs.intervals
 
     @property
     def samples(self) -> pd.DataFrame | None:
-        return _frame(_get(self.logs, "samples"))
-
-
-def _facies_names(site: Any, intervals: pd.DataFrame | None, dataset: Any) -> list[str]:
-    classes = _get(_get(_get(site, "config"), "facies"), "classes")
-    if classes:
-        names = [str(_get(c, "name")) for c in classes if _get(c, "name") is not None]
-        if names:
-            return names
-    if intervals is not None and {"facies", "facies_code"} <= set(intervals.columns):
-        pairs = intervals[["facies_code", "facies"]].dropna().drop_duplicates("facies_code")
-        pairs = pairs.sort_values("facies_code")
-        if len(pairs) and (pairs["facies_code"].to_numpy() == np.arange(len(pairs))).all():
-            return [str(v) for v in pairs["facies"]]
-    if dataset is not None:
-        names = [str(v)[5:] for v in dataset.data_vars if str(v).startswith("prob_")]
-        if names:
-            return names
-        if "facies_code" in dataset:
-            top = int(np.nanmax(dataset["facies_code"].values))
-            return [f"class {i}" for i in range(top + 1)]
-    return []
+        return None if self.logs is None else self.logs.samples
 
 
 def _crs_label(crs: Any) -> str:
@@ -397,8 +365,8 @@ def _section_read_first(ctx: _Context) -> str:
 
 def _injection_points(ctx: _Context) -> list[tuple[float, float]]:
     points = []
-    for plan in (_get(ctx.results, "injection") or {}).values():
-        frame = _get(plan, "points")
+    for plan in ctx.results.injection.values():
+        frame = plan.points
         if frame is None or not len(frame):
             continue
         if "geometry" in getattr(frame, "columns", []):
@@ -444,13 +412,12 @@ def _section_site(ctx: _Context) -> str:
 
 
 def _water_surface(ctx: _Context) -> xr.DataArray | None:
-    maps = _get(ctx.results, "maps") or {}
-    for key, grid in maps.items():
+    for key, grid in ctx.results.maps.items():
         if _is_water_map(str(key)) and isinstance(grid, xr.DataArray):
             return grid
-    surface = _get(ctx.logs, "water_table")
-    if surface is None or ctx.dataset is None:
+    if ctx.logs is None or ctx.dataset is None:
         return None
+    surface = ctx.logs.water_table
     x = ctx.dataset["x"].values
     y = ctx.dataset["y"].values
     xx, yy = np.meshgrid(x, y)
@@ -462,26 +429,13 @@ def _water_surface(ctx: _Context) -> xr.DataArray | None:
 
 def _section_water(ctx: _Context) -> str:
     parts = []
-    levels = _frame(_get(ctx.logs, "water_levels"))
-    surface = _get(ctx.logs, "water_table")
+    levels = None if ctx.logs is None else ctx.logs.water_levels
+    surface = None if ctx.logs is None else ctx.logs.water_table
     if levels is None or not len(levels):
         parts.append(_note("No water levels from dissipation tests are available."))
     else:
-        columns = [
-            c
-            for c in (
-                "boring_id",
-                "test_id",
-                "depth",
-                "p_static",
-                "depth_to_water",
-                "wt_elev",
-                "fraction_dissipated",
-                "method",
-                "fit_rmse",
-            )
-            if c in levels
-        ]
+        hidden = ("x", "y", "aitken", "p_static_se")
+        columns = [c for c in LEVEL_COLUMNS if c in levels and c not in hidden]
         parts.append(
             _table(
                 levels[columns],
@@ -490,9 +444,9 @@ def _section_water(ctx: _Context) -> str:
                 max_rows=200,
             )
         )
-    gradient = _get(surface, "gradient")
-    direction = _get(surface, "flow_direction_deg")
-    method = _get(surface, "method")
+    gradient = None if surface is None else surface.gradient
+    direction = None if surface is None else surface.flow_direction_deg
+    method = None if surface is None else surface.method
     grid = _water_surface(ctx)
     if grid is None and (levels is None or not len(levels)):
         return "".join(parts)
@@ -518,120 +472,37 @@ def _section_water(ctx: _Context) -> str:
     return "".join(parts)
 
 
-def _close(fig) -> None:
-    """Release a figure that may have been made through pyplot."""
-    import matplotlib.pyplot as plt
-
-    plt.close(fig)
-
-
-def _log_figure_function() -> Callable | None:
-    try:
-        from geo3d.report.log_figure import log_figure
-    except ImportError:
-        return None
-    return log_figure
-
-
 def _section_logs(ctx: _Context) -> str:
     samples, intervals = ctx.samples, ctx.intervals
-    if (samples is None or not len(samples)) and (intervals is None or not len(intervals)):
+    if ctx.logs is None or samples is None or intervals is None or not len(samples):
         return _note("No processed logs are available.")
-    ids = sorted(
-        set(samples["boring_id"].astype(str) if samples is not None and len(samples) else [])
-        | set(
-            intervals["boring_id"].astype(str) if intervals is not None and len(intervals) else []
+    parts = [_flag_summary(samples), _sensor_summary(ctx.logs.sensor_checks)]
+    pngs = ctx.log_figures or log_figure_pngs(samples, intervals)
+    cells = [
+        _img(
+            fg.png_to_data_uri(png),
+            name=f"log-{boring_id}",
+            alt=f"Log of boring {boring_id}",
+            caption=f"Boring {_esc(boring_id)}",
+        )
+        for boring_id, png in pngs.items()
+    ]
+    legend = ", ".join(f"{_esc(name)}" for name in ctx.facies_names)
+    parts.append(
+        _note(
+            "Each figure: recorded pressure with its atmospheric and hydrostatic parts, net "
+            "injection pressure, log-derived K, bulk EC and the hydrofacies strip "
+            f"(lowest K first: {legend}); flagged samples carry their own symbols."
         )
     )
-    parts = [_flag_summary(samples), _sensor_summary(_frame(_get(ctx.logs, "sensor_checks")))]
-    shared = _log_figure_function()
-    cells = []
-    for boring_id in ids:
-        own_samples = (
-            samples[samples["boring_id"].astype(str) == boring_id] if samples is not None else None
-        )
-        own_intervals = (
-            intervals[intervals["boring_id"].astype(str) == boring_id]
-            if intervals is not None
-            else None
-        )
-        saved = _saved_log_figure(ctx.log_figure_dir, boring_id)
-        if saved is not None:
-            cells.append(
-                _img(
-                    fg.png_to_data_uri(saved),
-                    name=f"log-{boring_id}",
-                    alt=f"Log of boring {boring_id}",
-                    caption=f"Boring {_esc(boring_id)}",
-                )
-            )
-            continue
-        fig = None
-        if shared is not None:
-            try:
-                fig = shared(own_samples, own_intervals, boring_id=boring_id)
-            except Exception as exc:  # fall back to the report's own panel
-                logger.warning("shared log figure failed for %s: %s", boring_id, exc)
-                fig = None
-        if fig is None:
-            dtw = None
-            if own_samples is not None and "depth_to_water" in own_samples and len(own_samples):
-                dtw = float(np.nanmedian(own_samples["depth_to_water"].to_numpy(dtype=float)))
-            fig = fg.log_panel_figure(
-                own_samples,
-                own_intervals,
-                boring_id=boring_id,
-                facies_names=ctx.facies_names,
-                depth_to_water=dtw,
-            )
-        uri = fg.figure_to_data_uri(fig, dpi=72 if shared is not None else 80)
-        _close(fig)
-        cells.append(
-            _img(
-                uri,
-                name=f"log-{boring_id}",
-                alt=f"Log of boring {boring_id}",
-                caption=f"Boring {_esc(boring_id)}",
-            )
-        )
-    legend = ", ".join(f"{_esc(name)}" for name in ctx.facies_names)
-    if shared is None:
-        parts.append(
-            _note(
-                "Each panel: log-derived log10 K per sample (grey; flagged samples as dots) "
-                "and per composited interval (blue), bulk EC, and the hydrofacies column "
-                f"(lowest K first: {legend}); the dashed line is the water table."
-            )
-        )
-    else:
-        parts.append(
-            _note(
-                "Each figure: recorded pressure with its atmospheric and hydrostatic parts, net "
-                "injection pressure, log-derived K, bulk EC and the hydrofacies strip "
-                f"(lowest K first: {legend}); flagged samples carry their own symbols."
-            )
-        )
-    kind = "log-grid" if shared is not None else "gallery"
-    parts.append(f'<div class="{kind}">{"".join(cells)}</div>')
+    parts.append(f'<div class="log-grid">{"".join(cells)}</div>')
     return "".join(parts)
-
-
-def _saved_log_figure(folder: Path | None, boring_id: str) -> bytes | None:
-    """Return the PNG the logs stage already wrote for a boring, if it sits beside the report."""
-    if folder is None:
-        return None
-    path = Path(folder) / f"{boring_id}.png"
-    try:
-        png = path.read_bytes()
-    except OSError:
-        return None
-    return png if png[:8] == b"\x89PNG\r\n\x1a\n" else None
 
 
 def _flag_summary(samples: pd.DataFrame | None) -> str:
     if samples is None or not len(samples):
         return ""
-    flags = [c for c in _FLAG_COLUMNS if c in samples]
+    flags = [c for c in FLAGS if c in samples]
     if not flags:
         return ""
     table = samples.groupby("boring_id")[flags].agg(
@@ -655,130 +526,64 @@ def _sensor_summary(checks: pd.DataFrame | None) -> str:
     return _table(failed, caption=f"Failed sensor checks ({len(failed)} of {len(checks)})")
 
 
-_FLAG_COLUMNS = (
-    "above_water",
-    "out_of_range_high",
-    "out_of_range_low",
-    "spike",
-    "ionic",
-    "sensor_check_failed",
-)
-
-
-def _physics_screen_k(ctx: _Context, residuals: pd.DataFrame) -> tuple[np.ndarray, float] | None:
-    """Physics-only K averaged over each slug-test screen, and ``log10(gamma_w / F)``."""
-    probe = _get(_get(_get(ctx.site, "config"), "probe"), "shape")
-    samples = ctx.samples
-    needed = {"boring_id", "top_depth", "bottom_depth"}
-    if (
-        (probe is None and _get(ctx.logs, "shape_factor") is None)
-        or samples is None
-        or "q_over_p" not in samples
-    ):
-        return None
-    if not needed <= set(residuals):
-        return None
-    from geo3d.logs.calibration import physics_coefficients, screen_samples
-    from geo3d.logs.hydraulic import shape_factor
-
-    factor = _get(ctx.logs, "shape_factor")
-    if factor is None:
-        config = ctx.site.config.probe
-        factor = shape_factor(
-            config.shape, length=config.screen_length, diameter=config.screen_diameter
-        )
-    a_phys, _ = physics_coefficients(factor)
-    if "k_physics" in residuals:
-        # the calibration's own screen means, over exactly the samples the fit used
-        return residuals["k_physics"].to_numpy(dtype=float), a_phys
-    usable = np.ones(len(samples), dtype=bool)
-    for flag in _FLAG_COLUMNS:
-        if flag in samples:
-            usable &= ~samples[flag].fillna(False).to_numpy(dtype=bool)
-    tests = residuals[["boring_id", "top_depth", "bottom_depth"]].assign(k=np.nan)
-    groups = screen_samples(
-        samples.assign(boring_id=samples["boring_id"].astype(str)),
-        tests.assign(boring_id=tests["boring_id"].astype(str)),
-        usable=usable,
-    )
-    k = np.array([np.mean(10.0 ** (a_phys + x)) if x.size else np.nan for x in groups])
-    return k, a_phys
-
-
 def _section_calibration(ctx: _Context) -> str:
-    calibration = _get(ctx.logs, "calibration")
-    if calibration is not None and not isinstance(calibration, Mapping):
-        as_dict = getattr(calibration, "as_dict", None)
-        calibration = as_dict() if callable(as_dict) else dict(vars(calibration))
-    calibration = calibration or {}
-    method = calibration.get("method")
-    n_tests = calibration.get("n_tests") or 0
-    residuals = _frame(calibration.get("residuals"))
+    if ctx.logs is None:
+        return _note("No calibration: the logs were not processed.")
+    calibration = ctx.logs.calibration
+    residuals = pd.DataFrame(calibration.residuals)
     parts = []
-    if method != "slug_tests":
+    if calibration.method != "slug_tests":
         text = "Physics-only K, no calibration: log-derived K comes from the Hvorslev shape factor"
         text += (
-            f" alone ({n_tests} slug test(s), fewer than a calibration needs)."
-            if n_tests
+            f" alone ({calibration.n_tests} slug test(s), fewer than a calibration needs)."
+            if calibration.n_tests
             else " alone (no slug tests were given)."
         )
         parts.append(_note(text))
-    keys = ("method", "a", "b", "se_a", "se_b", "n_tests", "r2")
-    summary = {k: calibration[k] for k in keys if k in calibration}
-    if summary:
-        parts.append(_mapping_table(summary, caption="Calibration log10 K = a + b log10(Q/P_net)"))
-    if residuals is not None and len(residuals) and "k_slug" in residuals:
-        fitted = method == "slug_tests"
-        physics = None
-        try:
-            physics = _physics_screen_k(ctx, residuals)
-        except Exception as exc:  # no physics-only axis: plot the calibrated prediction
-            logger.warning("physics-only K over the slug-test screens not computed: %s", exc)
-        if physics is not None:
-            x, offset = physics
-            xlabel = "log10 K from physics alone, mean over the screen (m/s)"
-            caption = (
-                "Slug-test K against physics-only log-derived K (Hvorslev shape factor) "
-                "averaged over each test screen; dotted: 1:1"
-                + ("; red: the fitted calibration." if fitted else " (no calibration fitted).")
-            )
-        elif "k_predicted" in residuals:
-            x, offset = residuals["k_predicted"].to_numpy(dtype=float), None
-            xlabel = "log10 K from the logs, calibrated, mean over the screen (m/s)"
-            caption = (
-                "Slug-test K against calibrated log-derived K averaged over each test screen; "
-                "dotted: 1:1."
-            )
-        else:
-            x = None
-        if x is not None:
-            fig = fg.calibration_figure(
-                x,
-                residuals["k_slug"].to_numpy(dtype=float),
-                a=calibration.get("a") if fitted and offset is not None else None,
-                b=calibration.get("b") if fitted and offset is not None else None,
-                x_offset=offset or 0.0,
-                labels=residuals["boring_id"] if "boring_id" in residuals else None,
-                xlabel=xlabel,
-            )
-            parts.append(_figure(fig, name="calibration", alt="Calibration plot", caption=caption))
+    summary = {
+        k: getattr(calibration, k) for k in ("method", "a", "b", "se_a", "se_b", "n_tests", "r2")
+    }
+    parts.append(_mapping_table(summary, caption="Calibration log10 K = a + b log10(Q/P_net)"))
+    if len(residuals) and "k_slug" in residuals:
+        parts.append(_calibration_figure(ctx.logs, residuals))
         parts.append(_table(residuals, caption="Slug tests and residuals (K in m/s)"))
-    elif method == "slug_tests":
+    elif calibration.method == "slug_tests":
         parts.append(_note("The calibration carries no per-test residuals to plot."))
     return "".join(parts)
 
 
-def _model_curves(model: Any, max_v: float, max_h: float):
+def _calibration_figure(logs: LogResults, residuals: pd.DataFrame) -> str:
+    """Slug-test K against the physics-only screen means the logs stage computed."""
+    calibration = logs.calibration
+    fitted = calibration.method == "slug_tests"
+    caption = (
+        "Slug-test K against physics-only log-derived K (Hvorslev shape factor) "
+        "averaged over each test screen; dotted: 1:1"
+        + ("; red: the fitted calibration." if fitted else " (no calibration fitted).")
+    )
+    fig = fg.calibration_figure(
+        residuals["k_physics"].to_numpy(dtype=float),
+        residuals["k_slug"].to_numpy(dtype=float),
+        a=calibration.a if fitted else None,
+        b=calibration.b if fitted else None,
+        x_offset=logs.physics_a,
+        labels=residuals["boring_id"],
+        xlabel="log10 K from physics alone, mean over the screen (m/s)",
+    )
+    return _figure(fig, name="calibration", alt="Calibration plot", caption=caption)
+
+
+def _model_curves(model: CovarianceModel, max_v: float, max_h: float) -> tuple[Any, Any]:
     """Model semivariance along the vertical and the horizontal major/minor axes."""
     lags_v = np.linspace(0.0, max_v, 120)
     lags_h = np.linspace(0.0, max_h, 120)
-    azimuth = float(_get(model, "azimuth", 0.0) or 0.0)
+    azimuth = float(model.azimuth)
     ex, ey = fg.azimuth_vector(azimuth)
     directions = {"major": (ex, ey, 0.0)}
-    if float(_get(model, "minor_ratio", 1.0) or 1.0) != 1.0:
+    if float(model.minor_ratio) != 1.0:
         directions["minor"] = (ey, -ex, 0.0)
 
-    def along(vector, lags):
+    def along(vector: tuple[float, float, float], lags: np.ndarray) -> np.ndarray:
         coords = np.outer(lags, vector)
         scaled = np.asarray(model.scaled(coords))
         return np.asarray(model.variogram(np.linalg.norm(scaled - scaled[0], axis=1)))
@@ -789,38 +594,29 @@ def _model_curves(model: Any, max_v: float, max_h: float):
 
 
 def _section_variograms(ctx: _Context) -> str:
-    fits = _get(ctx.model, "variograms") or {}
+    fits = {} if ctx.model is None else ctx.model.variograms
     if not fits:
         return _note("No variograms are available (no 3D model was built).")
     parts, rows = [], []
     units = {"log10_k": "(log10 m/s)\u00b2", "ec": "(mS/m)\u00b2"}
     for variable, fit in fits.items():
-        vertical = _frame(_get(fit, "vertical"))
-        horizontal = _frame(_get(fit, "horizontal"))
-        model = _get(fit, "model")
-        max_v = float(vertical["lag"].max()) if vertical is not None and len(vertical) else 5.0
-        max_h = (
-            float(horizontal["lag"].max()) if horizontal is not None and len(horizontal) else 50.0
+        vertical, horizontal, model = fit.vertical, fit.horizontal, fit.model
+        max_v = float(vertical["lag"].max()) if len(vertical) else 5.0
+        max_h = float(horizontal["lag"].max()) if len(horizontal) else 50.0
+        v_curve, h_curves = _model_curves(model, max_v * 1.05, max_h * 1.05)
+        rows.append(
+            {
+                "variable": variable,
+                "model": model.kind,
+                "nugget": model.nugget,
+                "partial sill": model.sill,
+                "horizontal range (m)": model.range_h,
+                "vertical range (m)": model.range_v,
+                "azimuth (\u00b0)": model.azimuth,
+                "minor/major": model.minor_ratio,
+                "fit RMSE": fit.rmse,
+            }
         )
-        v_curve = h_curves = None
-        if model is not None:
-            try:
-                v_curve, h_curves = _model_curves(model, max_v * 1.05, max_h * 1.05)
-            except Exception as exc:  # a model without scaled()/variogram(): points only
-                logger.warning("variogram model curve for %s not drawn: %s", variable, exc)
-            rows.append(
-                {
-                    "variable": variable,
-                    "model": _get(model, "kind", _get(fit, "kind")),
-                    "nugget": _get(model, "nugget"),
-                    "partial sill": _get(model, "sill"),
-                    "horizontal range (m)": _get(model, "range_h"),
-                    "vertical range (m)": _get(model, "range_v"),
-                    "azimuth (\u00b0)": _get(model, "azimuth"),
-                    "minor/major": _get(model, "minor_ratio"),
-                    "fit RMSE": _get(fit, "rmse"),
-                }
-            )
         fig = fg.variogram_figure(
             vertical,
             horizontal,
@@ -847,13 +643,13 @@ def _section_variograms(ctx: _Context) -> str:
 
 
 def _section_crossval(ctx: _Context) -> str:
-    results = _get(ctx.model, "crossval") or {}
+    results = {} if ctx.model is None else ctx.model.crossval
     if not results:
         return _note("No cross-validation is available.")
     parts, rows = [], []
     units = {"log10_k": "log10 m/s", "ec": "mS/m"}
     for variable, cv in results.items():
-        summary = _get(cv, "summary") or {}
+        summary = cv.summary
         rows.append(
             {
                 "variable": variable,
@@ -864,8 +660,8 @@ def _section_crossval(ctx: _Context) -> str:
                 "variance of standardized error": summary.get("var_std_error"),
             }
         )
-        samples = _frame(_get(cv, "samples"))
-        if samples is not None and len(samples) and {"observed", "estimate"} <= set(samples):
+        samples = cv.samples
+        if len(samples) and {"observed", "estimate"} <= set(samples):
             fig = fg.crossval_figure(samples, variable=variable, units=units.get(variable, ""))
             parts.append(
                 _figure(
@@ -915,7 +711,7 @@ def _is_water_map(key: str) -> bool:
 def _section_maps(ctx: _Context) -> str:
     given = {
         str(k): v
-        for k, v in (_get(ctx.results, "maps") or {}).items()
+        for k, v in ctx.results.maps.items()
         if isinstance(v, xr.DataArray) and set(v.dims) == {"y", "x"} and not _is_water_map(str(k))
     }
     derived = _derived_maps(ctx)
@@ -987,7 +783,7 @@ def _section_sections(ctx: _Context) -> str:
         return _note("No cross-sections: the site geometry does not define a section line.")
     parts = []
     dx = float(np.abs(np.diff(ds["x"].values[:2]))[0]) if ds.sizes["x"] > 1 else 1.0
-    surface = _get(ctx.logs, "water_table")
+    surface = None if ctx.logs is None else ctx.logs.water_table
     intervals = ctx.intervals
     for line in ctx.sections:
         section = fg.sample_section(ds, line, variables=("facies_code", "log10_k", "mask"))
@@ -1088,7 +884,7 @@ def _long_volumes(volumes: pd.DataFrame) -> pd.DataFrame:
 
 
 def _section_volumes(ctx: _Context) -> str:
-    volumes = _frame(_get(ctx.results, "volumes"))
+    volumes = ctx.results.volumes
     if volumes is None or not len(volumes):
         return _note("No volumes were computed (no treatment zones were given).")
     text = _note(
@@ -1104,17 +900,17 @@ def _section_volumes(ctx: _Context) -> str:
 
 
 def _section_injection(ctx: _Context) -> str:
-    plans = _get(ctx.results, "injection") or {}
+    plans = ctx.results.injection
     if not plans:
         return _note("No injection plans (no treatment zones were given).")
     parts = []
     for zone, plan in plans.items():
         parts.append(f"<h3>{_esc(zone)}</h3>")
-        summary = _get(plan, "summary") or {}
+        summary = plan.summary
         if summary:
             parts.append(_mapping_table(summary, caption="Design summary"))
-        schedule = _frame(_get(plan, "schedule"))
-        if schedule is not None and len(schedule):
+        schedule = plan.schedule
+        if len(schedule):
             parts.append(_schedule_table(schedule))
     return "".join(parts)
 
@@ -1159,7 +955,7 @@ def _schedule_table(schedule: pd.DataFrame) -> str:
 def _section_methods(ctx: _Context) -> str:
     items = "".join(f"<dt>{name}</dt><dd>{text}</dd>" for name, text in _METHODS)
     refs = "".join(f'<li id="ref-{key}">{_esc(text)}</li>' for key, text in _REFERENCES)
-    timings = _get(ctx.results, "timings") or {}
+    timings = ctx.results.timings
     run = ""
     if timings:
         frame = pd.DataFrame([{"stage": k, "seconds": float(v)} for k, v in timings.items()])
@@ -1212,19 +1008,17 @@ def _render_section(ctx: _Context, anchor: str) -> str:
 
 
 def _header(ctx: _Context, generated: _dt.datetime) -> str:
-    name = _get(ctx.site, "name") or "Unnamed site"
+    name = ctx.site.name
     facts = {
         "Coordinate reference system": ctx.crs_label,
         "Report date": generated.strftime("%Y-%m-%d %H:%M UTC"),
         "geo3d version": geo3d.__version__,
         "Borings": 0 if ctx.borings is None else len(ctx.borings),
     }
-    root = _get(ctx.site, "root")
-    if root is not None:
-        facts["Site folder"] = Path(root).name
+    facts["Site folder"] = Path(ctx.site.root).name
     if ctx.dataset is not None and "mask" in ctx.dataset:
         facts["Model cells inside the site"] = f"{int(ctx.dataset['mask'].sum()):,}"
-    timings = _get(ctx.results, "timings") or {}
+    timings = ctx.results.timings
     if timings:
         facts["Run time"] = f"{sum(float(v) for v in timings.values()):.1f} s"
     rows = "".join(f"<dt>{_esc(k)}</dt><dd>{_esc(v)}</dd>" for k, v in facts.items())
@@ -1250,24 +1044,21 @@ def _resource(name: str) -> str:
 
 
 def build_report(
-    results: Any,
+    results: RunResults,
     *,
     generated: _dt.datetime | None = None,
-    log_figure_dir: str | os.PathLike | None = None,
+    log_figures: Mapping[str, bytes] | None = None,
 ) -> str:
     """Build the report of a run as one self-contained HTML document.
 
     Parameters
     ----------
     results
-        A :class:`geo3d.pipeline.RunResults` or any object with the same attributes
-        (``site``, ``logs``, ``model``, ``maps``, ``volumes``, ``injection``, ``timings``);
-        absent parts give notes instead of sections' figures.
+        The results of the stages run; absent stages give notes instead of figures.
     generated
         Time stamp of the report; now (UTC) when None.
-    log_figure_dir
-        Folder where the logs stage wrote ``<boring_id>.png`` log figures; those found there
-        are embedded as they are instead of being drawn again.
+    log_figures
+        Boring id -> PNG of its log figure, embedded as it is; drawn here when None.
 
     Returns
     -------
@@ -1276,9 +1067,9 @@ def build_report(
     """
     generated = generated or _dt.datetime.now(_dt.UTC)
     ctx = _Context.from_results(results)
-    ctx.log_figure_dir = None if log_figure_dir is None else Path(log_figure_dir)
+    ctx.log_figures = {} if log_figures is None else log_figures
     body = "\n".join(_render_section(ctx, anchor) for anchor in SECTION_TITLES)
-    name = _get(ctx.site, "name") or "Unnamed site"
+    name = ctx.site.name
     template = string.Template(_resource("template.html"))
     return template.substitute(
         title=_esc(f"{name}: geo3d site model report"),
@@ -1294,17 +1085,23 @@ def build_report(
     )
 
 
-def write_report(results: Any, path: str | os.PathLike) -> Path:
+def write_report(
+    results: RunResults,
+    path: str | os.PathLike,
+    *,
+    log_figures: Mapping[str, bytes] | None = None,
+) -> Path:
     """Write the self-contained HTML report of a run.
 
     Parameters
     ----------
     results
-        A :class:`geo3d.pipeline.RunResults` (or an object with the same attributes).
+        The results of the stages run.
     path
         File to write (usually ``OUT/report.html``); written under a temporary name and
-        moved into place only when complete. Log figures that the logs stage wrote in
-        ``figures/logs/`` beside it are embedded rather than drawn again.
+        moved into place only when complete.
+    log_figures
+        Boring id -> PNG of its log figure (see :func:`build_report`).
 
     Returns
     -------
@@ -1312,7 +1109,7 @@ def write_report(results: Any, path: str | os.PathLike) -> Path:
         The written file.
     """
     path = Path(path)
-    text = build_report(results, log_figure_dir=path.parent / "figures" / "logs")
+    text = build_report(results, log_figures=log_figures)
     with atomic_file(path) as tmp:
         tmp.write_text(text, encoding="utf-8")
     logger.info("wrote report %s (%.1f MB)", path, path.stat().st_size / 1e6)

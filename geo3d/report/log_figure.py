@@ -13,6 +13,9 @@ References
 
 from __future__ import annotations
 
+import io
+import warnings
+
 import matplotlib
 
 matplotlib.use("Agg")
@@ -23,7 +26,9 @@ import pandas as pd  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.patches import Patch  # noqa: E402
 
-__all__ = ["OKABE_ITO", "facies_colour", "log_figure"]
+from geo3d.errors import Geo3dWarning  # noqa: E402
+
+__all__ = ["OKABE_ITO", "LOG_FIGURE_DPI", "facies_colour", "log_figure", "log_figure_pngs"]
 
 #: Okabe & Ito (2008) colour-blind-safe palette.
 OKABE_ITO: dict[str, str] = {
@@ -51,6 +56,9 @@ _FLAG_STYLE = {
 
 
 _MAX_MARKS = 150
+
+#: Resolution of the per-boring log figures (written as PNG and embedded in the report).
+LOG_FIGURE_DPI = 110
 
 
 def facies_colour(code: int) -> str:
@@ -197,3 +205,32 @@ def log_figure(
         ax.grid(True, color="#DDDDDD", lw=0.5)
     fig.suptitle(f"Boring {boring_id}")
     return fig
+
+
+def log_figure_pngs(samples: pd.DataFrame, intervals: pd.DataFrame) -> dict[str, bytes]:
+    """Draw :func:`log_figure` for every boring, as PNG bytes.
+
+    Parameters
+    ----------
+    samples
+        Per-sample table of the logs stage (every boring).
+    intervals
+        Composited intervals of the logs stage.
+
+    Returns
+    -------
+    dict of str to bytes
+        Boring id -> PNG at :data:`LOG_FIGURE_DPI`, in boring order.
+    """
+    pngs: dict[str, bytes] = {}
+    intervals_by = dict(tuple(intervals.groupby("boring_id", sort=True)))
+    empty = intervals.iloc[0:0]
+    for boring_id, log in samples.groupby("boring_id", sort=True):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", Geo3dWarning)
+            fig = log_figure(log, intervals_by.get(boring_id, empty), boring_id=str(boring_id))
+        buffer = io.BytesIO()
+        fig.savefig(buffer, format="png", dpi=LOG_FIGURE_DPI)
+        plt.close(fig)
+        pngs[str(boring_id)] = buffer.getvalue()
+    return pngs

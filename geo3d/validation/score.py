@@ -30,11 +30,11 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
+from geo3d.analysis.fields import realization_facies
 from geo3d.validation.truth import FACIES
 
 __all__ = [
     "SiteScore",
-    "facies_realizations",
     "part_volumes",
     "score_volumes",
     "run_site",
@@ -73,24 +73,6 @@ class SiteScore:
     info: dict[str, Any] = field(default_factory=dict)
 
 
-def facies_realizations(ds: xr.Dataset, names: list[str]) -> list[np.ndarray]:
-    """Facies code arrays of each realization of a voxel model (empty without realizations).
-
-    From a ``facies_realizations`` variable when the model has one, else by classifying the
-    ``realizations`` of log10 K with the model's facies thresholds.
-    """
-    from geo3d.model import classify_log10_k, facies_table
-
-    if "facies_realizations" in ds:
-        values = ds["facies_realizations"].values
-        return [values[r] for r in range(values.shape[0])]
-    if "realizations" not in ds or ds.sizes.get("realization", 0) == 0:
-        return []
-    table = facies_table(model=ds)
-    values = ds["realizations"].values
-    return [classify_log10_k(values[r], table) for r in range(values.shape[0])]
-
-
 def part_volumes(ds: xr.Dataset) -> pd.DataFrame:
     """Return the expected volume and P10/P90 per facies in the saturated, unsaturated parts.
 
@@ -104,7 +86,7 @@ def part_volumes(ds: xr.Dataset) -> pd.DataFrame:
     mask = ds["mask"].values.astype(bool)
     saturated = ds["saturated"].values.astype(bool) & mask
     cell = float(np.prod(ds.voxels.cell_size))
-    sims = facies_realizations(ds, names)
+    sims = realization_facies(ds)
     rows = []
     for part, weight in (
         ("saturated", saturated),
