@@ -48,7 +48,9 @@ from geo3d.errors import Geo3dWarning, ModelError
 from geo3d.facies import FaciesClasses
 from geo3d.geostats.censored import censored_expectation, fit_censored_normal
 from geo3d.geostats.facies_simulation import fit_facies_model, simulate_facies
+from geo3d.geostats.kriging import OrdinaryKriging
 from geo3d.geostats.transition import bootstrap_borings
+from geo3d.geostats.variogram import fit_anisotropic
 from geo3d.grid import build_mask, ground_surface, make_grid
 from geo3d.model import ModelResult
 
@@ -148,9 +150,6 @@ def _krige_within(
     kriging: Mapping[str, Any],
 ) -> tuple[np.ndarray, np.ndarray]:  # fmt: skip
     """Kriged mean and variance of log10 K of one facies (its own law and variogram)."""
-    from geo3d.geostats.kriging import OrdinaryKriging
-    from geo3d.geostats.variogram import fit_anisotropic
-
     rows = table[(table["facies_code"] == code) & np.isfinite(table["log10_k"])]
     m = len(targets)
     if rows.empty:
@@ -194,8 +193,6 @@ def _log10_k(table, ds, prob, saturated, variogram, kriging) -> tuple[np.ndarray
 
 
 def _ec(table: pd.DataFrame, targets: np.ndarray, variogram, kriging) -> tuple[np.ndarray, ...]:
-    from geo3d.geostats.kriging import OrdinaryKriging
-    from geo3d.geostats.variogram import fit_anisotropic
 
     rows = table[np.isfinite(table["ec"].to_numpy(float))]
     if len(rows) < 4 or np.ptp(rows["ec"].to_numpy(float)) == 0:

@@ -35,10 +35,12 @@ from geo3d.analysis.thickness import thickness_maps
 from geo3d.analysis.volumes import zone_volumes
 from geo3d.analysis.water_table import depth_to_water_map, water_table_map
 from geo3d.errors import Geo3dError, Geo3dWarning, ModelError
+from geo3d.facies_first import build_facies_first_model
 from geo3d.geostats.variogram import VariogramFit
 from geo3d.io import geotiff, gpkg, netcdf, tables, vtk
 from geo3d.io.atomic import atomic_file, output_folder
 from geo3d.logs.process import LogResults, process_logs
+from geo3d.logs.runs import composite_runs
 from geo3d.model import ModelResult, VoxelModel, build_voxel_model
 from geo3d.report import write_report
 from geo3d.report.log_figure import log_figure_pngs
@@ -178,8 +180,6 @@ def run_model(
 def _facies_first(
     site: Site, logs: LogResults, n_realizations: int | None, callback: Any
 ) -> ModelResult:
-    from geo3d.facies_first import build_facies_first_model
-    from geo3d.logs.runs import composite_runs
 
     options = site.config.model_options()
     intervals = composite_runs(

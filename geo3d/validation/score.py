@@ -31,7 +31,11 @@ import pandas as pd
 import xarray as xr
 
 from geo3d.analysis.fields import realization_facies
-from geo3d.validation.truth import FACIES
+from geo3d.analysis.volumes import zone_volumes
+from geo3d.pipeline import run_logs, run_model
+from geo3d.site import read_site
+from geo3d.validation.sitefolder import write_site
+from geo3d.validation.truth import FACIES, draw_site
 
 __all__ = [
     "SiteScore",
@@ -196,12 +200,6 @@ def run_site(
     -------
     SiteScore
     """
-    from geo3d.analysis.volumes import zone_volumes
-    from geo3d.pipeline import run_logs, run_model
-    from geo3d.site import read_site
-    from geo3d.validation.sitefolder import write_site
-    from geo3d.validation.truth import draw_site
-
     timings: dict[str, float] = {}
     clock = time.perf_counter()
     cpu = time.process_time()
