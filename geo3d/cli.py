@@ -22,14 +22,17 @@ import contextlib
 import functools
 import logging
 import sys
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from pathlib import Path
-from typing import Any, TypeVar
+from typing import TYPE_CHECKING, Any, TypeVar
 
 import click
 
 from geo3d import __version__
 from geo3d.errors import Geo3dError
+
+if TYPE_CHECKING:
+    from rich.progress import Progress
 
 __all__ = ["main", "handle_errors", "console", "error_console", "SITE_PATH", "EXIT_INPUT"]
 
@@ -133,9 +136,9 @@ def _configure_logging(verbosity: int) -> None:
     if not any(getattr(h, "_geo3d_cli", False) for h in root.handlers):
         from rich.logging import RichHandler
 
-        handler = RichHandler(console=error_console(), show_path=False, show_time=False)
-        handler._geo3d_cli = True  # type: ignore[attr-defined]
-        root.addHandler(handler)
+        rich_handler = RichHandler(console=error_console(), show_path=False, show_time=False)
+        rich_handler._geo3d_cli = True  # type: ignore[attr-defined]
+        root.addHandler(rich_handler)
     for handler in root.handlers:
         handler.setLevel(level)
 
@@ -311,19 +314,19 @@ def _out_options(*, default_out: Path | None = None) -> Callable[[F], F]:
 class _StageProgress:
     """Rich progress bars: one per stage, advanced by the pipeline's progress callback."""
 
-    def __init__(self, stages, *, enabled: bool):
+    def __init__(self, stages: Sequence[str], *, enabled: bool):
         self.stages = list(stages)
         self.enabled = enabled
-        self.progress = None
+        self.progress: Progress | None = None
         self.tasks: dict[str, Any] = {}
 
     def __enter__(self) -> _StageProgress:
         return self
 
-    def _start(self) -> None:
+    def _start(self) -> Progress:
         from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
-        self.progress = Progress(
+        progress = self.progress = Progress(
             TextColumn("{task.description:<8}"),
             BarColumn(),
             TextColumn("{task.percentage:>3.0f}%"),
@@ -331,9 +334,10 @@ class _StageProgress:
             TextColumn("{task.fields[message]}"),
             console=error_console(),
         )
-        self.progress.start()
+        progress.start()
         for stage in self.stages:
-            self.tasks[stage] = self.progress.add_task(stage, total=1.0, start=False, message="")
+            self.tasks[stage] = progress.add_task(stage, total=1.0, start=False, message="")
+        return progress
 
     def __exit__(self, *exc_info: Any) -> None:
         if self.progress is not None:
@@ -342,15 +346,12 @@ class _StageProgress:
     def __call__(self, stage: str, fraction: float, message: str) -> None:
         if not self.enabled:
             return
-        if self.progress is None:
-            self._start()
+        progress = self._start() if self.progress is None else self.progress
         task = self.tasks.get(stage)
         if task is None:
-            task = self.tasks[stage] = self.progress.add_task(
-                stage, total=1.0, start=False, message=""
-            )
-        self.progress.start_task(task)
-        self.progress.update(task, completed=max(0.0, min(1.0, fraction)), message=message[:60])
+            task = self.tasks[stage] = progress.add_task(stage, total=1.0, start=False, message="")
+        progress.start_task(task)
+        progress.update(task, completed=max(0.0, min(1.0, fraction)), message=message[:60])
 
 
 def _summary(results, *, title: str) -> None:
@@ -377,7 +378,7 @@ def _summary(results, *, title: str) -> None:
     headline = headline_volumes(results)
     if headline.empty:
         return
-    unit = results.site.config.units.output_volume
+    unit = results.site.config.output_options().volume_unit
     table = Table(title=f"Headline volumes ({unit})", title_justify="left")
     for column in (
         "zone",

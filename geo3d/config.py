@@ -33,6 +33,7 @@ from pydantic import (
     field_validator,
     model_validator,
 )
+from pydantic_core import ErrorDetails
 
 from geo3d.errors import CRSError, SiteFileError, SiteValidationError, UnitError, where
 from geo3d.facies import DEFAULT_CLASSES, FaciesClass, FaciesClasses
@@ -57,6 +58,7 @@ __all__ = [
     "TreatmentSection",
     "OutputSection",
     "LogsOptions",
+    "OutputOptions",
     "ModelOptions",
     "VolumeOptions",
     "load_config",
@@ -449,11 +451,21 @@ class TreatmentSection(_Section):
     )
 
 
+_OUTPUT_FORMATS: tuple[Literal["vtk", "geotiff", "gpkg", "netcdf", "csv", "report"], ...] = (
+    "vtk",
+    "geotiff",
+    "gpkg",
+    "netcdf",
+    "csv",
+    "report",
+)
+
+
 class OutputSection(_Section):
     """``[output]``: which outputs to write."""
 
     formats: list[Literal["vtk", "geotiff", "gpkg", "netcdf", "csv", "report"]] = Field(
-        default_factory=lambda: ["vtk", "geotiff", "gpkg", "netcdf", "csv", "report"],
+        default_factory=lambda: list(_OUTPUT_FORMATS),
         description="Outputs to write: vtk, geotiff, gpkg, netcdf, csv, report.",
     )
 
@@ -498,6 +510,14 @@ class SiteConfig(_Section):
     def logs_options(self) -> LogsOptions:
         """Return the settings of the logs stage (see :class:`LogsOptions`)."""
         return _logs_options(self)
+
+    def output_options(self) -> OutputOptions:
+        """Return the settings of the export and report stages (see :class:`OutputOptions`)."""
+        return OutputOptions(
+            formats=tuple(self.output.formats),
+            length_unit=self.units.output_length,
+            volume_unit=self.units.output_volume,
+        )
 
     def model_options(self) -> ModelOptions:
         """Return the settings of the model stage (see :class:`ModelOptions`)."""
@@ -550,6 +570,7 @@ def _to_internal(config: SiteConfig) -> SiteConfig:
     ]
     updates["probe"] = probe.model_copy(update={"tool_loss": tool_loss})
     facies = updates["facies"]
+    assert isinstance(facies, FaciesSection)  # min_thickness converted above
     classes = [
         c
         if c.ec_max is None
@@ -584,7 +605,7 @@ def _line_of(text: str, loc: tuple[Any, ...]) -> int | None:
     return header_line or parent_line
 
 
-def _describe(error: dict[str, Any], path: str | PathLike | None, text: str) -> str:
+def _describe(error: ErrorDetails, path: str | PathLike | None, text: str) -> str:
     loc = tuple(error["loc"])
     # Drop the union-member tags pydantic appends ('float', "literal['auto']").
     keys = tuple(k for k in loc if isinstance(k, int) or not re.match(r"^(float|literal\[)", k))
@@ -802,6 +823,23 @@ class LogsOptions:
     facies_classes: FaciesClasses
     ec_cutoffs: tuple[float | None, ...] | None
     seed: int
+
+
+@dataclass(frozen=True)
+class OutputOptions:
+    """What the export and report stages write, and in which units.
+
+    Attributes
+    ----------
+    formats
+        Outputs to write (``[output] formats``).
+    length_unit, volume_unit
+        Units of the tables written for people (``[units] output_length``, ``output_volume``).
+    """
+
+    formats: tuple[str, ...]
+    length_unit: str
+    volume_unit: str
 
 
 def _logs_options(config: SiteConfig) -> LogsOptions:

@@ -395,19 +395,47 @@ def classify_mixture(
     _check_classes(classes)
     lk = np.asarray(log10_k, dtype=float)
     ec = np.asarray(ec, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        lec = np.where(ec > 0, np.log10(ec), np.nan)
+    lec = np.log10(np.where(ec > 0, ec, np.nan))
     only_k = np.zeros(lk.size, bool) if k_only is None else np.asarray(k_only, dtype=bool)
     fit = np.isfinite(lk) & np.isfinite(lec) & ~only_k
-    if fit.sum() < 3 * max_classes:
-        msg = (
-            f"Gaussian-mixture hydrofacies need at least {3 * max_classes} intervals with K "
-            f"and EC, got {int(fit.sum())}; use [facies] method = 'thresholds'"
-        )
-        raise ModelError(msg)
+    _require_intervals(int(fit.sum()), max_classes)
     raw = np.column_stack([lk, lec])
     centre, spread = raw[fit].mean(axis=0), raw[fit].std(axis=0)
     data = (raw[fit] - centre) / spread
+    best = _best_mixture(data, max_classes=max_classes, seed=seed)
+    component = np.full(lk.size, -1, dtype=int)
+    component[fit] = best.predict(data)
+    by_k = np.isfinite(lk) & only_k
+    if by_k.any():
+        component[by_k] = _component_of_k(best, (lk[by_k] - centre[0]) / spread[0])
+    mean_k = best.means_[:, 0] * spread[0] + centre[0]
+    class_of = classify_thresholds(mean_k, classes)
+    shown = np.round(np.sort(mean_k), 2).tolist()
+    logger.info("mixture hydrofacies: %d components by BIC, mean log10 K %s", len(mean_k), shown)
+    if merge:
+        codes = np.where(component >= 0, class_of[np.maximum(component, 0)], -1)
+        return codes, [c.name for c in classes]
+    return _components_by_k(component, mean_k, [classes[int(c)].name for c in class_of])
+
+
+def _require_intervals(n: int, max_classes: int) -> None:
+    if n < 3 * max_classes:
+        msg = (
+            f"Gaussian-mixture hydrofacies need at least {3 * max_classes} intervals with K "
+            f"and EC, got {n}; use [facies] method = 'thresholds'"
+        )
+        raise ModelError(msg)
+
+
+def _component_of_k(best: GaussianMixture, z: np.ndarray) -> np.ndarray:
+    """Most likely component of standardized log10 K values by the marginal in log10 K."""
+    sd = np.sqrt(best.covariances_[:, 0, 0])
+    density = best.weights_ * norm.pdf(z[:, None], best.means_[:, 0], sd)
+    return np.argmax(density, axis=1)
+
+
+def _best_mixture(data: np.ndarray, *, max_classes: int, seed: int) -> GaussianMixture:
+    """Fit mixtures of 1 to ``max_classes`` components; return the one with the lowest BIC."""
     best, best_bic = None, np.inf
     # a few thousand points in 2D: one thread is fastest (no OpenMP oversubscription)
     with threadpool_limits(limits=1):
@@ -420,32 +448,23 @@ def classify_mixture(
             logger.debug("mixture with %d components: BIC %.1f", n, bic)
             if bic < best_bic:
                 best, best_bic = gm, bic
-    n_comp = best.n_components
-    component = np.full(lk.size, -1, dtype=int)
-    component[fit] = best.predict(data)
-    by_k = np.isfinite(lk) & only_k
-    if by_k.any():
-        z = (lk[by_k] - centre[0]) / spread[0]
-        sd = np.sqrt(best.covariances_[:, 0, 0])
-        density = best.weights_ * norm.pdf(z[:, None], best.means_[:, 0], sd)
-        component[by_k] = np.argmax(density, axis=1)
-    mean_k = best.means_[:, 0] * spread[0] + centre[0]
-    class_of = classify_thresholds(mean_k, classes)
-    logger.info(
-        "mixture hydrofacies: %d components by BIC, mean log10 K %s",
-        n_comp,
-        np.round(np.sort(mean_k), 2).tolist(),
-    )
-    if merge:
-        codes = np.where(component >= 0, class_of[np.maximum(component, 0)], -1)
-        return codes, [c.name for c in classes]
+    if best is None:  # every BIC was NaN: degenerate data
+        msg = "Gaussian-mixture hydrofacies: no mixture could be fitted to the intervals"
+        raise ModelError(msg)
+    return best
+
+
+def _components_by_k(
+    component: np.ndarray, mean_k: np.ndarray, class_names: list[str]
+) -> tuple[np.ndarray, list[str]]:
+    """Code each component by its rank in mean log10 K; name it after its threshold class."""
     order = np.argsort(mean_k)
     rank = np.empty_like(order)
     rank[order] = np.arange(order.size)
     codes = np.where(component >= 0, rank[np.maximum(component, 0)], -1)
     names: list[str] = []
     for comp in order:
-        name = classes[int(class_of[comp])].name
+        name = class_names[comp]
         count = sum(1 for n in names if n == name or n.startswith(name + "_"))
         names.append(name if count == 0 else f"{name}_{count + 1}")
     return codes, names

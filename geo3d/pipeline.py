@@ -320,7 +320,7 @@ def run_export(
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     site = results.site
-    chosen = set(site.config.output.formats if formats is None else formats)
+    chosen = set(site.config.output_options().formats if formats is None else formats)
     ds = results.dataset
     written: list[Path] = []
     if "csv" in chosen:
@@ -347,10 +347,8 @@ def run_export(
 def _write_tables(results: RunResults, out: Path) -> list[Path]:
     """Write the CSV/JSON tables and the per-boring log figures."""
     logs, model = results.logs, results.model
-    units = {
-        "length_unit": results.site.config.units.output_length,
-        "volume_unit": results.site.config.units.output_volume,
-    }
+    options = results.site.config.output_options()
+    units = {"length_unit": options.length_unit, "volume_unit": options.volume_unit}
     summaries = {zone: plan.summary for zone, plan in results.injection.items()}
     written = tables.write_tables(
         out,
@@ -541,10 +539,9 @@ def _first_value(frame: pd.DataFrame, column: str) -> float:
 
 
 def _summary_value(summary: dict[str, Any], key: str) -> float:
-    value = summary.get(key)
     try:
-        return float(value)
-    except (TypeError, ValueError):
+        return float(summary[key])
+    except (KeyError, TypeError, ValueError):
         return float("nan")
 
 
@@ -666,7 +663,7 @@ def run(
             site = run_check(site_path)
         results = RunResults(site=site, timings=timings)
         _compute(results, planned, timer, n_realizations=n_realizations, progress=callback)
-        chosen_formats = list(site.config.output.formats if formats is None else formats)
+        chosen_formats = list(site.config.output_options().formats if formats is None else formats)
         written: list[Path] = []
         if "export" in planned:
             with timer.stage("export"):

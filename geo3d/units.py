@@ -141,7 +141,7 @@ def to_internal(values, unit: str, quantity: str):
     """
     f = factor(unit, quantity)
     if np.isscalar(values):
-        return float(values) * f
+        return float(values) * f  # type: ignore[arg-type]
     return np.asarray(values, dtype=float) * f
 
 
@@ -155,5 +155,5 @@ def from_internal(values, unit: str, quantity: str):
     """
     f = factor(unit, quantity)
     if np.isscalar(values):
-        return float(values) / f
+        return float(values) / f  # type: ignore[arg-type]
     return np.asarray(values, dtype=float) / f

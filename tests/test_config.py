@@ -202,3 +202,14 @@ def test_ec_cutoffs_are_converted_and_reach_the_logs_options():
 def test_simulation_seed_default_reaches_every_stage():
     config = config_from_dict({"site": {"name": "x", "crs": "EPSG:32631"}})
     assert config.logs_options().seed == config.model_options().seed == config.simulation.seed
+
+
+def test_output_options_carry_formats_and_output_units():
+    data = {
+        "site": {"name": "x", "crs": "EPSG:32631"},
+        "units": {"output_length": "ft", "output_volume": "gal"},
+        "output": {"formats": ["csv", "report"]},
+    }
+    options = config_from_dict(data).output_options()
+    assert options.formats == ("csv", "report")
+    assert (options.length_unit, options.volume_unit) == ("ft", "gal")

@@ -272,7 +272,7 @@ def contour_levels(values: np.ndarray, *, n_levels: int = 10) -> np.ndarray:
     low, high = float(finite.min()), float(finite.max())
     if not high > low:
         return np.empty(0)
-    levels = MaxNLocator(nbins=n_levels).tick_values(low, high)
+    levels = np.asarray(MaxNLocator(nbins=n_levels).tick_values(low, high), dtype=float)
     return levels[(levels > low) & (levels < high)]
 
 
@@ -302,15 +302,15 @@ def contour_lines(
         ``map``, ``level``, ``units`` and LineString geometry.
     """
     rows: list[dict] = []
-    levels = levels or {}
+    given = levels or {}
     for name, da in maps.items():
         if set(da.dims) != {"y", "x"}:
             msg = f"map '{name}' must have dims ('y', 'x'); got {da.dims}"
             raise GeometryError(msg)
         da = da.transpose("y", "x")
         values = np.asarray(da.values, dtype=float)
-        chosen = levels.get(name)
-        chosen = contour_levels(values, n_levels=n_levels) if chosen is None else chosen
+        own = given.get(str(name))
+        chosen = contour_levels(values, n_levels=n_levels) if own is None else np.asarray(own)
         if len(chosen) == 0 or min(values.shape) < 2:
             continue
         z = np.ma.masked_invalid(values)
@@ -330,7 +330,7 @@ def contour_lines(
                         }
                     )
     if not rows:
-        empty = {"map": [], "level": [], "units": []}
+        empty: dict[str, list] = {"map": [], "level": [], "units": []}
         return gpd.GeoDataFrame(empty, geometry=gpd.GeoSeries([], crs=crs), crs=crs)
     return gpd.GeoDataFrame(rows, geometry="geometry", crs=crs)
 

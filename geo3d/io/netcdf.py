@@ -18,9 +18,10 @@ from __future__ import annotations
 
 import json
 import logging
-from collections.abc import Sequence
+from collections.abc import Hashable, Sequence
 from os import PathLike
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pyproj
@@ -194,11 +195,11 @@ def write_netcdf(
     """
     path = Path(path)
     cf = to_cf(ds, crs=crs, facies_names=facies_names, title=title)
-    encoding = {}
+    encoding: dict[Hashable, dict[str, Any]] = {}
     for name, da in cf.data_vars.items():
         if name == "spatial_ref":
             continue
-        enc = {"zlib": True, "complevel": int(complevel)}
+        enc: dict[str, Any] = {"zlib": True, "complevel": int(complevel)}
         if da.dtype.kind == "f":
             enc["_FillValue"] = np.float32(np.nan) if da.dtype == np.float32 else np.nan
         elif str(name) == "facies_code":

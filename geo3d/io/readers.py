@@ -42,7 +42,7 @@ STAGES = ("pre", "post")
 _MAX_LISTED = 5
 
 
-def _lines(rows: Sequence[int], first_line: int) -> str:
+def _lines(rows: Sequence[int] | np.ndarray, first_line: int) -> str:
     """Describe data rows (0-based positions) as file lines."""
     shown = [str(int(r) + first_line) for r in rows[:_MAX_LISTED]]
     more = f" and {len(rows) - _MAX_LISTED} more" if len(rows) > _MAX_LISTED else ""
@@ -50,9 +50,37 @@ def _lines(rows: Sequence[int], first_line: int) -> str:
     return f"{label} {', '.join(shown)}{more}"
 
 
-def _place(path: str | PathLike, rows: Sequence[int], first_line: int, column: str) -> str:
+def _place(
+    path: str | PathLike, rows: Sequence[int] | np.ndarray, first_line: int, column: str
+) -> str:
     """Name the file, the lines of the bad rows and the column."""
     return f"{path}, {_lines(rows, first_line)}, column '{column}'"
+
+
+def _read_csv_text(
+    file: Path, required: Sequence[str], delimiter: str, skip_rows: int, error: type[Exception]
+) -> pd.DataFrame:
+    """Read a CSV with every cell as text; ``attrs["first_line"]`` is its first data line."""
+    if file.stat().st_size == 0:
+        msg = f"{file}: the file is empty; expected a header line with {', '.join(required)}"
+        raise error(msg)
+    try:
+        frame = pd.read_csv(
+            file,
+            sep=delimiter,
+            skiprows=skip_rows,
+            dtype=str,
+            keep_default_na=False,
+            skipinitialspace=True,
+        )
+    except pd.errors.EmptyDataError:
+        msg = f"{file}: the file is empty; expected a header line with {', '.join(required)}"
+        raise error(msg) from None
+    except (pd.errors.ParserError, UnicodeDecodeError) as exc:
+        msg = f"{file}: cannot parse the table ({exc}); expected {delimiter!r}-separated text"
+        raise error(msg) from None
+    frame.attrs["first_line"] = skip_rows + 2
+    return frame
 
 
 def read_table(
@@ -102,25 +130,7 @@ def read_table(
         frame = pd.DataFrame(gpd.read_file(file))
         frame.attrs["first_line"] = 1
     else:
-        if file.stat().st_size == 0:
-            msg = f"{file}: the file is empty; expected a header line with {', '.join(required)}"
-            raise error(msg)
-        try:
-            frame = pd.read_csv(
-                file,
-                sep=delimiter,
-                skiprows=skip_rows,
-                dtype=str,
-                keep_default_na=False,
-                skipinitialspace=True,
-            )
-        except pd.errors.EmptyDataError:
-            msg = f"{file}: the file is empty; expected a header line with {', '.join(required)}"
-            raise error(msg) from None
-        except (pd.errors.ParserError, UnicodeDecodeError) as exc:
-            msg = f"{file}: cannot parse the table ({exc}); expected {delimiter!r}-separated text"
-            raise error(msg) from None
-        frame.attrs["first_line"] = skip_rows + 2
+        frame = _read_csv_text(file, required, delimiter, skip_rows, error)
     frame.columns = [str(c).strip() for c in frame.columns]
     missing = [c for c in required if c not in frame.columns]
     if missing:
@@ -224,6 +234,36 @@ def _id_column(frame: pd.DataFrame, column: str, *, path: str | PathLike) -> pd.
     return ids
 
 
+def _borings_layer(file: Path, crs: pyproj.CRS | None) -> pd.DataFrame:
+    """Read a GeoPackage point layer of borings as a table (x, y from the points if needed)."""
+    import geopandas as gpd
+
+    layer = gpd.read_file(file)
+    if "x" not in layer.columns and layer.geometry is not None and len(layer):
+        if not all(layer.geometry.geom_type == "Point"):
+            msg = f"{where(file, column='geometry')}: expected point geometries for borings"
+            raise TableFormatError(msg)
+        if crs is not None and layer.crs is not None and not layer.crs.equals(crs):
+            layer = layer.to_crs(crs)
+        layer["x"] = layer.geometry.x
+        layer["y"] = layer.geometry.y
+    frame = pd.DataFrame(layer.drop(columns=layer.geometry.name, errors="ignore"))
+    frame.columns = [str(c).strip() for c in frame.columns]
+    frame.attrs["first_line"] = 1
+    missing = [c for c in ("boring_id", "x", "y", "ground_elev") if c not in frame.columns]
+    if missing:
+        msg = (
+            f"{file}: missing column {', '.join(map(repr, missing))}; expected attributes "
+            f"boring_id, ground_elev and point geometry (or x, y); found "
+            f"{', '.join(frame.columns)}"
+        )
+        raise TableFormatError(msg)
+    if frame.empty:
+        msg = f"{file}: the layer has no features; expected at least one boring"
+        raise TableFormatError(msg)
+    return frame
+
+
 def read_borings(
     path: str | PathLike, *, length_unit: str = "m", crs: pyproj.CRS | None = None
 ) -> pd.DataFrame:
@@ -253,34 +293,8 @@ def read_borings(
         Missing columns, non-numeric cells, empty ids, duplicate boring ids.
     """
     file = Path(path)
-    is_gpkg = file.suffix.lower() == ".gpkg"
-    if is_gpkg and file.is_file():
-        import geopandas as gpd
-
-        layer = gpd.read_file(file)
-        if "x" not in layer.columns and layer.geometry is not None and len(layer):
-            if not all(layer.geometry.geom_type == "Point"):
-                msg = f"{where(file, column='geometry')}: expected point geometries for borings"
-                raise TableFormatError(msg)
-            if crs is not None and layer.crs is not None and not layer.crs.equals(crs):
-                layer = layer.to_crs(crs)
-            layer["x"] = layer.geometry.x
-            layer["y"] = layer.geometry.y
-        frame = pd.DataFrame(layer.drop(columns=layer.geometry.name, errors="ignore"))
-        frame.columns = [str(c).strip() for c in frame.columns]
-        frame.attrs["first_line"] = 1
-        read_table_checks = ["boring_id", "x", "y", "ground_elev"]
-        missing = [c for c in read_table_checks if c not in frame.columns]
-        if missing:
-            msg = (
-                f"{file}: missing column {', '.join(map(repr, missing))}; expected attributes "
-                f"boring_id, ground_elev and point geometry (or x, y); found "
-                f"{', '.join(frame.columns)}"
-            )
-            raise TableFormatError(msg)
-        if frame.empty:
-            msg = f"{file}: the layer has no features; expected at least one boring"
-            raise TableFormatError(msg)
+    if file.suffix.lower() == ".gpkg" and file.is_file():
+        frame = _borings_layer(file, crs)
     else:
         frame = read_table(file, required=["boring_id", "x", "y", "ground_elev"], optional=["date"])
     first = frame.attrs.get("first_line", 2)

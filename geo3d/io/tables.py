@@ -22,6 +22,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from geo3d.geostats.crossval import CrossValidation
 from geo3d.units import from_internal
 
 __all__ = [
@@ -210,7 +211,7 @@ def to_output_units(
         )
         numeric = pd.api.types.is_numeric_dtype(df[column])
         if quantity is not None and numeric and not pd.api.types.is_bool_dtype(df[column]):
-            out[column] = from_internal(df[column].to_numpy(float), unit, quantity)
+            out[column] = from_internal(df[column].to_numpy(float), str(unit), quantity)
         elif quantity is not None:
             continue
         if new != name:
@@ -243,7 +244,7 @@ def mapping_to_output_units(
         )
         number = isinstance(value, int | float | np.number) and not isinstance(value, bool)
         if quantity is not None and number:
-            out[new] = round(float(from_internal(float(value), unit, quantity)), 12)
+            out[new] = round(float(from_internal(float(value), str(unit), quantity)), 12)
         else:
             out[key] = value
     return out
@@ -320,7 +321,7 @@ def write_tables(
     volumes: pd.DataFrame | None = None,
     injection_schedule: pd.DataFrame | None = None,
     injection_summary: Mapping | None = None,
-    crossval: Mapping[str, object] | None = None,
+    crossval: Mapping[str, CrossValidation] | None = None,
     water_levels: pd.DataFrame | None = None,
     calibration: Mapping | None = None,
 ) -> list[Path]:
@@ -361,23 +362,22 @@ def write_tables(
         written.append(write_csv(intervals, out_dir / "intervals.csv", **units))
     if volumes is not None:
         written.append(write_csv(volumes, out_dir / "volumes.csv", **units))
-        written.append(write_json(to_output_units(volumes, **units), out_dir / "volumes.json"))
+        table = to_output_units(volumes, length_unit=length_unit, volume_unit=volume_unit)
+        written.append(write_json(table, out_dir / "volumes.json"))
     if injection_schedule is not None:
         written.append(write_csv(injection_schedule, out_dir / "injection_plan.csv", **units))
-        schedule = to_output_units(injection_schedule, **units)
+        schedule = to_output_units(
+            injection_schedule, length_unit=length_unit, volume_unit=volume_unit
+        )
         if "geometry" in schedule.columns:
             schedule = pd.DataFrame(schedule.drop(columns="geometry"))
         summary = mapping_to_output_units(injection_summary or {}, **units)
         payload = {"summary": summary, "schedule": schedule}
         written.append(write_json(payload, out_dir / "injection_plan.json"))
     if crossval:
-        samples, per_group, summaries = [], [], {}
-        for variable, result in crossval.items():
-            if getattr(result, "samples", None) is not None:
-                samples.append(result.samples.assign(variable=variable))
-            if getattr(result, "per_group", None) is not None:
-                per_group.append(result.per_group.assign(variable=variable))
-            summaries[variable] = getattr(result, "summary", {})
+        samples = [r.samples.assign(variable=v) for v, r in crossval.items()]
+        per_group = [r.per_group.assign(variable=v) for v, r in crossval.items()]
+        summaries = {v: r.summary for v, r in crossval.items()}
         if samples:
             table = pd.concat(samples, ignore_index=True)
             written.append(write_csv(table, out_dir / "crossval.csv", **units))

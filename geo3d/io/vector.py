@@ -234,6 +234,81 @@ def read_boundary(path: str | PathLike, *, crs: pyproj.CRS) -> Polygon:
     return merged
 
 
+def _zone_number(
+    layer: pd.DataFrame, file: Path, column: str, row: int, default: float | None, scale: float
+) -> float:
+    """Read a number of a zone (``default`` when empty), times ``scale``."""
+    value = layer[column].iloc[row] if column in layer.columns else None
+    if value is None or (isinstance(value, float) and math.isnan(value)) or value == "":
+        if default is None:
+            msg = f"{where(file, row=row + 1, column=column)}: empty; expected a number"
+            raise GeometryError(msg)
+        return default
+    try:
+        return float(value) * scale
+    except (TypeError, ValueError):
+        msg = f"{where(file, row=row + 1, column=column)}: {value!r} is not a number"
+        raise GeometryError(msg) from None
+
+
+def _zone_record(
+    layer: pd.DataFrame,
+    file: Path,
+    row: int,
+    length: float,
+    design_fraction: float,
+    radius_of_influence: float,
+) -> dict[str, object]:
+    """Check one zone's attributes and return them in internal units."""
+
+    def number(column: str, default: float | None, scale: float = 1.0) -> float:
+        return _zone_number(layer, file, column, row, default, scale)
+
+    name = layer["name"].iloc[row]
+    if name is None or not str(name).strip():
+        msg = f"{where(file, row=row + 1, column='name')}: empty; expected a zone name"
+        raise GeometryError(msg)
+    reference = "depth"
+    if "reference" in layer.columns and isinstance(layer["reference"].iloc[row], str):
+        reference = layer["reference"].iloc[row].strip().lower() or "depth"
+    if reference not in ("depth", "elevation"):
+        msg = (
+            f"{where(file, row=row + 1, column='reference')}: {reference!r}; expected depth "
+            "or elevation"
+        )
+        raise GeometryError(msg)
+    top = number("top", None, length)
+    bottom = number("bottom", None, length)
+    deeper = bottom > top if reference == "depth" else bottom < top
+    if not deeper:
+        expected = "top < bottom (depths)" if reference == "depth" else "top > bottom"
+        msg = (
+            f"{where(file, row=row + 1, column='bottom')}: zone {name!r} top {top:g} m, "
+            f"bottom {bottom:g} m; expected {expected}"
+        )
+        raise GeometryError(msg)
+    if reference == "depth" and top < 0:
+        msg = f"{where(file, row=row + 1, column='top')}: negative depth; expected >= 0"
+        raise GeometryError(msg)
+    fraction = number("design_fraction", design_fraction)
+    radius = number("radius_of_influence", radius_of_influence, length)
+    if not 0 < fraction <= 1 or radius <= 0:
+        msg = (
+            f"{where(file, row=row + 1)}: zone {name!r} design_fraction {fraction:g}, "
+            f"radius_of_influence {radius:g} m; expected 0 < design_fraction <= 1 and a "
+            "positive radius"
+        )
+        raise GeometryError(msg)
+    return {
+        "name": str(name).strip(),
+        "top": top,
+        "bottom": bottom,
+        "reference": reference,
+        "design_fraction": fraction,
+        "radius_of_influence": radius,
+    }
+
+
 def read_zones(
     path: str | PathLike,
     *,
@@ -286,67 +361,10 @@ def read_zones(
         raise GeometryError(msg)
     geoms = _polygons(layer, path=file, what="zone")
     length = factor(length_unit, "length")
-
-    def number(column: str, row: int, default: float | None, scale: float = 1.0) -> float:
-        value = layer[column].iloc[row] if column in layer.columns else None
-        if value is None or (isinstance(value, float) and math.isnan(value)) or value == "":
-            if default is None:
-                msg = f"{where(file, row=row + 1, column=column)}: empty; expected a number"
-                raise GeometryError(msg)
-            return default
-        try:
-            return float(value) * scale
-        except (TypeError, ValueError):
-            msg = f"{where(file, row=row + 1, column=column)}: {value!r} is not a number"
-            raise GeometryError(msg) from None
-
-    records = []
-    for row in range(len(layer)):
-        name = layer["name"].iloc[row]
-        if name is None or not str(name).strip():
-            msg = f"{where(file, row=row + 1, column='name')}: empty; expected a zone name"
-            raise GeometryError(msg)
-        reference = "depth"
-        if "reference" in layer.columns and isinstance(layer["reference"].iloc[row], str):
-            reference = layer["reference"].iloc[row].strip().lower() or "depth"
-        if reference not in ("depth", "elevation"):
-            msg = (
-                f"{where(file, row=row + 1, column='reference')}: {reference!r}; expected depth "
-                "or elevation"
-            )
-            raise GeometryError(msg)
-        top = number("top", row, None, length)
-        bottom = number("bottom", row, None, length)
-        deeper = bottom > top if reference == "depth" else bottom < top
-        if not deeper:
-            expected = "top < bottom (depths)" if reference == "depth" else "top > bottom"
-            msg = (
-                f"{where(file, row=row + 1, column='bottom')}: zone {name!r} top {top:g} m, "
-                f"bottom {bottom:g} m; expected {expected}"
-            )
-            raise GeometryError(msg)
-        if reference == "depth" and top < 0:
-            msg = f"{where(file, row=row + 1, column='top')}: negative depth; expected >= 0"
-            raise GeometryError(msg)
-        fraction = number("design_fraction", row, design_fraction)
-        radius = number("radius_of_influence", row, radius_of_influence, length)
-        if not 0 < fraction <= 1 or radius <= 0:
-            msg = (
-                f"{where(file, row=row + 1)}: zone {name!r} design_fraction {fraction:g}, "
-                f"radius_of_influence {radius:g} m; expected 0 < design_fraction <= 1 and a "
-                "positive radius"
-            )
-            raise GeometryError(msg)
-        records.append(
-            {
-                "name": str(name).strip(),
-                "top": top,
-                "bottom": bottom,
-                "reference": reference,
-                "design_fraction": fraction,
-                "radius_of_influence": radius,
-            }
-        )
+    records = [
+        _zone_record(layer, file, row, length, design_fraction, radius_of_influence)
+        for row in range(len(layer))
+    ]
     table = pd.DataFrame.from_records(records, columns=list(ZONE_COLUMNS))
     duplicated = table["name"].duplicated(keep=False).to_numpy()
     if duplicated.any():

@@ -57,14 +57,15 @@ logger = logging.getLogger(__name__)
 
 def _cell_sizes(ds: xr.Dataset) -> tuple[float, float, float]:
     attr = ds.attrs.get("cell_size")
-    defaults = (None, None, None)
+    defaults: list[float | None] = [None, None, None]
     if attr is not None:
-        values = [float(v) for v in np.atleast_1d(attr)]
-        defaults = tuple(values + [None] * (3 - len(values)))[:3]
-    return tuple(
+        values: list[float | None] = [float(v) for v in np.atleast_1d(attr)]
+        defaults = (values + [None] * (3 - len(values)))[:3]
+    dx, dy, dz = (
         axis_spacing(ds[name].values, name=name, default=default)
         for name, default in zip(("x", "y", "z"), defaults, strict=True)
     )
+    return dx, dy, dz
 
 
 def _cell_values(da: xr.DataArray) -> np.ndarray:
@@ -112,12 +113,12 @@ def model_to_image(ds: xr.Dataset, *, include_realizations: bool = False) -> pv.
             float(ds["z"].values[0]) - dz / 2.0,
         ),
     )
-    for name, da in ds.data_vars.items():
+    for key, da in ds.data_vars.items():
         if set(da.dims) == {"z", "y", "x"}:
-            image.cell_data[str(name)] = _cell_values(da)
+            image.cell_data[str(key)] = _cell_values(da)
         elif include_realizations and set(da.dims) == {"realization", "z", "y", "x"}:
             for i in range(da.sizes["realization"]):
-                image.cell_data[f"{name}_{i:03d}"] = _cell_values(da.isel(realization=i))
+                image.cell_data[f"{key}_{i:03d}"] = _cell_values(da.isel(realization=i))
     return image
 
 
@@ -299,7 +300,7 @@ def water_table_surface(wt_map: xr.DataArray) -> pv.StructuredGrid:
     grid.point_data["wt_elev"] = values.ravel(order="C")
     hidden = np.flatnonzero(~finite.ravel(order="C"))
     if hidden.size and hidden.size < values.size:
-        grid.hide_points(hidden)
+        grid.hide_points(hidden.tolist())
     return grid
 
 

@@ -146,7 +146,7 @@ def _screen_prediction(groups: list[np.ndarray], a: float, b: float) -> np.ndarr
 
 def _residual_table(slug_tests, groups, predicted, *, physics: tuple[float, float]) -> list[dict]:
     # k_physics: the same screen mean with the physical coefficients (b = 1), for plotting
-    physics_predicted = _screen_prediction(groups, *physics) if groups else []
+    physics_predicted = _screen_prediction(groups, *physics) if groups else np.array([])
     rows = []
     for test, x, pred, phys in zip(
         slug_tests.itertuples(index=False), groups, predicted, physics_predicted, strict=True
@@ -203,10 +203,9 @@ def calibrate(
     min_samples_per_test
         Slug tests whose screen holds fewer usable samples are left out (with a warning).
     slope
-        ``"free"`` fits ``a`` and ``b``; ``"fixed"`` holds ``b = 1`` (the physical slope) and
-        fits ``a``; ``"auto"`` fits both and keeps ``b`` only when it differs from 1 by more
-        than two standard errors (a t-test at about 95 %), else refits with ``b = 1``: with a
-        handful of slug tests the slope is rarely determined well enough to replace physics.
+        ``"free"`` fits ``a`` and ``b``; ``"fixed"`` holds ``b = 1`` (physics) and fits ``a``;
+        ``"auto"`` keeps a fitted ``b`` only when it differs from 1 by more than two standard
+        errors (a t-test at about 95 %): a few slug tests rarely determine the slope.
 
     Returns
     -------

@@ -31,6 +31,81 @@ EC_EXCLUDING_FLAGS: tuple[str, ...] = ("spike",)
 _REQUIRED = ("boring_id", "depth", "elev", "x", "y", "log10_k", "ec")
 
 
+def _prepared(
+    samples: pd.DataFrame,
+    flags: list[str],
+    interval: float,
+    k_excluding: tuple[str, ...],
+    ec_excluding: tuple[str, ...],
+    bound_column: str,
+) -> pd.DataFrame:
+    """Return the samples with their bin, ground, and the values each average may use."""
+    df = samples[[*_REQUIRED, *flags]].copy()
+    depth = df["depth"].to_numpy(dtype=float)
+    # small tolerance so that a sample exactly on a boundary falls in the lower interval
+    df["_bin"] = np.floor(depth / interval + 1e-9).astype(np.int64)
+    df["_ground"] = df["elev"].to_numpy(dtype=float) + depth
+    k_bad = np.zeros(len(df), dtype=bool)
+    for f in k_excluding:
+        if f in df:
+            k_bad |= df[f].to_numpy(dtype=bool)
+    ec_bad = np.zeros(len(df), dtype=bool)
+    for f in ec_excluding:
+        if f in df:
+            ec_bad |= df[f].to_numpy(dtype=bool)
+    df["_k"] = np.where(k_bad, np.nan, df["log10_k"].to_numpy(dtype=float))
+
+    def flag(name: str) -> np.ndarray:
+        return df[name].to_numpy(dtype=bool) if name in df else np.zeros(len(df), dtype=bool)
+
+    above, low, high = flag("above_water"), flag("out_of_range_low"), flag("out_of_range_high")
+    if bound_column in samples.columns:
+        bound = samples[bound_column].to_numpy(dtype=float)
+    else:
+        bound = np.full(len(df), np.nan)
+    df["_bound"] = np.where((low | high) & ~above, bound, np.nan)
+    df["_sat"] = (~above).astype(float)
+    df["_low"] = (low & ~above).astype(float)
+    df["_high"] = (high & ~above).astype(float)
+    df["_ec"] = np.where(ec_bad, np.nan, df["ec"].to_numpy(dtype=float))
+    for f in flags:
+        df[f] = df[f].astype(float)
+    return df
+
+
+#: Aggregates per interval: output column -> (sample column, function).
+_AGGREGATES: dict[str, tuple[str, str]] = {
+    "x": ("x", "first"),
+    "y": ("y", "first"),
+    "_ground": ("_ground", "mean"),
+    "log10_k": ("_k", "mean"),
+    "ec": ("_ec", "mean"),
+    "n_samples": ("depth", "size"),
+    "n_k": ("_k", "count"),
+    "n_ec": ("_ec", "count"),
+    "_bound": ("_bound", "mean"),
+    "_sat": ("_sat", "sum"),
+    "_low": ("_low", "sum"),
+    "_high": ("_high", "sum"),
+}
+
+#: Columns of the intervals table before the flag fractions.
+_COLUMNS = (
+    "boring_id",
+    "x",
+    "y",
+    "top",
+    "bottom",
+    "z_mid",
+    "log10_k",
+    "ec",
+    "n_samples",
+    "n_k",
+    "n_ec",
+    "k_censored",
+)
+
+
 def composite(
     samples: pd.DataFrame,
     *,
@@ -82,51 +157,8 @@ def composite(
         msg = f"[composite] interval: expected a length > 0 m, got {interval}"
         raise LogFormatError(msg)
     flags = [f for f in FLAGS if f in samples.columns]
-    df = samples[[*_REQUIRED, *flags]].copy()
-    depth = df["depth"].to_numpy(dtype=float)
-    # small tolerance so that a sample exactly on a boundary falls in the lower interval
-    df["_bin"] = np.floor(depth / interval + 1e-9).astype(np.int64)
-    df["_ground"] = df["elev"].to_numpy(dtype=float) + depth
-    k_bad = np.zeros(len(df), dtype=bool)
-    for f in k_excluding:
-        if f in df:
-            k_bad |= df[f].to_numpy(dtype=bool)
-    ec_bad = np.zeros(len(df), dtype=bool)
-    for f in ec_excluding:
-        if f in df:
-            ec_bad |= df[f].to_numpy(dtype=bool)
-    df["_k"] = np.where(k_bad, np.nan, df["log10_k"].to_numpy(dtype=float))
-
-    def flag(name: str) -> np.ndarray:
-        return df[name].to_numpy(dtype=bool) if name in df else np.zeros(len(df), dtype=bool)
-
-    above, low, high = flag("above_water"), flag("out_of_range_low"), flag("out_of_range_high")
-    if bound_column in samples.columns:
-        bound = samples[bound_column].to_numpy(dtype=float)
-    else:
-        bound = np.full(len(df), np.nan)
-    df["_bound"] = np.where((low | high) & ~above, bound, np.nan)
-    df["_sat"] = (~above).astype(float)
-    df["_low"] = (low & ~above).astype(float)
-    df["_high"] = (high & ~above).astype(float)
-    df["_ec"] = np.where(ec_bad, np.nan, df["ec"].to_numpy(dtype=float))
-    for f in flags:
-        df[f] = df[f].astype(float)
-
-    agg = {
-        "x": ("x", "first"),
-        "y": ("y", "first"),
-        "_ground": ("_ground", "mean"),
-        "log10_k": ("_k", "mean"),
-        "ec": ("_ec", "mean"),
-        "n_samples": ("depth", "size"),
-        "n_k": ("_k", "count"),
-        "n_ec": ("_ec", "count"),
-        "_bound": ("_bound", "mean"),
-        "_sat": ("_sat", "sum"),
-        "_low": ("_low", "sum"),
-        "_high": ("_high", "sum"),
-    }
+    df = _prepared(samples, flags, interval, k_excluding, ec_excluding, bound_column)
+    agg = dict(_AGGREGATES)
     agg.update({f"frac_{f}": (f, "mean") for f in flags})
     out = df.groupby(["boring_id", "_bin"], sort=True).agg(**agg).reset_index()
     out["top"] = out["_bin"] * interval
@@ -142,19 +174,5 @@ def composite(
         censor, np.where(out["_low"] >= out["_high"], "upper", "lower"), ""
     )
     out["log10_k"] = np.where(censor, out["_bound"], out["log10_k"])
-    columns = [
-        "boring_id",
-        "x",
-        "y",
-        "top",
-        "bottom",
-        "z_mid",
-        "log10_k",
-        "ec",
-        "n_samples",
-        "n_k",
-        "n_ec",
-        "k_censored",
-        *[f"frac_{f}" for f in flags],
-    ]
+    columns = [*_COLUMNS, *[f"frac_{f}" for f in flags]]
     return out[columns].reset_index(drop=True)

@@ -255,6 +255,20 @@ def spike_flags(
     return out
 
 
+def _running_median(
+    values: np.ndarray, groups: np.ndarray, depth: np.ndarray, window: float
+) -> np.ndarray:
+    """Return the running median of ``values`` over ``window`` m of depth in each group."""
+    smoothed = np.full(values.size, np.nan)
+    for gid in np.unique(groups):
+        idx = np.flatnonzero(groups == gid)
+        h = _half_window_samples(depth[idx], window / 2.0)
+        r = values[idx]
+        _, med, _ = hampel(r, half_window=h)
+        smoothed[idx] = np.where(np.isfinite(r), med, np.nan)
+    return smoothed
+
+
 def ionic_flags(
     log10_k,
     ec,
@@ -323,13 +337,8 @@ def ionic_flags(
         resid_fit = residual[fit_set]
         scale = MAD_SCALE * float(np.median(np.abs(resid_fit - np.median(resid_fit))))
         scale = max(scale, 1e-6)
-        smoothed = np.full(lk.size, np.nan)
-        for gid in np.unique(groups):
-            idx = np.flatnonzero(groups == gid)
-            h = _half_window_samples(depth[idx], smooth_window / 2.0)
-            r = np.where(np.isfinite(lk[idx]) & np.isfinite(lec[idx]), residual[idx], np.nan)
-            _, med, _ = hampel(r, half_window=h)
-            smoothed[idx] = np.where(np.isfinite(r), med, np.nan)
+        valid = np.isfinite(lk) & np.isfinite(lec)
+        smoothed = _running_median(np.where(valid, residual, np.nan), groups, depth, smooth_window)
         flags = (smoothed > sigma * scale) & (lk >= transmissive_min) & np.isfinite(lk)
         fit_set = usable & ~flags
         trend = {

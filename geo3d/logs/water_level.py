@@ -35,6 +35,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from numpy.typing import ArrayLike
 from scipy.optimize import curve_fit
 
 from geo3d.errors import Geo3dWarning, WaterLevelError
@@ -135,6 +136,70 @@ def _thirds(t: np.ndarray, p: np.ndarray) -> np.ndarray:
     return values.reshape(3, -1).mean(axis=1)
 
 
+def _record(time_s: ArrayLike, pressure: ArrayLike, *, label: str) -> tuple[np.ndarray, np.ndarray]:
+    """Return the finite readings sorted by time, time counted from the first one."""
+    t = np.asarray(time_s, dtype=float)
+    p = np.asarray(pressure, dtype=float)
+    ok = np.isfinite(t) & np.isfinite(p)
+    t, p = t[ok], p[ok]
+    if t.size < _MIN_POINTS:
+        msg = (
+            f"{label}: {t.size} readings; at least {_MIN_POINTS} are needed to find the "
+            "static pressure"
+        )
+        raise WaterLevelError(msg)
+    order = np.argsort(t, kind="stable")
+    t, p = t[order] - t[order][0], p[order]
+    if t[-1] <= 0:
+        msg = f"{label}: column 'time_s' does not increase; expected readings over time"
+        raise WaterLevelError(msg)
+    return t, p
+
+
+def _fit_exponential(t: np.ndarray, p: np.ndarray, *, label: str) -> tuple[np.ndarray, np.ndarray]:
+    """Fit ``P(t) = P_inf + dP exp(-t/T)``: parameters and their covariance."""
+    guess = (float(p[-1]), float(p[0] - p[-1]), max(t[-1] / 3.0, 1e-3))
+    try:
+        params, covariance = curve_fit(
+            _exponential,
+            t,
+            p,
+            p0=guess,
+            bounds=([-np.inf, -np.inf, 1e-6], [np.inf, np.inf, np.inf]),
+            maxfev=20000,
+        )
+    except (RuntimeError, ValueError) as exc:
+        msg = f"{label}: the exponential fit of the dissipation did not converge ({exc})"
+        raise WaterLevelError(msg) from None
+    return params, covariance
+
+
+def _flat_record(t: np.ndarray, p: np.ndarray, tail_tolerance: float) -> DissipationResult | None:
+    """Return the mean of a record that shows no decay (at equilibrium), else None."""
+    tail = t >= 0.9 * t[-1]
+    if tail.sum() < 3:
+        tail = np.arange(t.size) >= t.size - 3
+    tail_mean = float(p[tail].mean())
+    tail_noise = float(p[tail].std(ddof=1)) if tail.sum() > 2 else 0.0
+    excess0 = p[: max(3, t.size // 20)].mean() - tail_mean
+    if abs(excess0) > max(2.0 * tail_tolerance, 3.0 * tail_noise):
+        return None
+    rmse = float(np.sqrt(np.mean((p - tail_mean) ** 2)))
+    se = float(p.std(ddof=1) / np.sqrt(p.size))
+    return DissipationResult(tail_mean, "tail", 1.0, rmse, float("nan"), float("inf"), se)
+
+
+def _check_aitken(aitken: float, value: float, excess: float, *, label: str) -> None:
+    """Warn when Aitken's three-point estimate disagrees with the static pressure."""
+    if np.isfinite(aitken) and abs(aitken - value) > max(0.5, 0.05 * abs(excess)):
+        warnings.warn(
+            f"{label}: Aitken three-point estimate {aitken:.2f} kPa disagrees with the "
+            f"static pressure {value:.2f} kPa; the decay may not be exponential",
+            Geo3dWarning,
+            stacklevel=3,
+        )
+
+
 def static_pressure(
     time_s,
     pressure,
@@ -146,12 +211,10 @@ def static_pressure(
 ) -> DissipationResult:
     """Find the static pressure of one dissipation record.
 
-    The record is fitted with ``P(t) = P_inf + dP * exp(-t/T)`` by nonlinear least squares
-    (:func:`scipy.optimize.curve_fit`).  When the fitted excess is within ``tail_tolerance`` at
-    three readings or more, the record has reached equilibrium and those settled readings are
-    averaged; otherwise ``P_inf`` of the fit is used.  Aitken's formula on the mean pressures
-    of the record's three thirds (exact for an exponential, and robust to sensor noise) is
-    computed as a cross-check.
+    The record is fitted with ``P(t) = P_inf + dP * exp(-t/T)`` (nonlinear least squares).
+    When the fitted excess is within ``tail_tolerance`` at three readings or more, those settled
+    readings are averaged; otherwise ``P_inf`` is used.  Aitken's formula on the mean pressures
+    of the record's three thirds (exact for an exponential) is a cross-check.
 
     Parameters
     ----------
@@ -175,63 +238,23 @@ def static_pressure(
     Raises
     ------
     WaterLevelError
-        If the record has too few readings, no usable decay, or dissipated less than
-        ``min_fraction_dissipated``.
+        Too few readings, no usable decay, or less than ``min_fraction_dissipated`` dissipated.
 
     References
     ----------
-    .. [1] Hvorslev (1951), Bulletin 36 (exponential time lag).
-    .. [2] Aitken (1926), delta-squared extrapolation.
+    .. [1] Hvorslev (1951), Bulletin 36 (exponential time lag); Aitken (1926), delta-squared
+       extrapolation.
     """
-    t = np.asarray(time_s, dtype=float)
-    p = np.asarray(pressure, dtype=float)
-    ok = np.isfinite(t) & np.isfinite(p)
-    t, p = t[ok], p[ok]
-    if t.size < _MIN_POINTS:
-        msg = (
-            f"{label}: {t.size} readings; at least {_MIN_POINTS} are needed to find the "
-            "static pressure"
-        )
-        raise WaterLevelError(msg)
-    order = np.argsort(t, kind="stable")
-    t, p = t[order] - t[order][0], p[order]
+    t, p = _record(time_s, pressure, label=label)
     duration = t[-1]
-    if duration <= 0:
-        msg = f"{label}: column 'time_s' does not increase; expected readings over time"
-        raise WaterLevelError(msg)
-
-    tail = t >= 0.9 * duration
-    if tail.sum() < 3:
-        tail = np.arange(t.size) >= t.size - 3
-    tail_mean = float(p[tail].mean())
-    tail_noise = float(p[tail].std(ddof=1)) if tail.sum() > 2 else 0.0
-    excess0 = p[: max(3, t.size // 20)].mean() - tail_mean
-    flat_tol = max(2.0 * tail_tolerance, 3.0 * tail_noise)
-    if abs(excess0) <= flat_tol:
-        rmse = float(np.sqrt(np.mean((p - tail_mean) ** 2)))
-        se = float(p.std(ddof=1) / np.sqrt(p.size))
-        return DissipationResult(tail_mean, "tail", 1.0, rmse, float("nan"), float("inf"), se)
-
-    guess = (float(p[-1]), float(p[0] - p[-1]), max(duration / 3.0, 1e-3))
-    try:
-        params, covariance = curve_fit(
-            _exponential,
-            t,
-            p,
-            p0=guess,
-            bounds=([-np.inf, -np.inf, 1e-6], [np.inf, np.inf, np.inf]),
-            maxfev=20000,
-        )
-    except (RuntimeError, ValueError) as exc:
-        msg = f"{label}: the exponential fit of the dissipation did not converge ({exc})"
-        raise WaterLevelError(msg) from None
+    flat = _flat_record(t, p, tail_tolerance)
+    if flat is not None:
+        return flat
+    params, covariance = _fit_exponential(t, p, label=label)
     p_inf, excess, time_constant = (float(v) for v in params)
-    residual = p - _exponential(t, *params)
-    rmse = float(np.sqrt(np.mean(residual**2)))
+    rmse = float(np.sqrt(np.mean((p - _exponential(t, *params)) ** 2)))
     fraction = float(1.0 - np.exp(-duration / time_constant))
-
     aitken = aitken_extrapolation(*_thirds(t, p))
-
     if fraction < min_fraction_dissipated:
         msg = (
             f"{label}: only {fraction:.0%} of the excess pressure dissipated during the "
@@ -239,7 +262,6 @@ def static_pressure(
             f"{min_fraction_dissipated:.0%}: record too short to extrapolate with confidence"
         )
         raise WaterLevelError(msg)
-
     settled = abs(excess) * np.exp(-t / time_constant) <= tail_tolerance
     if settled.sum() >= 3:
         method, value = "tail", float(p[settled].mean())
@@ -248,19 +270,12 @@ def static_pressure(
         method, value = "exponential", p_inf
         se = float(np.sqrt(covariance[0, 0])) if np.isfinite(covariance[0, 0]) else np.nan
         if fraction < warn_fraction_dissipated:
-            warnings.warn(
+            msg = (
                 f"{label}: record stopped at {fraction:.0%} dissipation; static pressure "
-                f"extrapolated to {p_inf:.2f} kPa (fit RMSE {rmse:.2f} kPa)",
-                Geo3dWarning,
-                stacklevel=2,
+                f"extrapolated to {p_inf:.2f} kPa (fit RMSE {rmse:.2f} kPa)"
             )
-    if np.isfinite(aitken) and abs(aitken - value) > max(0.5, 0.05 * abs(excess)):
-        warnings.warn(
-            f"{label}: Aitken three-point estimate {aitken:.2f} kPa disagrees with the "
-            f"static pressure {value:.2f} kPa; the decay may not be exponential",
-            Geo3dWarning,
-            stacklevel=2,
-        )
+            warnings.warn(msg, Geo3dWarning, stacklevel=2)
+    _check_aitken(aitken, value, excess, label=label)
     logger.debug(
         "%s: p_static %.3f kPa by %s (%.0f%% dissipated)", label, value, method, 100 * fraction
     )
@@ -305,6 +320,33 @@ LEVEL_COLUMNS = [
     "aitken",
     "p_static_se",
 ]
+
+
+def _level_row(
+    boring_id: str,
+    test_id: int,
+    boring: pd.Series,
+    depth: float,
+    result: DissipationResult,
+    atm: float,
+) -> dict[str, Any]:
+    """Return one row of the water-level table from a test's static pressure."""
+    dtw = depth_to_water(depth, result.p_static, atm)
+    return {
+        "boring_id": boring_id,
+        "test_id": test_id,
+        "x": float(boring["x"]),
+        "y": float(boring["y"]),
+        "depth": depth,
+        "p_static": result.p_static,
+        "depth_to_water": dtw,
+        "wt_elev": float(boring["ground_elev"]) - dtw,
+        "fraction_dissipated": result.fraction_dissipated,
+        "method": result.method,
+        "fit_rmse": result.fit_rmse,
+        "aitken": result.aitken,
+        "p_static_se": result.p_static_se,
+    }
 
 
 def water_levels(
@@ -373,24 +415,8 @@ def water_levels(
             warnings.warn(f"left out: {exc}", Geo3dWarning, stacklevel=2)
             continue
         depth = float(record["depth"].median())
-        dtw = depth_to_water(depth, result.p_static, atm)
-        boring = where_boring.loc[boring_id]
         rows.append(
-            {
-                "boring_id": boring_id,
-                "test_id": int(test_id),
-                "x": float(boring["x"]),
-                "y": float(boring["y"]),
-                "depth": depth,
-                "p_static": result.p_static,
-                "depth_to_water": dtw,
-                "wt_elev": float(boring["ground_elev"]) - dtw,
-                "fraction_dissipated": result.fraction_dissipated,
-                "method": result.method,
-                "fit_rmse": result.fit_rmse,
-                "aitken": result.aitken,
-                "p_static_se": result.p_static_se,
-            }
+            _level_row(boring_id, int(test_id), where_boring.loc[boring_id], depth, result, atm)
         )
     if not rows:
         msg = "no dissipation test could be trusted: " + "; ".join(refused)

@@ -16,10 +16,12 @@ Nuñez et al. 2018).
 from __future__ import annotations
 
 import base64
+import functools
 import io
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import matplotlib
 
@@ -28,8 +30,9 @@ matplotlib.use("Agg", force=False)
 import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 import xarray as xr  # noqa: E402
+from matplotlib.artist import Artist  # noqa: E402
 from matplotlib.backends.backend_agg import FigureCanvasAgg  # noqa: E402
-from matplotlib.colors import BoundaryNorm, ListedColormap  # noqa: E402
+from matplotlib.colors import BoundaryNorm, Colormap, ListedColormap  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.lines import Line2D  # noqa: E402
 from matplotlib.patches import Patch, Rectangle  # noqa: E402
@@ -87,7 +90,7 @@ def facies_colors(n_classes: int) -> list[str]:
     return [facies_colour(code) for code in range(n_classes)]
 
 
-def _facies_cmap(names: Sequence[str]) -> tuple[ListedColormap, BoundaryNorm]:
+def _facies_cmap(names: Sequence[str]) -> tuple[Colormap, BoundaryNorm]:
     colors = facies_colors(len(names))
     cmap = ListedColormap(colors).with_extremes(bad=(1.0, 1.0, 1.0, 0.0))
     norm = BoundaryNorm(np.arange(-0.5, len(names) + 0.5), cmap.N)
@@ -269,6 +272,60 @@ class SectionLine:
         return math.hypot(self.end[0] - self.start[0], self.end[1] - self.start[1])
 
 
+def _draw_zones(ax: Any, zones: pd.DataFrame) -> None:
+    """Fill the treatment zones, hatched, and name each one."""
+    for index, zone in enumerate(zones.itertuples(index=False)):
+        geom = zone.geometry
+        for poly in getattr(geom, "geoms", [geom]):
+            xs, ys = poly.exterior.xy
+            ax.fill(
+                xs,
+                ys,
+                facecolor=_ZONE_COLOR,
+                alpha=0.18,
+                edgecolor=_ZONE_COLOR,
+                linewidth=1.2,
+                hatch="//",
+            )
+        centre = geom.representative_point()
+        name = getattr(zone, "name", None) or f"zone {index + 1}"
+        ax.annotate(
+            str(name),
+            (centre.x, centre.y),
+            ha="center",
+            va="center",
+            fontsize=8,
+            fontweight="bold",
+            color="#6b2d55",
+            bbox={"boxstyle": "round,pad=0.2", "fc": "white", "ec": _ZONE_COLOR, "alpha": 0.9},
+            zorder=8,
+        )
+
+
+def _draw_section_line(ax: Any, line: SectionLine) -> None:
+    """Draw a section line with its end labels."""
+    ax.plot(
+        [line.start[0], line.end[0]],
+        [line.start[1], line.end[1]],
+        color=_SECTION_COLOR,
+        linewidth=1.6,
+        linestyle="--",
+        zorder=3,
+    )
+    for label, point in ((line.name, line.start), (line.name + "'", line.end)):
+        ax.annotate(
+            label,
+            point,
+            fontsize=9,
+            fontweight="bold",
+            color="#8a5a00",
+            ha="center",
+            va="center",
+            bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": _SECTION_COLOR},
+            zorder=7,
+        )
+
+
 def site_map_figure(
     *,
     boundary=None,
@@ -301,37 +358,12 @@ def site_map_figure(
     """
     fig = new_figure(7.0, 6.0)
     ax = fig.add_subplot()
-    handles = []
+    handles: list[Artist] = []
     _plot_polygon(ax, boundary, color="0.2", linewidth=1.4)
     if boundary is not None and not getattr(boundary, "is_empty", True):
         handles.append(Line2D([], [], color="0.2", linewidth=1.4, label="site boundary"))
     if zones is not None and len(zones) > 0:
-        for index, zone in enumerate(zones.itertuples(index=False)):
-            geom = zone.geometry
-            for poly in getattr(geom, "geoms", [geom]):
-                xs, ys = poly.exterior.xy
-                ax.fill(
-                    xs,
-                    ys,
-                    facecolor=_ZONE_COLOR,
-                    alpha=0.18,
-                    edgecolor=_ZONE_COLOR,
-                    linewidth=1.2,
-                    hatch="//",
-                )
-            centre = geom.representative_point()
-            name = getattr(zone, "name", None) or f"zone {index + 1}"
-            ax.annotate(
-                str(name),
-                (centre.x, centre.y),
-                ha="center",
-                va="center",
-                fontsize=8,
-                fontweight="bold",
-                color="#6b2d55",
-                bbox={"boxstyle": "round,pad=0.2", "fc": "white", "ec": _ZONE_COLOR, "alpha": 0.9},
-                zorder=8,
-            )
+        _draw_zones(ax, zones)
         handles.append(
             Patch(facecolor=_ZONE_COLOR, alpha=0.3, edgecolor=_ZONE_COLOR, label="treatment zone")
         )
@@ -359,26 +391,7 @@ def site_map_figure(
             )
         )
     for line in sections:
-        ax.plot(
-            [line.start[0], line.end[0]],
-            [line.start[1], line.end[1]],
-            color=_SECTION_COLOR,
-            linewidth=1.6,
-            linestyle="--",
-            zorder=3,
-        )
-        for label, point in ((line.name, line.start), (line.name + "'", line.end)):
-            ax.annotate(
-                label,
-                point,
-                fontsize=9,
-                fontweight="bold",
-                color="#8a5a00",
-                ha="center",
-                va="center",
-                bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": _SECTION_COLOR},
-                zorder=7,
-            )
+        _draw_section_line(ax, line)
     if sections:
         handles.append(Line2D([], [], color=_SECTION_COLOR, linestyle="--", label="section"))
     _plot_borings(ax, borings)
@@ -448,7 +461,8 @@ def map_panels_figure(
         ax.set_title(title, fontsize=9, loc="left")
     for ax in axes[1:]:
         ax.set_ylabel("")
-    fig.colorbar(mesh, ax=list(axes), label=units, shrink=0.85)
+    if mesh is not None:
+        fig.colorbar(mesh, ax=list(axes), label=units, shrink=0.85)
     return fig
 
 
@@ -458,6 +472,32 @@ def _edges(centres: np.ndarray) -> np.ndarray:
     mid = 0.5 * (centres[1:] + centres[:-1])
     return np.concatenate(
         [[centres[0] - (mid[0] - centres[0])], mid, [centres[-1] + (centres[-1] - mid[-1])]]
+    )
+
+
+def _draw_gradient(ax: Any, gradient: float, flow_direction_deg: float) -> None:
+    """Draw the flow direction as an arrow in the middle of the map, with the gradient."""
+    dx, dy = azimuth_vector(float(flow_direction_deg))
+    ax.annotate(
+        "",
+        xy=(0.5 + 0.18 * dx, 0.5 + 0.18 * dy),
+        xytext=(0.5 - 0.18 * dx, 0.5 - 0.18 * dy),
+        xycoords="axes fraction",
+        arrowprops={
+            "arrowstyle": "-|>,head_width=0.5,head_length=0.9",
+            "lw": 3.0,
+            "color": OKABE_ITO["vermillion"],
+        },
+        zorder=8,
+    )
+    ax.text(
+        0.02,
+        0.98,
+        f"gradient {gradient:.2e} m/m toward {flow_direction_deg:.0f}\u00b0",
+        transform=ax.transAxes,
+        va="top",
+        fontsize=8,
+        bbox={"fc": "white", "ec": "0.6", "alpha": 0.9},
     )
 
 
@@ -536,28 +576,7 @@ def water_table_figure(
         and np.isfinite(flow_direction_deg)
         and gradient > 0
     ):
-        dx, dy = azimuth_vector(float(flow_direction_deg))
-        ax.annotate(
-            "",
-            xy=(0.5 + 0.18 * dx, 0.5 + 0.18 * dy),
-            xytext=(0.5 - 0.18 * dx, 0.5 - 0.18 * dy),
-            xycoords="axes fraction",
-            arrowprops={
-                "arrowstyle": "-|>,head_width=0.5,head_length=0.9",
-                "lw": 3.0,
-                "color": OKABE_ITO["vermillion"],
-            },
-            zorder=8,
-        )
-        ax.text(
-            0.02,
-            0.98,
-            f"gradient {gradient:.2e} m/m toward {flow_direction_deg:.0f}\u00b0",
-            transform=ax.transAxes,
-            va="top",
-            fontsize=8,
-            bbox={"fc": "white", "ec": "0.6", "alpha": 0.9},
-        )
+        _draw_gradient(ax, float(gradient), float(flow_direction_deg))
     _plan_axes(ax, crs_label)
     return fig
 
@@ -936,6 +955,76 @@ def project_intervals(
     return out
 
 
+def _facies_colour_of(row: Any, *, colours: Sequence[str]) -> Any:
+    code = getattr(row, "facies_code", np.nan)
+    return colours[int(code)] if pd.notna(code) and 0 <= int(code) < len(colours) else "0.5"
+
+
+def _k_colour_of(row: Any, *, mesh: Any) -> Any:
+    return mesh.cmap(mesh.norm(getattr(row, "log10_k", np.nan)))
+
+
+def _draw_projected(
+    ax: Any, projected: pd.DataFrame, *, width: float, colour: Callable[[Any], Any]
+) -> None:
+    """Draw the projected intervals as narrow columns, outline each boring and name it."""
+    for row in projected.itertuples(index=False):
+        ax.bar(
+            row.distance,
+            row.z_top - row.z_bottom,
+            bottom=row.z_bottom,
+            width=width,
+            color=colour(row),
+            edgecolor="none",
+            linewidth=0,
+        )
+    tops = projected.groupby("boring_id").agg(
+        distance=("distance", "mean"),
+        z_top=("z_top", "max"),
+        z_bottom=("z_bottom", "min"),
+    )
+    for row in tops.itertuples():
+        ax.add_patch(
+            Rectangle(
+                (row.distance - width / 2, row.z_bottom),
+                width,
+                row.z_top - row.z_bottom,
+                fill=False,
+                edgecolor="black",
+                linewidth=0.7,
+                zorder=5,
+            )
+        )
+    for boring_id, top in tops.iterrows():
+        ax.annotate(
+            str(boring_id),
+            (top.distance, top.z_top),
+            xytext=(0, 2),
+            textcoords="offset points",
+            ha="center",
+            fontsize=6,
+            rotation=90,
+            va="bottom",
+        )
+
+
+def _frame_section(ax: Any, name: str, d_edges: np.ndarray, z_edges: np.ndarray) -> None:
+    """Name the section's ends above the panel and fit the axes to the section."""
+    for x, text, align in ((0.0, name, "left"), (1.0, name + "'", "right")):
+        ax.text(
+            x,
+            1.01,
+            text,
+            transform=ax.transAxes,
+            fontsize=10,
+            fontweight="bold",
+            va="bottom",
+            ha=align,
+        )
+    ax.set_ylim(z_edges[0], z_edges[-1] + 0.04 * (z_edges[-1] - z_edges[0]))
+    ax.set_xlim(d_edges[0], d_edges[-1])
+
+
 def section_figure(
     section: xr.Dataset,
     *,
@@ -990,62 +1079,12 @@ def section_figure(
             fig.colorbar(mesh, ax=ax, label="log10 K (m/s)", shrink=0.9)
             ax.set_title(f"log10 K, section {line.name}-{line.name}'", fontsize=9)
         if projected is not None and len(projected):
-            for row in projected.itertuples(index=False):
-                if name == "facies_code":
-                    code = getattr(row, "facies_code", np.nan)
-                    color = (
-                        facies_colors(len(facies_names))[int(code)]
-                        if pd.notna(code) and 0 <= int(code) < len(facies_names)
-                        else "0.5"
-                    )
-                    ax.bar(
-                        row.distance,
-                        row.z_top - row.z_bottom,
-                        bottom=row.z_bottom,
-                        width=width,
-                        color=color,
-                        edgecolor="none",
-                        linewidth=0,
-                    )
-                else:
-                    value = getattr(row, "log10_k", np.nan)
-                    ax.bar(
-                        row.distance,
-                        row.z_top - row.z_bottom,
-                        bottom=row.z_bottom,
-                        width=width,
-                        color=mesh.cmap(mesh.norm(value)),
-                        edgecolor="none",
-                        linewidth=0,
-                    )
-            tops = projected.groupby("boring_id").agg(
-                distance=("distance", "mean"),
-                z_top=("z_top", "max"),
-                z_bottom=("z_bottom", "min"),
+            colour = (
+                functools.partial(_facies_colour_of, colours=facies_colors(len(facies_names)))
+                if name == "facies_code"
+                else functools.partial(_k_colour_of, mesh=mesh)
             )
-            for row in tops.itertuples():
-                ax.add_patch(
-                    Rectangle(
-                        (row.distance - width / 2, row.z_bottom),
-                        width,
-                        row.z_top - row.z_bottom,
-                        fill=False,
-                        edgecolor="black",
-                        linewidth=0.7,
-                        zorder=5,
-                    )
-                )
-            for boring_id, row in tops.iterrows():
-                ax.annotate(
-                    str(boring_id),
-                    (row.distance, row.z_top),
-                    xytext=(0, 2),
-                    textcoords="offset points",
-                    ha="center",
-                    fontsize=6,
-                    rotation=90,
-                    va="bottom",
-                )
+            _draw_projected(ax, projected, width=width, colour=colour)
         if water_table is not None:
             ax.plot(
                 distance,
@@ -1058,28 +1097,7 @@ def section_figure(
         ax.set_ylabel("elevation (m)")
         ax.tick_params(labelsize=7)
     for ax in axes:
-        ax.text(
-            0.0,
-            1.01,
-            line.name,
-            transform=ax.transAxes,
-            fontsize=10,
-            fontweight="bold",
-            va="bottom",
-            ha="left",
-        )
-        ax.text(
-            1.0,
-            1.01,
-            line.name + "'",
-            transform=ax.transAxes,
-            fontsize=10,
-            fontweight="bold",
-            va="bottom",
-            ha="right",
-        )
-        ax.set_ylim(z_edges[0], z_edges[-1] + 0.04 * (z_edges[-1] - z_edges[0]))
-        ax.set_xlim(d_edges[0], d_edges[-1])
+        _frame_section(ax, line.name, d_edges, z_edges)
     axes[1].set_xlabel("distance along the section (m)")
     return fig
 

@@ -29,6 +29,7 @@ from typing import Any
 import geopandas as gpd
 import numpy as np
 import pandas as pd
+import pyproj
 import xarray as xr
 
 import geo3d
@@ -341,18 +342,11 @@ class _Context:
         return None if self.logs is None else self.logs.samples
 
 
-def _crs_label(crs: Any) -> str:
+def _crs_label(crs: pyproj.CRS | None) -> str:
     if crs is None:
         return "CRS not given"
-    name = getattr(crs, "name", None) or str(crs)
-    epsg = None
-    to_epsg = getattr(crs, "to_epsg", None)
-    if callable(to_epsg):
-        try:
-            epsg = to_epsg()
-        except Exception:  # a custom WKT has no code
-            epsg = None
-    return f"{name} (EPSG:{epsg})" if epsg else str(name)
+    epsg = crs.to_epsg()  # None for a custom WKT
+    return f"{crs.name} (EPSG:{epsg})" if epsg else str(crs.name)
 
 
 # --------------------------------------------------------------------------- sections
@@ -364,7 +358,7 @@ def _section_read_first(ctx: _Context) -> str:
 
 
 def _injection_points(ctx: _Context) -> list[tuple[float, float]]:
-    points = []
+    points: list[tuple[float, float]] = []
     for plan in ctx.results.injection.values():
         frame = plan.points
         if frame is None or not len(frame):
@@ -398,7 +392,7 @@ def _section_site(ctx: _Context) -> str:
             f"{_esc(ctx.crs_label)}.",
         )
     )
-    if n_borings:
+    if ctx.borings is not None and n_borings:
         columns = [c for c in ("boring_id", "x", "y", "ground_elev", "date") if c in ctx.borings]
         table = ctx.borings[columns].copy()
         intervals = ctx.intervals
@@ -730,14 +724,17 @@ def _section_maps(ctx: _Context) -> str:
     for key in order:
         grid = given[key]
         label = next((text for k, text, _ in _MAIN_MAPS if k == key), key.replace("_", " "))
+        units: str
+        vmin: float | None
+        vmax: float | None
         if "prob" in key:
             units, cmap, vmin, vmax = "probability", "cividis", 0.0, 1.0
             caption = f"{_esc(label)}: probability from the conditional simulations" + (
                 ", averaged over the column" if key.startswith("mean_prob_") else ""
             )
         else:
-            units = next((u for k, _, u in _MAIN_MAPS if k == key), None)
-            units = units or str(grid.attrs.get("units", "m"))
+            known_units = next((u for k, _, u in _MAIN_MAPS if k == key), None)
+            units = known_units or str(grid.attrs.get("units", "m"))
             cmap, vmax = "viridis", None
             vmin = 0.0 if "thick" in key else None
             caption = f"{_esc(label)} ({_esc(units)})"

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import io
 import warnings
+from typing import Any
 
 import matplotlib
 
@@ -88,6 +89,57 @@ def _mark_flags(ax, depth, values, samples: pd.DataFrame, flags) -> list:
     return handles
 
 
+def _pressure_panel(ax_p: Any, axes: Any, s: pd.DataFrame, depth: np.ndarray) -> None:
+    """Draw the recorded pressure and its atmospheric and hydrostatic parts; the water table."""
+    ax_p.plot(s["pressure"], depth, color=OKABE_ITO["black"], lw=0.7, label="recorded")
+    if {"p_atm", "p_hydrostatic"} <= set(s.columns):
+        ax_p.plot(
+            s["p_atm"] + s["p_hydrostatic"],
+            depth,
+            color=OKABE_ITO["sky_blue"],
+            lw=1.2,
+            ls="--",
+            label="atmospheric + hydrostatic",
+        )
+    if "depth_to_water" in s and len(s):
+        dtw = float(s["depth_to_water"].iloc[0])
+        for ax in axes[:4]:
+            ax.axhline(dtw, color=OKABE_ITO["blue"], lw=0.8, ls=":")
+        ax_p.annotate(
+            "water table",
+            (1.0, dtw),
+            xycoords=("axes fraction", "data"),
+            ha="right",
+            va="bottom",
+            fontsize=7,
+            color=OKABE_ITO["blue"],
+        )
+    ax_p.set_xlabel("pressure (kPa)")
+    ax_p.set_ylabel("depth (m)")
+    ax_p.legend(loc="lower left", fontsize=7)
+
+
+def _facies_strip(ax_f: Any, intervals_of_boring: pd.DataFrame) -> None:
+    """Draw the hydrofacies of the intervals as coloured bands, with a legend."""
+    legend: dict[int, Patch] = {}
+    for row in intervals_of_boring.itertuples(index=False):
+        code = int(getattr(row, "facies_code", -1))
+        colour = facies_colour(code)
+        ax_f.axhspan(row.top, row.bottom, color=colour, lw=0)
+        name = str(getattr(row, "facies", "")) or "unclassified"
+        legend.setdefault(code, Patch(color=colour, label=name))
+    ax_f.set_xticks([])
+    ax_f.set_xlabel("facies")
+    if legend:
+        ax_f.legend(
+            handles=[legend[c] for c in sorted(legend)],
+            loc="upper left",
+            bbox_to_anchor=(1.0, 1.0),
+            fontsize=7,
+            frameon=False,
+        )
+
+
 def log_figure(
     samples_of_boring: pd.DataFrame,
     intervals_of_boring: pd.DataFrame,
@@ -123,32 +175,7 @@ def log_figure(
     )
     ax_p, ax_net, ax_k, ax_ec, ax_f = axes
 
-    ax_p.plot(s["pressure"], depth, color=OKABE_ITO["black"], lw=0.7, label="recorded")
-    if {"p_atm", "p_hydrostatic"} <= set(s.columns):
-        ax_p.plot(
-            s["p_atm"] + s["p_hydrostatic"],
-            depth,
-            color=OKABE_ITO["sky_blue"],
-            lw=1.2,
-            ls="--",
-            label="atmospheric + hydrostatic",
-        )
-    if "depth_to_water" in s and len(s):
-        dtw = float(s["depth_to_water"].iloc[0])
-        for ax in axes[:4]:
-            ax.axhline(dtw, color=OKABE_ITO["blue"], lw=0.8, ls=":")
-        ax_p.annotate(
-            "water table",
-            (1.0, dtw),
-            xycoords=("axes fraction", "data"),
-            ha="right",
-            va="bottom",
-            fontsize=7,
-            color=OKABE_ITO["blue"],
-        )
-    ax_p.set_xlabel("pressure (kPa)")
-    ax_p.set_ylabel("depth (m)")
-    ax_p.legend(loc="lower left", fontsize=7)
+    _pressure_panel(ax_p, axes, s, depth)
 
     if "p_net" in s:
         p_net = s["p_net"].to_numpy(dtype=float)
@@ -181,23 +208,7 @@ def log_figure(
     if handles:
         ax_ec.legend(handles=handles, loc="lower right", fontsize=7)
 
-    legend = {}
-    for row in intervals_of_boring.itertuples(index=False):
-        code = int(getattr(row, "facies_code", -1))
-        colour = facies_colour(code)
-        ax_f.axhspan(row.top, row.bottom, color=colour, lw=0)
-        name = str(getattr(row, "facies", "")) or "unclassified"
-        legend.setdefault(code, Patch(color=colour, label=name))
-    ax_f.set_xticks([])
-    ax_f.set_xlabel("facies")
-    if legend:
-        ax_f.legend(
-            handles=[legend[c] for c in sorted(legend)],
-            loc="upper left",
-            bbox_to_anchor=(1.0, 1.0),
-            fontsize=7,
-            frameon=False,
-        )
+    _facies_strip(ax_f, intervals_of_boring)
 
     if depth.size:
         ax_p.set_ylim(float(np.nanmax(depth)) + 0.1, max(0.0, float(np.nanmin(depth)) - 0.1))

@@ -15,6 +15,7 @@ import io
 import logging
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -102,6 +103,51 @@ def _boring_tubes(intervals: pd.DataFrame, radius: float):
     return blocks
 
 
+def _quiet_vtk() -> None:
+    """Keep VTK's warnings out of the terminal.
+
+    Off screen, VTK first tries an X display and logs a warning when there is none before it
+    falls back to an off-screen context.
+    """
+    import vtk
+
+    vtk.vtkLogger.SetStderrVerbosity(vtk.vtkLogger.VERBOSITY_ERROR)
+
+
+def _screenshot(plotter: Any) -> Any:
+    """Set the oblique camera of the view and take the picture."""
+    plotter.add_axes(color="black")
+    plotter.camera_position = "iso"
+    plotter.camera.azimuth = -25.0
+    plotter.camera.elevation = 10.0
+    plotter.reset_camera()
+    plotter.camera.zoom(1.15)
+    return plotter.screenshot(return_img=True)
+
+
+def _add_facies(
+    plotter: Any, image: Any, facies_names: Sequence[str], colors: Sequence[str]
+) -> list[str]:
+    """Add the lowest- and highest-K hydrofacies as surfaces; return the names drawn."""
+    shown = []
+    last = len(facies_names) - 1
+    for code, opacity in ((0, 0.9), (last, 0.3)) if last > 0 else ((0, 0.8),):
+        part = image.threshold(
+            value=(code - 0.5, code + 0.5), scalars="facies_code", preference="cell"
+        )
+        if part.n_cells == 0:
+            continue
+        plotter.add_mesh(
+            part.extract_surface(algorithm="dataset_surface"),
+            color=colors[code],
+            opacity=opacity,
+            label=facies_names[code],
+            show_scalar_bar=False,
+        )
+        shown.append(facies_names[code])
+    return shown
+
+
 def render_model_view(
     model: xr.Dataset,
     *,
@@ -138,9 +184,7 @@ def render_model_view(
     if "facies_code" not in model or not len(facies_names):
         msg = "the voxel model has no hydrofacies to draw"
         raise View3DUnavailable(msg)
-    exaggeration = (
-        default_exaggeration(model) if vertical_exaggeration is None else vertical_exaggeration
-    )
+    exaggeration = vertical_exaggeration or default_exaggeration(model)
     try:
         import pyvista as pv
     except ImportError as exc:  # pyvista is a dependency, but a broken install must not crash
@@ -152,33 +196,17 @@ def render_model_view(
         msg = "the voxel model has no classified cell"
         raise View3DUnavailable(msg)
     last = len(facies_names) - 1
-    shown = []
-    plotter = None
+    shown: list[str] = []
+    # Any: pyvista types its decorated Plotter methods as plain functions
+    plotter: Any = None
     try:
-        # Off screen, VTK first tries an X display and logs a warning when there is none
-        # before it falls back to an off-screen context: keep that out of the user's terminal.
-        import vtk
-
-        vtk.vtkLogger.SetStderrVerbosity(vtk.vtkLogger.VERBOSITY_ERROR)
+        _quiet_vtk()
         plotter = pv.Plotter(off_screen=True, window_size=list(window_size))
         plotter.set_background("white")
         inside = image.threshold(value=(-0.5, last + 0.5), scalars="facies_code", preference="cell")
         if inside.n_cells:
             plotter.add_mesh(inside.outline(), color="#444444", line_width=1.5)
-        for code, opacity in ((0, 0.9), (last, 0.3)) if last > 0 else ((0, 0.8),):
-            part = image.threshold(
-                value=(code - 0.5, code + 0.5), scalars="facies_code", preference="cell"
-            )
-            if part.n_cells == 0:
-                continue
-            plotter.add_mesh(
-                part.extract_surface(algorithm="dataset_surface"),
-                color=colors[code],
-                opacity=opacity,
-                label=facies_names[code],
-                show_scalar_bar=False,
-            )
-            shown.append(facies_names[code])
+        shown = _add_facies(plotter, image, facies_names, colors)
         if intervals is not None and len(intervals):
             cell = float(np.nanmean(image.spacing[:2]))
             for tube in _boring_tubes(intervals, radius=max(cell * 0.35, 0.05)):
@@ -186,13 +214,7 @@ def render_model_view(
         plotter.set_scale(zscale=exaggeration)
         if shown:
             plotter.add_legend(bcolor="white", face="rectangle", size=(0.2, 0.08), loc="upper left")
-        plotter.add_axes(color="black")
-        plotter.camera_position = "iso"
-        plotter.camera.azimuth = -25.0
-        plotter.camera.elevation = 10.0
-        plotter.reset_camera()
-        plotter.camera.zoom(1.15)
-        picture = plotter.screenshot(return_img=True)
+        picture = _screenshot(plotter)
     except View3DUnavailable:
         raise
     except Exception as exc:  # VTK raises assorted errors when no OpenGL context exists
