@@ -29,6 +29,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -107,7 +108,7 @@ class Body:
 
     style: str
     lithology: tuple[int, ...]
-    params: dict[str, float | tuple[float, ...]] = field(default_factory=dict)
+    params: dict[str, Any] = field(default_factory=dict)
     surface: Surface | None = None
 
     def describe(self) -> dict:
@@ -126,7 +127,7 @@ def _rotate(x: np.ndarray, y: np.ndarray, cx: float, cy: float, azimuth: float):
     return c * dx + s * dy, -s * dx + c * dy
 
 
-def _undulation(body: Body, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+def _undulation(body: Body, x: np.ndarray, y: np.ndarray) -> np.ndarray | float:
     return 0.0 if body.surface is None else body.surface(x, y)
 
 

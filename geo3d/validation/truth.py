@@ -197,12 +197,12 @@ def _layout(rng: np.random.Generator, n_borings: int | None) -> tuple[np.ndarray
         pts = pts[rng.choice(len(pts), n, replace=False)]
         return pts, spacing, "jittered grid"
     size = np.array([cols, rows]) * spacing
-    pts: list[np.ndarray] = []
-    while len(pts) < n:
+    chosen: list[np.ndarray] = []
+    while len(chosen) < n:
         p = rng.uniform(0, 1, 2) * size
-        if all(np.hypot(*(p - q)) >= 0.55 * spacing for q in pts):
-            pts.append(p)
-    return np.array(pts), spacing, "random"
+        if all(np.hypot(*(p - q)) >= 0.55 * spacing for q in chosen):
+            chosen.append(p)
+    return np.array(chosen), spacing, "random"
 
 
 def _lattice(bounds: tuple[float, ...], base: float, top: float) -> dict[str, np.ndarray]:
@@ -327,7 +327,9 @@ def _planes(rng: np.random.Generator, boundary, centre) -> tuple[tuple, tuple, f
     return ground, (w0, wgx, wgy), depth, dtw
 
 
-def _lattice_truth(site_lattice, geology, materials, ground, water, rng) -> dict[str, Any]:
+def _lattice_truth(
+    site_lattice, geology, materials, ground, water, rng
+) -> tuple[dict[str, Any], dict[str, Any]]:
     fields = _fields(site_lattice, rng)
     x, y, z = site_lattice["x"], site_lattice["y"], site_lattice["z"]
     xx, yy = np.meshgrid(x, y)
@@ -374,12 +376,12 @@ def _boring_records(site: dict[str, Any], rng: np.random.Generator) -> None:
         dtw = row.ground_elev - site["plane"]("water_table", row.x, row.y)
         for _ in range(int(rng.integers(1, 3))):
             test_id += 1
-            depth = round(rng.uniform(dtw + 1.0, row.total_depth - 0.3), 3)
+            test_depth = round(float(rng.uniform(dtw + 1.0, row.total_depth - 0.3)), 3)
             record = dissipation_record(
-                depth, depth_to_water=dtw, p_atm=days[row.date], noise=probe.sensor_noise,
-                rng=rng, complete=test_id <= 3 or rng.random() < 0.9,
+                test_depth, depth_to_water=float(dtw), p_atm=days[row.date],
+                noise=probe.sensor_noise, rng=rng, complete=test_id <= 3 or rng.random() < 0.9,
             )  # fmt: skip
-            tests.append(record.assign(boring_id=boring_id, test_id=test_id, depth=depth))
+            tests.append(record.assign(boring_id=boring_id, test_id=test_id, depth=test_depth))
     for boring_id in rng.choice(ids, int(rng.integers(3, 7)), replace=False):
         row = borings.set_index("boring_id").loc[boring_id]
         dtw = row.ground_elev - site["plane"]("water_table", row.x, row.y)
