@@ -38,12 +38,14 @@ from geo3d.analysis.water_table import depth_to_water_map, water_table_map
 from geo3d.checks import check_site, report
 from geo3d.checks.resources import estimate_resources
 from geo3d.errors import Geo3dError, Geo3dWarning, ModelError
+from geo3d.facies_first import build_facies_first_model
 from geo3d.geostats.variogram import VariogramFit
 from geo3d.io import geotiff, gpkg, netcdf, tables, vtk
 from geo3d.io.atomic import atomic_file
 from geo3d.io.outdir import safe_output_folder
 from geo3d.io.output_frame import OutputFrame
 from geo3d.logs.process import LogResults, process_logs
+from geo3d.logs.runs import composite_runs
 from geo3d.model import ModelResult, VoxelModel, build_voxel_model
 from geo3d.report import write_report
 from geo3d.report.log_figure import log_figure_pngs
@@ -130,6 +132,7 @@ def run_model(
     *,
     n_realizations: int | None = None,
     progress: ProgressCallback | None = None,
+    engine: str = "gaussian",
 ) -> ModelResult:
     """Build the voxel model (kriging, cross-validation, simulations) from the intervals.
 
@@ -143,11 +146,19 @@ def run_model(
         Overrides ``[simulation] realizations`` (0 = no simulation).
     progress
         Progress callback (see :data:`ProgressCallback`).
+    engine
+        ``"gaussian"``: kriging and Gaussian simulations of log10 K, facies by thresholds
+        (:func:`geo3d.model.build_voxel_model`); ``"facies"``: facies first, composited within
+        facies runs, then log10 K within each facies
+        (:func:`geo3d.facies_first.build_facies_first_model`).
 
     Returns
     -------
     geo3d.model.ModelResult
     """
+    if engine not in ("gaussian", "facies"):
+        msg = f"model engine {engine!r} is unknown; expected 'gaussian' or 'facies'"
+        raise ModelError(msg)
     options = site.config.model_options()
     gridder = VoxelModel(
         facies_classes=logs.facies_classes,
@@ -172,6 +183,8 @@ def run_model(
         def callback(fraction: float, message: str) -> None:
             progress("model", float(fraction), message)
 
+    if engine == "facies":
+        return _facies_first(site, logs, n_realizations, callback)
     return build_voxel_model(
         logs.intervals,
         gridder,
@@ -183,6 +196,43 @@ def run_model(
         padding=options.padding,
         dem=site.dem,
         water_table=logs.water_table,
+        progress=callback,
+    )
+
+
+def _facies_first(
+    site: Site, logs: LogResults, n_realizations: int | None, callback: Any
+) -> ModelResult:
+
+    options = site.config.model_options()
+    intervals = composite_runs(
+        logs.samples,
+        logs.facies_classes,
+        interval=float(site.config.composite.interval),
+        min_thickness=float(site.config.facies.min_thickness),
+    )
+    return build_facies_first_model(
+        intervals,
+        boundary=site.boundary,
+        borings=site.borings,
+        crs=site.crs,
+        cell_size=options.cell_size,
+        facies_classes=logs.facies_classes,
+        water_table=logs.water_table,
+        dem=site.dem,
+        base="auto" if options.base is None else options.base,
+        padding=options.padding,
+        variogram={
+            "model": options.variogram_model,
+            "elevation_tolerance": options.elevation_tolerance,
+        },
+        kriging={
+            "neighbors": options.neighbors,
+            "max_per_group": options.max_per_group,
+            "chunk_size": options.chunk_size,
+        },
+        n_realizations=options.n_realizations if n_realizations is None else n_realizations,
+        seed=options.seed,
         progress=callback,
     )
 

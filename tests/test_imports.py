@@ -35,6 +35,8 @@ LAYERS: dict[str, int] = {
     "geo3d.geostats": 8,
     "geo3d.model": 9,
     "geo3d.checks": 9,
+    "geo3d.ec_facies": 8,
+    "geo3d.facies_first": 9,
     "geo3d.analysis": 10,
     "geo3d.results": 11,
     "geo3d.io": 12,
@@ -42,6 +44,7 @@ LAYERS: dict[str, int] = {
     "geo3d.pipeline": 13,
     "geo3d.cli": 14,
     "geo3d.__main__": 15,
+    "geo3d.validation": 14,  # synthetic-truth benchmark: runs the pipeline like the CLI does
 }
 
 #: Function-level imports of geo3d modules that are kept on purpose (start-up time of the CLI,

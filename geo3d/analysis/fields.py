@@ -20,6 +20,7 @@ __all__ = [
     "require_model",
     "facies_codes",
     "realization_fields",
+    "realization_facies",
     "effective_porosity_of",
     "probability_stack",
     "plan_map",
@@ -47,6 +48,19 @@ def realization_fields(ds: xr.Dataset) -> Iterator[np.ndarray]:
         return
     for r in range(ds.sizes.get("realization", 0)):
         yield ds["realizations"].isel(realization=r).values
+
+
+def realization_facies(ds: xr.Dataset) -> list[np.ndarray]:
+    """Facies codes ``(nz, ny, nx)`` of each realization (empty without realizations).
+
+    The simulated facies (``facies_realizations``) of a facies-first model, otherwise the
+    classes of the simulated log10 K fields.
+    """
+    if "facies_realizations" in ds:
+        values = ds["facies_realizations"].values
+        return [values[r] for r in range(values.shape[0])]
+    classes = ds.voxels.facies_classes
+    return [classes.classify(field) for field in realization_fields(ds)]
 
 
 def effective_porosity_of(codes: np.ndarray, classes: FaciesClasses) -> np.ndarray:

@@ -31,7 +31,7 @@ import xarray as xr
 from geo3d.analysis.fields import (
     facies_codes,
     probability_stack,
-    realization_fields,
+    realization_facies,
     require_model,
 )
 from geo3d.errors import GeometryError, ModelError
@@ -400,7 +400,7 @@ class _Fields:
     @classmethod
     def of(cls, ds: xr.Dataset) -> _Fields:
         classes = ds.voxels.facies_classes
-        sims = [classes.classify(field) for field in realization_fields(ds)]
+        sims = realization_facies(ds)
         return cls(
             classes,
             probability_stack(ds),
