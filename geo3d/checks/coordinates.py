@@ -208,9 +208,10 @@ def check_zones(site: Any) -> list[Finding]:
     declared = pyproj.CRS.from_user_input(site.config.site.crs)
     layer_crs = _layer_crs(path)
     other_crs = layer_crs is not None and not layer_crs.equals(declared)
+    layer_name = layer_crs.name if layer_crs is not None else ""
     findings = []
     if other_crs:
-        found = f"the zones are in {layer_crs.name}, the site in {declared.name}"
+        found = f"the zones are in {layer_name}, the site in {declared.name}"
         expected = "zones in the site CRS; they were reprojected, check that they sit right"
         findings.append(Finding("warning", "zones-crs", where(path), found, expected))
     for row, (name, geometry) in enumerate(zip(zones["name"], zones.geometry, strict=True)):
@@ -221,7 +222,7 @@ def check_zones(site: Any) -> list[Finding]:
         if share <= 0:
             found = "the zone lies outside the site boundary"
             if other_crs:
-                found += f" (its layer is in {layer_crs.name}, not the site CRS)"
+                found += f" (its layer is in {layer_name}, not the site CRS)"
             expected = "zones inside the site; check the zone layer's CRS and coordinates"
             findings.append(Finding("error", "zone-outside-site", place, found, expected))
         elif share < 0.1:

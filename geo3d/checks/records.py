@@ -9,7 +9,7 @@ References
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 import pandas as pd
@@ -108,6 +108,7 @@ def check_slug_tests(site: Any) -> list[Finding]:
             f"the screen {row.top_depth:g} to {row.bottom_depth:g} m of boring {row.boring_id!r}"
         )
         logged = f"the log covers {low:g} to {high:g} m"
+        level: Literal["error", "warning"]
         if row.top_depth >= high + DEPTH_TOLERANCE or row.bottom_depth <= low - DEPTH_TOLERANCE:
             found, level, check = (
                 f"{screen} lies outside the log ({logged})",

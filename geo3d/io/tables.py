@@ -18,6 +18,7 @@ import re
 from collections.abc import Mapping
 from os import PathLike
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -377,7 +378,7 @@ def write_tables(
     out_dir.mkdir(parents=True, exist_ok=True)
     if frame is not None:
         length_unit, volume_unit = frame.length_unit, frame.volume_unit
-    units = {"length_unit": length_unit, "volume_unit": volume_unit, "frame": frame}
+    units: dict[str, Any] = {"length_unit": length_unit, "volume_unit": volume_unit, "frame": frame}
     written: list[Path] = []
     if intervals is not None:
         written.append(write_csv(intervals, out_dir / "intervals.csv", **units))

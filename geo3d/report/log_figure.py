@@ -223,7 +223,7 @@ def _units(units) -> dict[str, str]:
 
 
 def _facies_track(ax, intervals: pd.DataFrame, length_unit: str) -> None:
-    legend = {}
+    legend: dict[int, Patch] = {}
     for row in intervals.itertuples(index=False):
         code = int(getattr(row, "facies_code", -1))
         colour = facies_colour(code)
