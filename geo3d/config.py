@@ -318,8 +318,8 @@ class FlagsSection(_Section):
         0.15, gt=0, description="Half window of the EC spike filter, in [units] length."
     )
     hampel_k: float = Field(4.0, gt=0, description="Spike threshold in scaled MADs.")
-    ionic_sigma: float = Field(
-        2.5, gt=0, description="EC this many residual SDs above the EC-vs-log10 K trend is ionic."
+    ec_trend_sigma: float = Field(
+        2.5, gt=0, description="EC this many residual SDs above the EC-vs-log10 K trend is flagged."
     )
     ec_min_thickness: float = Field(
         0.2,
@@ -893,8 +893,8 @@ class LogsOptions:
         Limits of the resolution flags (``[flags]``).
     hampel_window, hampel_k
         EC spike filter (``[flags]``).
-    ionic_sigma
-        Ionic-EC flag threshold in residual SDs.
+    ec_trend_sigma
+        EC-above-trend flag threshold in residual SDs.
     ec_min_thickness
         Thinnest run of EC above the trend that is flagged.
     min_slug_tests
@@ -930,7 +930,7 @@ class LogsOptions:
     pressure_limit_fraction: float
     hampel_window: float
     hampel_k: float
-    ionic_sigma: float
+    ec_trend_sigma: float
     ec_min_thickness: float
     min_slug_tests: int
     composite_interval: float
@@ -983,7 +983,7 @@ def _logs_options(config: SiteConfig) -> LogsOptions:
         pressure_limit_fraction=flags.pressure_limit_fraction,
         hampel_window=flags.hampel_window,
         hampel_k=flags.hampel_k,
-        ionic_sigma=flags.ionic_sigma,
+        ec_trend_sigma=flags.ec_trend_sigma,
         ec_min_thickness=flags.ec_min_thickness,
         min_slug_tests=flags.min_slug_tests,
         composite_interval=config.composite.interval,

@@ -372,7 +372,7 @@ def classify_mixture(
     merge
         Merge components named after the same class.
     k_only
-        Boolean mask of values whose EC must not be used (e.g. ionic intervals, where pore
+        Boolean mask of values whose EC must not be used (e.g. EC-above-trend intervals, where pore
         water rather than grain size sets EC): they are left out of the fit and assigned by
         the mixture's marginal distribution of log10 K.
 

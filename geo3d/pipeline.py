@@ -463,6 +463,8 @@ def _write_gpkg(results: RunResults, path: Path, frame: OutputFrame) -> Path:
             samples=None if logs is None else logs.samples,
             intervals=None if logs is None else logs.intervals,
             water_levels=None if logs is None else logs.water_levels,
+            boring_levels=None if logs is None else logs.boring_levels,
+            reference_pressure=None if logs is None else logs.reference_pressure,
             transmissive=classes.names[classes.transmissive],
             frame=frame,
         )

@@ -703,7 +703,7 @@ min_flow_fraction = 0.1           # flow below this fraction of the median flow:
 pressure_limit_fraction = 0.95    # pressure above this fraction of the sensor limit
 hampel_window = 0.15              # m, half window of the EC spike filter
 hampel_k = 4.0                    # spike threshold in scaled MADs
-ionic_sigma = 2.5                 # EC this many residual SDs above the EC-vs-log10 K trend
+ec_trend_sigma = 2.5              # EC this many residual SDs above the EC-vs-log10 K trend
 ec_min_thickness = 0.2            # m; EC above the trend must hold over this thickness
 min_slug_tests = 3                # fewer slug tests than this: physics-only K, with a warning
 

@@ -71,7 +71,7 @@ class Options:
     test_depths: str = "one"  # one | two
     high_k_unit: bool = False  # a gravel near the probe's upper limit
     n_slug_tests: int = 0
-    ionic: int = 0  # borings with an EC anomaly
+    ec_above_trend: int = 0  # borings with an EC anomaly
     spikes: int = 0  # borings with a metal-contact spike
     layout: str = "csv"  # csv | mixed (LAS with other curve names)
     units_row: bool = False
@@ -91,7 +91,7 @@ class Truth:
     depth_to_water: dict[str, float] = field(default_factory=dict)
     p_atm: dict[str, float] = field(default_factory=dict)
     vertical_gradient: dict[str, float] = field(default_factory=dict)
-    ionic: dict[str, tuple[float, float]] = field(default_factory=dict)
+    ec_above_trend: dict[str, tuple[float, float]] = field(default_factory=dict)
     spikes: dict[str, list[float]] = field(default_factory=dict)
     probe: dict[str, float] = field(default_factory=dict)
     p_atm_base: dict[str, float] = field(default_factory=dict)
@@ -205,9 +205,9 @@ def _boring_log(rng, opts, plan, truth: Truth, clock_start: pd.Timestamp):
     ec = 10.0**log10_ec * np.where(saturated, 1.0, 0.6)
     # topsoil or fill at the top of the log: 5-25 cm of higher EC (a real layer)
     ec = np.where(depth < plan["topsoil"], ec * plan["topsoil_factor"], ec)
-    if plan["id"] in truth.ionic:
-        top, bottom = truth.ionic[plan["id"]]
-        ec = np.where((depth >= top) & (depth <= bottom), ec * plan["ionic_factor"], ec)
+    if plan["id"] in truth.ec_above_trend:
+        top, bottom = truth.ec_above_trend[plan["id"]]
+        ec = np.where((depth >= top) & (depth <= bottom), ec * plan["ec_anomaly_factor"], ec)
     ec = ec * (1.0 + rng.normal(0.0, opts.ec_noise, n)) + rng.normal(0.0, 0.1, n)
     if plan["id"] in truth.spikes:
         j = int(np.searchsorted(depth, truth.spikes[plan["id"]][0]))
@@ -327,7 +327,7 @@ def _plan(rng, opts: Options, i: int, boring_id: str, dtw: float, test_id: int, 
         "test_ids": list(range(test_id, test_id + len(tests))),
         "flow_ml_min": float(rng.uniform(250.0, 400.0)),
         "limit": limit,
-        "ionic_factor": float(rng.uniform(3.0, 5.0)),
+        "ec_anomaly_factor": float(rng.uniform(3.0, 5.0)),
         # a metal contact reads hundreds of mS/m (common practice)
         "spike_size": float(rng.uniform(250.0, 500.0)),
         "topsoil": float(rng.uniform(0.05, 0.25)),
@@ -335,16 +335,18 @@ def _plan(rng, opts: Options, i: int, boring_id: str, dtw: float, test_id: int, 
     }
 
 
-def _log_with_anomalies(rng, opts, plan, truth: Truth, clock, *, ionic: bool, spike: bool):
+def _log_with_anomalies(rng, opts, plan, truth: Truth, clock, *, ec_above_trend: bool, spike: bool):
     """Simulate one log; where it carries anomalies, place them once the geology is known."""
     state = rng.bit_generator.state
     out = _boring_log(rng, opts, plan, truth, clock)
-    if not (ionic or spike):
+    if not (ec_above_trend or spike):
         return out
     depth, rows = out[2][0], out[2][3]
-    interval = _ionic_interval(rows, plan["dtw"], plan["total_depth"]) if ionic else None
+    interval = (
+        _ec_anomaly_interval(rows, plan["dtw"], plan["total_depth"]) if ec_above_trend else None
+    )
     if interval is not None:
-        truth.ionic[plan["id"]] = interval
+        truth.ec_above_trend[plan["id"]] = interval
     if spike:
         truth.spikes[plan["id"]] = _spike_depth(rows, plan["dtw"], plan["total_depth"], depth)
     rng.bit_generator.state = state  # the same geology and noise, now with the anomalies
@@ -386,7 +388,9 @@ def make_site(root: Path, seed: int, opts: Options) -> Truth:
     mean_ground = float(np.mean(ground))
     for d in days:
         truth.day_levels_at_site[d] = float(iso2533(mean_ground)) + weather[d]
-    ionic_ids = list(rng.choice(ids, opts.ionic, replace=False)) if opts.ionic else []
+    ec_anomaly_ids = (
+        list(rng.choice(ids, opts.ec_above_trend, replace=False)) if opts.ec_above_trend else []
+    )
     spike_ids = list(rng.choice(ids, opts.spikes, replace=False)) if opts.spikes else []
     borings, dissipation = [], []
     test_id = 1
@@ -408,7 +412,7 @@ def make_site(root: Path, seed: int, opts: Options) -> Truth:
             plan,
             truth,
             clock,
-            ionic=boring_id in ionic_ids,
+            ec_above_trend=boring_id in ec_anomaly_ids,
             spike=boring_id in spike_ids,
         )
         dissipation += records
@@ -439,7 +443,7 @@ def make_site(root: Path, seed: int, opts: Options) -> Truth:
     return truth
 
 
-def _ionic_interval(rows, dtw: float, total: float) -> tuple[float, float] | None:
+def _ec_anomaly_interval(rows, dtw: float, total: float) -> tuple[float, float] | None:
     """An anomaly 0.4-1.0 m thick in the thickest transmissive unit below the water table.
 
     None when the boring has no transmissive unit thick enough: EC above the trend is only an

@@ -45,14 +45,14 @@ def test_flagged_samples_leave_only_what_they_distort():
         [10.0, 500.0, 10.0, 10.0],
         spike=[False, True, False, False],
         out_of_range_high=[False, False, True, False],
-        ionic=[False, False, False, True],
+        ec_above_trend=[False, False, False, True],
     )
     row = composite(df, interval=0.15).iloc[0]
-    # spike out of EC, kept in K; out-of-range out of K, kept in EC; ionic kept in both
+    # spike out of EC, kept in K; out-of-range out of K, kept in EC; EC above trend kept in both
     assert row["ec"] == pytest.approx(10.0)
     assert row["log10_k"] == pytest.approx((-5.0 - 5.0 - 4.0) / 3)
     assert (row["n_samples"], row["n_k"], row["n_ec"]) == (4, 3, 3)
-    assert row["frac_spike"] == row["frac_out_of_range_high"] == row["frac_ionic"] == 0.25
+    assert row["frac_spike"] == row["frac_out_of_range_high"] == row["frac_ec_above_trend"] == 0.25
 
 
 def test_an_interval_with_no_usable_k_is_nan():

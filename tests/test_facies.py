@@ -102,9 +102,9 @@ def test_mixture_components_merge_by_class_and_ec_can_be_ignored():
     raw, raw_names = classify_mixture(log10_k, ec, max_classes=4, merge=False)
     assert raw_names == ["storage", "transmissive", "transmissive_2"]
     # sandy intervals with clay-like EC (conductive pore water) classified by K alone
-    ec_ionic = ec.copy()
-    ec_ionic[130:140] = 80.0
+    ec_anomalous = ec.copy()
+    ec_anomalous[130:140] = 80.0
     mask = np.zeros(ec.size, bool)
     mask[130:140] = True
-    codes_k, _ = classify_mixture(log10_k, ec_ionic, max_classes=4, k_only=mask)
+    codes_k, _ = classify_mixture(log10_k, ec_anomalous, max_classes=4, k_only=mask)
     assert (codes_k[130:140] == 2).all()

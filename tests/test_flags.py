@@ -4,8 +4,8 @@ import pytest
 
 from geo3d.errors import Geo3dWarning, TableFormatError
 from geo3d.logs.flags import (
+    ec_above_trend_flags,
     hampel,
-    ionic_flags,
     keep_thick_runs,
     resolution_flags,
     spike_flags,
@@ -66,7 +66,7 @@ def test_spike_is_an_ec_excursion_without_pressure_change():
     assert not flags.any()
 
 
-def test_ionic_where_ec_sits_above_the_trend_in_transmissive_soil():
+def test_ec_above_trend_where_ec_sits_above_the_trend_in_transmissive_soil():
     rng = np.random.default_rng(7)
     n = 3000
     groups = np.repeat(["A", "B", "C"], n // 3)
@@ -77,14 +77,16 @@ def test_ionic_where_ec_sits_above_the_trend_in_transmissive_soil():
     ec = 10 ** (1.2 - 0.25 * (log10_k + 6.0) + rng.normal(0, 0.04, n))
     zone = (groups == "B") & (depth > 6.0) & (depth < 7.0)
     ec[zone] *= 3.0  # conductive pore water
-    flags, trend = ionic_flags(log10_k, ec, groups, depth, transmissive_min=-5.0, sigma=2.5)
+    flags, trend = ec_above_trend_flags(
+        log10_k, ec, groups, depth, transmissive_min=-5.0, sigma=2.5
+    )
     expected = zone & (log10_k >= -5.0)
     assert expected.sum() > 10
     assert flags[expected].mean() > 0.9
     assert flags[~zone].sum() == 0
     assert trend["slope"] == pytest.approx(-0.25, abs=0.03)  # the invented trend
-    # the same anomaly in storage-range K is not ionic (K not transmissive)
-    flags_low, _ = ionic_flags(log10_k - 3.0, ec, groups, depth, transmissive_min=-5.0)
+    # the same anomaly in storage-range K is not flagged (K not transmissive)
+    flags_low, _ = ec_above_trend_flags(log10_k - 3.0, ec, groups, depth, transmissive_min=-5.0)
     assert not flags_low.any()
 
 

@@ -42,7 +42,7 @@ def samples():
             "depth_to_water": [1.5] * 4 + [1.2] * 3,
             "log10_k": [-4.0, -5.0, -6.0, -7.0, -4.0, -4.0, -4.0],
             "spike": [False, True, False, True, False, False, False],
-            "ionic": [False] * 7,
+            "ec_above_trend": [False] * 7,
         }
     )
 
@@ -74,6 +74,32 @@ def test_boring_summary():
     assert (b1.depth_to_water, b1.water_level_source) == (1.5, "surface")
     assert (b2.depth_to_water, b2.water_level_source) == (1.3, "dissipation")
     assert gdf.geometry.iloc[1].equals(shapely.Point(110, 205))
+
+
+def test_boring_summary_takes_the_water_level_nearest_the_water_table():
+    # B2 has a shallow test (1.3 m) and a deep one in an upward gradient (0.9 m): the median
+    # of the two would shift the water table; the per-boring level from the tests nearest it
+    # (geo3d.logs.water_level.boring_water_levels) is carried instead, with its gradient.
+    tests = pd.DataFrame({"boring_id": ["B2", "B2"], "depth_to_water": [1.3, 0.9]})
+    per_boring = pd.DataFrame(
+        {"boring_id": ["B2"], "depth_to_water": [1.3], "vertical_gradient": [-0.05]}
+    )
+    reference = pd.DataFrame(
+        {"boring_id": ["B1", "B2"], "p_atm_source": ["collar_flow_off", "standard_atmosphere"]}
+    )
+    gdf = boring_summary(
+        borings(),
+        crs=CRS,
+        samples=samples(),
+        water_levels=tests,
+        boring_levels=per_boring,
+        reference_pressure=reference,
+    )
+    b1, b2 = gdf.iloc[0], gdf.iloc[1]
+    assert (b2.depth_to_water, b2.water_level_source) == (1.3, "dissipation")
+    assert b2.vertical_gradient == pytest.approx(-0.05)
+    assert np.isnan(b1.vertical_gradient)
+    assert list(gdf["p_atm_source"]) == ["collar_flow_off", "standard_atmosphere"]
 
 
 def test_contours_of_a_plane():

@@ -60,7 +60,7 @@ def test_water_table_gradient_and_direction(result, truth):
 
 
 def test_brine_layers_are_flagged_there_and_nowhere_else(result, truth):
-    # the brine's EC sits above the site's EC-K trend: the EC-above-trend flag (``ionic``)
+    # the brine's EC sits above the site's EC-K trend: the EC-above-trend flag (``ec_above_trend``)
     s = result.samples
     inside = np.zeros(len(s), dtype=bool)
     for boring_id, layer in truth["brine"]["borings"].items():
@@ -70,8 +70,8 @@ def test_brine_layers_are_flagged_there_and_nowhere_else(result, truth):
         inside |= in_boring & s["depth"].between(top - 0.15, bottom + 0.15).to_numpy()
         core = in_boring & s["depth"].between(top + 0.15, bottom - 0.15).to_numpy()
         transmissive = (s["log10_k"] >= -5.0).to_numpy()
-        assert s.loc[core & transmissive, "ionic"].mean() > 0.8, boring_id
-    assert not s.loc[~inside, "ionic"].any()
+        assert s.loc[core & transmissive, "ec_above_trend"].mean() > 0.8, boring_id
+    assert not s.loc[~inside, "ec_above_trend"].any()
 
 
 def test_ec_dropout_is_missing_not_zero(result, truth):
@@ -83,7 +83,7 @@ def test_ec_dropout_is_missing_not_zero(result, truth):
     assert at.sum() == gap["n_samples"]
     # missing EC stays missing: never a zero, never flagged as a spike or above the trend
     assert s.loc[at, "ec"].isna().all()
-    assert not s.loc[at, ["spike", "ionic"]].any().any()
+    assert not s.loc[at, ["spike", "ec_above_trend"]].any().any()
     assert (s["ec"].dropna() > 0).all()
     # K is still logged through the gap (pressure and flow were recorded)
     assert s.loc[at, "log10_k"].notna().mean() > 0.9
@@ -155,7 +155,9 @@ def test_facies_k_ranges_fall_in_the_published_ranges(result):
 def test_mixture_finds_the_three_hydrofacies_of_the_demo(result, truth):
     iv = result.intervals
     codes, names = classify_mixture(
-        iv["log10_k"].to_numpy(), iv["ec"].to_numpy(), k_only=iv["frac_ionic"].to_numpy() >= 0.5
+        iv["log10_k"].to_numpy(),
+        iv["ec"].to_numpy(),
+        k_only=iv["frac_ec_above_trend"].to_numpy() >= 0.5,
     )
     assert names == ["storage", "transitional", "transmissive"]
     # the demo has three saturated populations: the silty clay at the probe's resolution bound

@@ -141,7 +141,7 @@ def test_calibration_with_a_unit_at_the_probe_limit(tmp_path):
 
 
 def _flagged(result) -> set[str]:
-    by_boring = result.samples.groupby("boring_id")[["ionic", "spike"]].any()
+    by_boring = result.samples.groupby("boring_id")[["ec_above_trend", "spike"]].any()
     return set(by_boring.index[by_boring.any(axis=1)])
 
 
@@ -155,18 +155,18 @@ def test_flags_stay_quiet_on_clean_noisy_logs(tmp_path):
 
 def test_flags_find_every_planted_anomaly(tmp_path):
     for seed in SEEDS:
-        opts = Options(ec_noise=0.12, ionic=3, spikes=3)
+        opts = Options(ec_noise=0.12, ec_above_trend=3, spikes=3)
         truth = make_site(tmp_path / f"s{seed}", seed, opts)
         result = _run(truth.root)
         s = result.samples
-        assert truth.ionic and truth.spikes
-        for boring_id, (top, bottom) in truth.ionic.items():
+        assert truth.ec_above_trend and truth.spikes
+        for boring_id, (top, bottom) in truth.ec_above_trend.items():
             inside = (s["boring_id"] == boring_id) & s["depth"].between(top, bottom)
-            assert s.loc[inside, "ionic"].mean() > 0.5, (seed, boring_id)
+            assert s.loc[inside, "ec_above_trend"].mean() > 0.5, (seed, boring_id)
         for boring_id, (depth,) in truth.spikes.items():
             at = (s["boring_id"] == boring_id) & s["depth"].between(depth - 0.03, depth + 0.03)
             assert s.loc[at, "spike"].any(), (seed, boring_id)
-        anomalous = set(truth.ionic) | set(truth.spikes)
+        anomalous = set(truth.ec_above_trend) | set(truth.spikes)
         clean = len(truth.depth_to_water) - len(anomalous)
         false = _flagged(result) - anomalous
         assert len(false) <= max(1, clean // 10), (seed, false)

@@ -50,13 +50,13 @@ def test_per_sample_and_interval_tables_follow_the_contract(mini_results):
     for column in [
         "boring_id", "depth", "elev", "pressure", "flow", "ec", "x", "y", "depth_to_water",
         "wt_elev", "p_atm", "p_hydrostatic", "p_net", "q_over_p", "k_log", "log10_k",
-        "above_water", "out_of_range_high", "out_of_range_low", "spike", "ionic",
+        "above_water", "out_of_range_high", "out_of_range_low", "spike", "ec_above_trend",
         "sensor_check_failed",
     ]:  # fmt: skip
         assert column in s.columns, column
     for column in [
         "boring_id", "x", "y", "top", "bottom", "z_mid", "log10_k", "ec", "n_samples",
-        "frac_above_water", "frac_spike", "frac_ionic", "facies", "facies_code",
+        "frac_above_water", "frac_spike", "frac_ec_above_trend", "facies", "facies_code",
     ]:  # fmt: skip
         assert column in iv.columns, column
     # physics K: log10 K = log10(Q gamma_w/(F P_net)) (Hvorslev 1951) with b = 1

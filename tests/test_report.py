@@ -103,7 +103,7 @@ def samples_and_intervals(bor: pd.DataFrame):
                 "depth_to_water": 2.0,
                 "above_water": depth < 2.0,
                 "spike": False,
-                "ionic": False,
+                "ec_above_trend": False,
                 "out_of_range_high": lk > -3.5,
                 "out_of_range_low": lk < -8.5,
             }

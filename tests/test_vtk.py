@@ -130,7 +130,7 @@ def make_samples():
                     "log10_k": -5 - depth,
                     "ec": 10 + depth,
                     "spike": depth == 1.0,
-                    "ionic": False,
+                    "ec_above_trend": False,
                     "above_water": depth < 0.6,
                 }
             )

@@ -105,6 +105,8 @@ def boring_summary(
     samples: pd.DataFrame | None = None,
     intervals: pd.DataFrame | None = None,
     water_levels: pd.DataFrame | None = None,
+    boring_levels: pd.DataFrame | None = None,
+    reference_pressure: pd.DataFrame | None = None,
     transmissive: str = "transmissive",
     frame: OutputFrame | None = None,
 ) -> gpd.GeoDataFrame:
@@ -122,7 +124,14 @@ def boring_summary(
     intervals
         Intervals (``boring_id``, ``top``, ``bottom``, ``facies``).
     water_levels
-        Dissipation-test water levels (``boring_id``, ``depth_to_water``).
+        Dissipation-test water levels (``boring_id``, ``depth_to_water``); their median per
+        boring is used when ``boring_levels`` is not given.
+    boring_levels
+        One water level per boring from its tests nearest the water table (``boring_id``,
+        ``depth_to_water``, ``vertical_gradient``), so that a deep test in a vertical head
+        gradient does not shift it.
+    reference_pressure
+        ``boring_id``, ``p_atm_source``: where each boring's atmospheric pressure came from.
     transmissive
         Name of the transmissive hydrofacies.
     frame
@@ -132,7 +141,8 @@ def boring_summary(
     -------
     geopandas.GeoDataFrame
         Columns ``boring_id``, ``ground_elev``, ``total_depth``, ``depth_to_water``,
-        ``water_level_source`` (``dissipation`` or ``surface``), ``transmissive_thickness``,
+        ``water_level_source`` (``dissipation`` or ``surface``), ``vertical_gradient`` and
+        ``p_atm_source`` (when given), ``transmissive_thickness``,
         ``n_samples``, ``mean_log10_k``, ``n_<flag>`` per flag; point geometry.
     """
     out = borings[["boring_id", "x", "y", "ground_elev"]].copy()
@@ -159,18 +169,40 @@ def boring_summary(
             if flag in samples:
                 counts = grouped[flag].apply(lambda s: int(s.fillna(False).astype(bool).sum()))
                 out[f"n_{flag}"] = key.map(counts).fillna(0).astype(int)
-    if water_levels is not None and len(water_levels) and "depth_to_water" in water_levels:
-        measured = water_levels.assign(boring_id=water_levels["boring_id"].astype(str))
-        measured = key.map(measured.groupby("boring_id")["depth_to_water"].median())
-        has = measured.notna()
-        out.loc[has, "depth_to_water"] = measured[has]
-        out.loc[has, "water_level_source"] = "dissipation"
+    _add_water_levels(out, water_levels, boring_levels, reference_pressure)
     if intervals is not None and len(intervals):
         ints = intervals.assign(boring_id=intervals["boring_id"].astype(str))
         thick = (ints["bottom"] - ints["top"]).where(ints["facies"].astype(str) == transmissive, 0)
         out["transmissive_thickness"] = key.map(thick.groupby(ints["boring_id"]).sum()).fillna(0)
     geometry = gpd.points_from_xy(out["x"], out["y"])
     return in_frame(gpd.GeoDataFrame(out, geometry=geometry, crs=crs), frame)
+
+
+def _add_water_levels(
+    out: pd.DataFrame,
+    water_levels: pd.DataFrame | None,
+    boring_levels: pd.DataFrame | None,
+    reference_pressure: pd.DataFrame | None,
+) -> None:
+    """Set the measured water level, its gradient and reference-pressure source per boring."""
+    key = out["boring_id"]
+    if boring_levels is not None and len(boring_levels):
+        own = boring_levels.set_index(boring_levels["boring_id"].astype(str))
+        measured = key.map(own["depth_to_water"])
+        if "vertical_gradient" in own:
+            out["vertical_gradient"] = key.map(own["vertical_gradient"]).astype(float)
+    elif water_levels is not None and len(water_levels) and "depth_to_water" in water_levels:
+        measured = water_levels.assign(boring_id=water_levels["boring_id"].astype(str))
+        measured = key.map(measured.groupby("boring_id")["depth_to_water"].median())
+    else:
+        measured = None
+    if reference_pressure is not None and "p_atm_source" in reference_pressure:
+        sources = reference_pressure.set_index(reference_pressure["boring_id"].astype(str))
+        out["p_atm_source"] = key.map(sources["p_atm_source"]).fillna("").astype(str)
+    if measured is not None:
+        has = measured.notna()
+        out.loc[has, "depth_to_water"] = measured[has]
+        out.loc[has, "water_level_source"] = "dissipation"
 
 
 #: Volume columns carried per facies, and those also carried with their P10/P50/P90.

@@ -14,7 +14,7 @@ EC flags:
 * ``spike``: a narrow EC rise above the levels on both sides (beyond ``k`` scaled median
   absolute deviations of each side window, and at least a doubling) with no matching
   hydraulic change, typically a metal contact; a step at a contact is not a spike.
-* ``ionic``: EC well above the site's EC-vs-log10 K trend (robust Huber fit of log10 EC on
+* ``ec_above_trend``: EC well above the site's EC-vs-log10 K trend (robust Huber fit of log10 EC on
   log10 K) while K is in the transmissive range: conductive pore water (an injected fluid,
   brine, a plume), not fine grains; only over a run of consecutive samples at least
   ``min_thickness`` thick.
@@ -46,7 +46,7 @@ __all__ = [
     "hampel",
     "spike_flags",
     "keep_thick_runs",
-    "ionic_flags",
+    "ec_above_trend_flags",
 ]
 
 logger = logging.getLogger(__name__)
@@ -57,7 +57,7 @@ FLAGS: tuple[str, ...] = (
     "out_of_range_high",
     "out_of_range_low",
     "spike",
-    "ionic",
+    "ec_above_trend",
     "sensor_check_failed",
 )
 
@@ -414,7 +414,7 @@ def _thick_runs(
     return thick
 
 
-def ionic_flags(
+def ec_above_trend_flags(
     log10_k,
     ec,
     groups,
@@ -473,7 +473,9 @@ def ionic_flags(
     flags = np.zeros(lk.size, dtype=bool)
     trend = {"intercept": float("nan"), "slope": float("nan"), "scale": float("nan"), "n": 0}
     if usable.sum() < 10:
-        logger.info("ionic flags: %d usable samples, too few for an EC trend", usable.sum())
+        logger.info(
+            "EC-above-trend flags: %d usable samples, too few for an EC trend", usable.sum()
+        )
         return flags, trend
     fit_set = usable
     for _ in range(2):

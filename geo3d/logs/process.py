@@ -14,7 +14,7 @@ library functions of :mod:`geo3d.logs` and :mod:`geo3d.facies` in named steps:
 4. :func:`_flag_resolution` and :func:`_k_from_logs`: resolution flags, sensor checks, the
    injection ratio Q/P_net and log-derived K, calibrated to the slug tests when there are
    enough;
-5. :func:`_flag_ec`: EC spike and ionic flags;
+5. :func:`_flag_ec`: EC spike and EC-above-trend flags;
 6. :func:`_intervals`: compositing into intervals and hydrofacies.
 """
 
@@ -38,7 +38,7 @@ from geo3d.facies import (
 from geo3d.logs.calibration import Calibration, calibrate, physics_coefficients
 from geo3d.logs.censored import screen_ratios
 from geo3d.logs.composite import K_EXCLUDING_FLAGS, composite
-from geo3d.logs.flags import FLAGS, ionic_flags, resolution_flags, spike_flags
+from geo3d.logs.flags import FLAGS, ec_above_trend_flags, resolution_flags, spike_flags
 from geo3d.logs.hydraulic import shape_factor
 from geo3d.logs.pressure import fit_tool_loss
 from geo3d.logs.reference import flow_off_collar_readings, reference_pressures
@@ -115,12 +115,15 @@ class LogResults:
     facies_classes
         The hydrofacies classes of ``facies_code``.
     ec_trend
-        Robust EC-vs-log10 K trend used for the ionic flag.
+        Robust EC-vs-log10 K trend used for the EC-above-trend flag.
     shape_factor
         Hvorslev shape factor of the probe screen, m.
     reference_pressure
         One row per boring: ``boring_id, p_atm`` (kPa) and ``p_atm_source`` (see
         :data:`geo3d.logs.reference.REFERENCE_SOURCES`).
+    boring_levels
+        One water level per boring from its tests nearest the water table, with its vertical
+        head gradient (:func:`geo3d.logs.water_level.boring_water_levels`).
     """
 
     samples: pd.DataFrame
@@ -134,6 +137,7 @@ class LogResults:
     ec_trend: dict[str, float]
     shape_factor: float
     reference_pressure: pd.DataFrame = field(default_factory=pd.DataFrame)
+    boring_levels: pd.DataFrame = field(default_factory=pd.DataFrame)
 
     @property
     def facies_names(self) -> tuple[str, ...]:
@@ -358,7 +362,7 @@ def _k_from_logs(
 
 
 def _flag_ec(samples: pd.DataFrame, options: LogsOptions, k_bad: np.ndarray) -> dict[str, float]:
-    """Add the EC spike and ionic flags; return the EC-vs-log10 K trend."""
+    """Add the EC spike and EC-above-trend flags; return the EC-vs-log10 K trend."""
     ids = samples["boring_id"].to_numpy()
     depth = samples["depth"].to_numpy(dtype=float)
     ec = samples["ec"].to_numpy(dtype=float)
@@ -372,17 +376,17 @@ def _flag_ec(samples: pd.DataFrame, options: LogsOptions, k_bad: np.ndarray) -> 
     )
     classes = options.facies_classes
     transmissive_min = classes[-2].log10_k_max if len(classes) >= 2 else -np.inf
-    ionic, trend = ionic_flags(
+    above_trend, trend = ec_above_trend_flags(
         samples["log10_k"].to_numpy(),
         ec,
         ids,
         depth,
         transmissive_min=transmissive_min,
-        sigma=options.ionic_sigma,
+        sigma=options.ec_trend_sigma,
         min_thickness=options.ec_min_thickness,
         exclude=k_bad | samples["spike"].to_numpy(),
     )
-    samples["ionic"] = ionic
+    samples["ec_above_trend"] = above_trend
     for name in FLAGS:
         samples[name] = samples[name].astype(bool)
     return trend
@@ -454,6 +458,7 @@ def process_logs(site: Site, *, options: LogsOptions | None = None) -> LogResult
         ec_trend=trend,
         shape_factor=f_m,
         reference_pressure=reference,
+        boring_levels=water.per_boring,
     )
 
 
@@ -499,13 +504,13 @@ def _classify(intervals: pd.DataFrame, options: LogsOptions) -> tuple[np.ndarray
     classes = options.facies_classes
     log10_k = intervals["log10_k"].to_numpy(dtype=float)
     if options.facies_method == "mixture":
-        ionic = intervals.get("frac_ionic", pd.Series(0.0, index=intervals.index))
+        above_trend = intervals.get("frac_ec_above_trend", pd.Series(0.0, index=intervals.index))
         codes, _ = classify_mixture(
             log10_k,
             intervals["ec"].to_numpy(),
             classes=classes,
             seed=options.seed,
-            k_only=ionic.to_numpy(dtype=float) >= 0.5,
+            k_only=above_trend.to_numpy(dtype=float) >= 0.5,
         )
     else:
         codes = classify_thresholds(

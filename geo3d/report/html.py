@@ -160,7 +160,8 @@ _METHODS = (
     (
         "Flags",
         "EC spikes by a Hampel (1974) filter (rolling median &plusmn; k scaled MAD); "
-        "ionic EC where EC sits well above the site's EC-log10 K trend (Archie 1942); readings "
+        "EC above trend (ec_above_trend) where EC sits well above the site's EC-log10 K trend "
+        "(Archie 1942); readings "
         "outside the resolution of the method are flagged, never silently used.",
     ),
     (
@@ -479,7 +480,10 @@ def _section_water(ctx: _Context) -> str:
         parts.append(_note("No water levels from dissipation tests are available."))
     else:
         hidden = ("x", "y", "aitken", "p_static_se")
-        columns = [c for c in LEVEL_COLUMNS if c in levels and c not in hidden]
+        # where each boring's atmospheric pressure came from, its vertical head gradient and
+        # whether the test sets the water table (the tests nearest it)
+        extra = ("p_atm_source", "vertical_gradient", "water_table_test")
+        columns = [c for c in (*LEVEL_COLUMNS, *extra) if c in levels and c not in hidden]
         pressure = str(ctx.units.pressure)
         shown = levels[columns].copy()
         for column in ("p_static", "fit_rmse"):  # pressures, in the declared unit

@@ -57,7 +57,7 @@ _FLAG_STYLE = {
     "out_of_range_high": ("^", OKABE_ITO["blue"]),
     "out_of_range_low": ("v", OKABE_ITO["vermillion"]),
     "spike": ("x", OKABE_ITO["black"]),
-    "ionic": ("D", OKABE_ITO["reddish_purple"]),
+    "ec_above_trend": ("D", OKABE_ITO["reddish_purple"]),
     "sensor_check_failed": ("s", OKABE_ITO["orange"]),
 }
 
@@ -207,7 +207,7 @@ def _ec_track(ax, s: pd.DataFrame, depth: np.ndarray, unit: str) -> list:
     if "ec" in s:
         ec = from_internal(s["ec"].to_numpy(dtype=float), unit, "ec")
         ax.plot(ec, depth, color=OKABE_ITO["orange"], lw=0.7)
-        handles = _mark_flags(ax, depth, ec, s, ("spike", "ionic"))
+        handles = _mark_flags(ax, depth, ec, s, ("spike", "ec_above_trend"))
         _shade_gaps(ax, depth, ec)
     ax.set_xlabel(f"EC ({unit})")
     return handles
