@@ -473,9 +473,7 @@ def ec_above_trend_flags(
     flags = np.zeros(lk.size, dtype=bool)
     trend = {"intercept": float("nan"), "slope": float("nan"), "scale": float("nan"), "n": 0}
     if usable.sum() < 10:
-        logger.info(
-            "EC-above-trend flags: %d usable samples, too few for an EC trend", usable.sum()
-        )
+        logger.info("EC trend: %d usable samples, too few to fit one", usable.sum())
         return flags, trend
     fit_set = usable
     for _ in range(2):
