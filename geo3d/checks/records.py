@@ -16,6 +16,7 @@ import pandas as pd
 
 from geo3d.checks.findings import Finding
 from geo3d.errors import where
+from geo3d.units import factor as unit_factor
 
 __all__ = ["check_dissipation", "check_slug_tests", "check_hydrostatic", "GAMMA_W"]
 
@@ -64,7 +65,7 @@ def check_dissipation(site: Any) -> list[Finding]:
     lines = _first_lines(path)
     ranges = _log_ranges(site)
     noise = float(site.config.probe.sensor_noise)
-    scale = 0.3048 if "ft" in site.config.units.length.lower() else 1.0
+    scale = unit_factor(site.config.units.length, "length")  # m per declared length unit
     findings = []
     for _, test in table.groupby("test_id", sort=True):
         boring, depth = str(test["boring_id"].iloc[0]), float(test["depth"].iloc[0])
