@@ -387,7 +387,7 @@ class FaciesSection(_Section):
         "thresholds", description="thresholds | mixture (Gaussian mixture on log10 K and EC)."
     )
     min_thickness: float = Field(
-        0.3, ge=0, description="Thinner runs are merged into their neighbours, in [units] length."
+        0.1, ge=0, description="Thinner runs are merged into their neighbours, in [units] length."
     )
     classes: list[FaciesClassConfig] = Field(
         default_factory=_default_classes,
@@ -488,6 +488,13 @@ class SimulationSection(_Section):
 
     realizations: int = Field(20, ge=0, description="Number of realizations (0 = none).")
     seed: int = Field(20261202, description="Random seed.")
+    engine: Literal["gaussian", "facies"] = Field(
+        "gaussian",
+        description=(
+            "gaussian: kriging and Gaussian simulation of log10 K, facies by thresholds; "
+            "facies: facies simulated first, then log10 K within each facies."
+        ),
+    )
 
 
 class TreatmentSection(_Section):
@@ -1040,6 +1047,8 @@ class ModelOptions:
         Conditional simulations of log10 K (``[simulation] realizations``).
     seed
         Seed of the simulations.
+    engine
+        ``'gaussian'`` or ``'facies'`` (``[simulation] engine``).
     """
 
     cell_size: tuple[float, float, float]
@@ -1059,6 +1068,7 @@ class ModelOptions:
     scheduler: str
     n_realizations: int
     seed: int
+    engine: str = "gaussian"
 
 
 @dataclass(frozen=True)
@@ -1105,6 +1115,7 @@ def _model_options(config: SiteConfig) -> ModelOptions:
         scheduler=kriging.scheduler or "threads",
         n_realizations=config.simulation.realizations,
         seed=config.simulation.seed,
+        engine=config.simulation.engine,
     )
 
 

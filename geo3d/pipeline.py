@@ -132,7 +132,7 @@ def run_model(
     *,
     n_realizations: int | None = None,
     progress: ProgressCallback | None = None,
-    engine: str = "gaussian",
+    engine: str | None = None,
 ) -> ModelResult:
     """Build the voxel model (kriging, cross-validation, simulations) from the intervals.
 
@@ -147,7 +147,8 @@ def run_model(
     progress
         Progress callback (see :data:`ProgressCallback`).
     engine
-        ``"gaussian"``: kriging and Gaussian simulations of log10 K, facies by thresholds
+        Overrides ``[simulation] engine``. ``"gaussian"``: kriging and Gaussian simulations
+        of log10 K, facies by thresholds
         (:func:`geo3d.model.build_voxel_model`); ``"facies"``: facies first, composited within
         facies runs, then log10 K within each facies
         (:func:`geo3d.facies_first.build_facies_first_model`).
@@ -156,10 +157,11 @@ def run_model(
     -------
     geo3d.model.ModelResult
     """
+    options = site.config.model_options()
+    engine = options.engine if engine is None else engine
     if engine not in ("gaussian", "facies"):
         msg = f"model engine {engine!r} is unknown; expected 'gaussian' or 'facies'"
         raise ModelError(msg)
-    options = site.config.model_options()
     gridder = VoxelModel(
         facies_classes=logs.facies_classes,
         variogram_model=options.variogram_model,
@@ -233,6 +235,7 @@ def _facies_first(
         },
         n_realizations=options.n_realizations if n_realizations is None else n_realizations,
         seed=options.seed,
+        data_error=logs.calibration.log10_k_error(),
         progress=callback,
     )
 

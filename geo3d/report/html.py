@@ -725,10 +725,39 @@ def _curve_shown(ctx: _Context, curve: tuple[np.ndarray, np.ndarray]) -> tuple[A
     return ctx.length(np.asarray(lags, dtype=float)), gamma
 
 
+def _facies_crossval(ctx: _Context) -> str:
+    """Confusion matrix and Brier scores of the leave-one-boring-out facies predictions."""
+    cv = None if ctx.model is None else ctx.model.facies_crossval
+    if cv is None or not len(cv.predictions):
+        return ""
+    confusion = cv.confusion().reset_index()
+    scores = pd.DataFrame(
+        {
+            "intervals": [len(cv.predictions)],
+            "accuracy (most probable facies)": [cv.accuracy()],
+            "Brier score": [cv.brier()],
+            "Brier score of the proportions alone": [cv.brier_reference()],
+            "Brier skill score": [cv.brier_skill()],
+        }
+    )
+    return (
+        "<h3>Facies, one boring left out at a time</h3>"
+        + _table(scores, caption="Facies predicted for each boring from the other borings")
+        + _table(
+            confusion,
+            caption="Intervals by observed facies (rows) and most probable predicted facies "
+            "(columns). The Brier score is the mean squared error of the predicted "
+            "probabilities (0 is perfect); the skill score compares it with predicting the "
+            "site proportions everywhere (1 is perfect, 0 no better than the proportions).",
+        )
+    )
+
+
 def _section_crossval(ctx: _Context) -> str:
     results = {} if ctx.model is None else ctx.model.crossval
+    facies = _facies_crossval(ctx)
     if not results:
-        return _note("No cross-validation is available.")
+        return facies or _note("No cross-validation is available.")
     parts, rows = [], []
     units = {"log10_k": "log10 m/s", "ec": "mS/m"}
     for variable, cv in results.items():
@@ -757,7 +786,7 @@ def _section_crossval(ctx: _Context) -> str:
                 )
             )
     parts.insert(0, _table(pd.DataFrame(rows), caption="Leave-one-boring-out statistics"))
-    return "".join(parts)
+    return "".join(parts) + facies
 
 
 def _derived_maps(ctx: _Context) -> dict[str, xr.DataArray]:
@@ -873,7 +902,8 @@ def _section_sections(ctx: _Context) -> str:
     surface = None if ctx.logs is None else ctx.logs.water_table
     intervals = ctx.intervals_shown
     for line in ctx.sections:
-        section = fg.sample_section(ds, line, variables=("facies_code", "log10_k", "mask"))
+        probs = tuple(f"prob_{n}" for n in ctx.facies_names)
+        section = fg.sample_section(ds, line, variables=("facies_code", "log10_k", "mask", *probs))
         projected = None
         max_offset = max(2.0 * dx, 0.05 * line.length)
         if intervals is not None and len(intervals) and {"x", "y", "z_mid"} <= set(intervals):
@@ -921,7 +951,26 @@ def _section_sections(ctx: _Context) -> str:
                 f"{exaggeration:.0f}\u00d7.",
             )
         )
+        parts.append(_probability_section(ctx, section, line, water))
     return "".join(parts)
+
+
+def _probability_section(ctx: _Context, section: xr.Dataset, line: Any, water: Any) -> str:
+    fig = fg.probability_section_figure(
+        section, line=line, facies_names=ctx.facies_names, water_table=water,
+        distance_unit=ctx.coord_unit, elevation_unit=ctx.length_unit,
+    )  # fmt: skip
+    if fig is None:
+        return ""
+    return _figure(
+        fig,
+        name=f"section-prob-{line.name}",
+        alt=f"Facies probabilities along section {line.name}-{line.name}'",
+        caption=f"Section {line.name}-{line.name}': probability of each hydrofacies, the share "
+        "of the realizations that put it in the cell (1 = every realization). Cells far "
+        "from the borings and near contacts are the uncertain ones; above the water table the "
+        "facies of a facies-first model come from EC.",
+    )
 
 
 def _section_view3d(ctx: _Context) -> str:
