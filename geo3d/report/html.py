@@ -300,6 +300,7 @@ class _Context:
     crs_label: str
     frame: OutputFrame
     maps: dict[str, xr.DataArray] = field(default_factory=dict)
+    facies_maps: dict[str, xr.DataArray] = field(default_factory=dict)
     sections: list = field(default_factory=list)
     log_figures: Mapping[str, bytes] = field(default_factory=dict)
 
@@ -314,11 +315,14 @@ class _Context:
         # everything drawn or tabled is shown in the output CRS and units
         frame = OutputFrame.from_site(site)
         zones = site.zones
-        maps = {
-            str(k): frame.grid(v)
-            for k, v in results.maps.items()
-            if isinstance(v, xr.DataArray) and {"y", "x"} <= set(v.dims)
-        }
+        maps, facies_maps = (
+            {
+                str(k): frame.grid(v)
+                for k, v in given.items()
+                if isinstance(v, xr.DataArray) and {"y", "x"} <= set(v.dims)
+            }
+            for given in (results.maps, results.facies_maps)
+        )
         ctx = cls(
             results=results,
             site=site,
@@ -332,6 +336,7 @@ class _Context:
             crs_label=frame.label,
             frame=frame,
             maps=maps,
+            facies_maps=facies_maps,
         )
         dataset, borings = ctx.dataset, ctx.borings
         bounds = None
@@ -760,23 +765,6 @@ def _section_crossval(ctx: _Context) -> str:
     return "".join(parts)
 
 
-def _derived_maps(ctx: _Context) -> dict[str, xr.DataArray]:
-    """Thickness and probability maps computed from the voxel model when none are given."""
-    ds = ctx.dataset
-    out: dict[str, xr.DataArray] = {}
-    if ds is None or "facies_code" not in ds:
-        return out
-    dz = float(np.abs(np.diff(ds["z"].values[:2]))[0]) if ds.sizes["z"] > 1 else 1.0
-    inside = ds["mask"].any("z") if "mask" in ds else xr.ones_like(ds["facies_code"].isel(z=0))
-    for code, name in enumerate(ctx.facies_names):
-        thickness = (ds["facies_code"] == code).sum("z") * dz
-        out[f"thickness_{name}"] = thickness.where(inside)
-        prob = f"prob_{name}"
-        if prob in ds:
-            out[f"mean_prob_{name}"] = ds[prob].mean("z", skipna=True).where(inside)
-    return out
-
-
 #: Main maps: key, label, units ("length" = the output length unit).
 _MAIN_MAPS = (
     ("transmissive_thickness", "transmissive thickness", "length"),
@@ -796,7 +784,7 @@ def _section_maps(ctx: _Context) -> str:
     given = {
         k: v for k, v in ctx.maps.items() if set(v.dims) == {"y", "x"} and not _is_water_map(k)
     }
-    derived = _derived_maps(ctx)
+    derived = ctx.facies_maps
     if not any("thick" in k for k in given):
         given.update({k: v for k, v in derived.items() if k.startswith("thickness_")})
     if not any("prob" in k for k in given):
