@@ -668,12 +668,22 @@ def _model_curves(model: CovarianceModel, max_v: float, max_h: float) -> tuple[A
     return vertical, horizontal
 
 
+#: Units of the kriged variables, as the report labels them.
+_VARIABLE_UNITS = {"log10_k": "log10 m/s", "ec": "mS/m"}
+
+
+def _variance_unit(variable: str) -> str:
+    """Return the unit of the semivariance of a kriged variable."""
+    if variable in _VARIABLE_UNITS:
+        return f"({_VARIABLE_UNITS[variable]})\u00b2"
+    return "normal score\u00b2" if "normal_score" in variable else "units\u00b2"
+
+
 def _section_variograms(ctx: _Context) -> str:
     fits = {} if ctx.model is None else ctx.model.variograms
     if not fits:
         return _note("No variograms are available (no 3D model was built).")
     parts, rows = [], []
-    units = {"log10_k": "(log10 m/s)\u00b2", "ec": "(mS/m)\u00b2"}
     lag = ctx.length_unit
     for variable, fit in fits.items():
         vertical, horizontal, model = fit.vertical, fit.horizontal, fit.model
@@ -699,9 +709,7 @@ def _section_variograms(ctx: _Context) -> str:
             vertical_model=_curve_shown(ctx, v_curve),
             horizontal_model={k: _curve_shown(ctx, c) for k, c in h_curves.items()},
             variable=variable,
-            units=units.get(
-                variable, "normal score\u00b2" if "normal_score" in variable else "units\u00b2"
-            ),
+            units=_variance_unit(variable),
             lag_unit=lag,
         )
         parts.append(
@@ -735,7 +743,6 @@ def _section_crossval(ctx: _Context) -> str:
     if not results:
         return _note("No cross-validation is available.")
     parts, rows = [], []
-    units = {"log10_k": "log10 m/s", "ec": "mS/m"}
     for variable, cv in results.items():
         summary = cv.summary
         rows.append(
@@ -750,7 +757,9 @@ def _section_crossval(ctx: _Context) -> str:
         )
         samples = cv.samples
         if len(samples) and {"observed", "estimate"} <= set(samples):
-            fig = fg.crossval_figure(samples, variable=variable, units=units.get(variable, ""))
+            fig = fg.crossval_figure(
+                samples, variable=variable, units=_VARIABLE_UNITS.get(variable, "")
+            )
             parts.append(
                 _figure(
                     fig,
