@@ -26,7 +26,6 @@ from pathlib import Path
 from types import MappingProxyType
 from typing import Any, Literal
 
-import pyproj
 from pydantic import (
     BaseModel,
     ConfigDict,
@@ -40,7 +39,7 @@ from pydantic_core import ErrorDetails
 
 from geo3d.errors import CRSError, SiteFileError, SiteValidationError, UnitError, where
 from geo3d.facies import DEFAULT_CLASSES, FaciesClass, FaciesClasses
-from geo3d.units import check_unit, length_unit_of, to_internal
+from geo3d.units import check_unit, length_unit_of, read_crs, to_internal
 
 __all__ = [
     "SiteConfig",
@@ -539,11 +538,7 @@ class OutputSection(_Section):
     def _crs(cls, value: str) -> str:
         if not value.strip():
             return ""
-        try:
-            crs = pyproj.CRS.from_user_input(value)
-        except pyproj.exceptions.CRSError as exc:
-            msg = f"cannot read CRS {value[:60]!r} ({exc}); expected EPSG:nnnn or WKT"
-            raise ValueError(msg) from None
+        crs = read_crs(value)
         if not crs.is_projected:
             msg = f"{crs.name!r} is not a projected CRS; expected one in metres or feet"
             raise ValueError(msg)

@@ -31,6 +31,7 @@ import pandas as pd
 import xarray as xr
 
 from geo3d import __version__
+from geo3d.analysis.facies_maps import facies_column_maps
 from geo3d.analysis.injection import InjectionPlan, injection_plan
 from geo3d.analysis.thickness import thickness_maps
 from geo3d.analysis.volumes import zone_volumes
@@ -763,6 +764,7 @@ def _compute(
             results.maps, results.volumes, results.injection = run_volumes(
                 site, results.logs, results.model
             )
+            results.facies_maps = facies_column_maps(results.model.dataset)
 
 
 def _run_summary(
