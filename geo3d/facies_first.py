@@ -53,7 +53,7 @@ from geo3d.geostats.facies_simulation import fit_facies_model, simulate_facies
 from geo3d.geostats.kriging import OrdinaryKriging
 from geo3d.geostats.transition import bootstrap_borings
 from geo3d.geostats.variogram import fit_anisotropic
-from geo3d.grid import build_mask, ground_surface, make_grid
+from geo3d.grid import site_grid
 from geo3d.model import ModelResult
 
 __all__ = ["build_facies_first_model", "data_facies_draws"]
@@ -65,25 +65,10 @@ _MIN_FOR_VARIOGRAM = 30
 
 
 def _grid(table, boundary, borings, crs, cell_size, dem, base, padding) -> xr.Dataset:
-    dx, dy, dz = (float(v) for v in cell_size)
     if base is None or (isinstance(base, str) and base == "auto"):
         base = float((table["z_mid"] - 0.5 * (table["bottom"] - table["top"]).abs()).min())
-    base = float(base)
-    columns = make_grid(boundary, cell_size=(dx, dy, dz), top=base + dz, base=base, crs=crs,
-                        padding=padding)  # fmt: skip
-    ground = ground_surface(columns["x"].values, columns["y"].values, borings=borings, dem=dem)
-    top = float(np.nanmax(ground))
-    if top <= base:
-        msg = f"model: the ground ({top:.2f} m) is not above the base ({base:.2f} m)"
-        raise ModelError(msg)
-    ds = make_grid(boundary, cell_size=(dx, dy, dz), top=top, base=base, crs=crs, padding=padding)
-    ds["ground_elev"] = (("y", "x"), ground)
-    ds["mask"] = build_mask(ds, boundary, ground=ground, base=base)
-    if not ds["mask"].values.any():
-        msg = "model: no cell lies inside the boundary, below the ground and above the base"
-        raise ModelError(msg)
-    ds.attrs["base"] = base
-    return ds
+    return site_grid(boundary, cell_size=tuple(float(v) for v in cell_size), base=float(base),
+                     crs=crs, padding=padding, borings=borings, dem=dem)  # fmt: skip
 
 
 def _saturated(ds: xr.Dataset, water_table: Any) -> np.ndarray:
