@@ -97,12 +97,20 @@ class NeighbourSearch:
         targets = np.ascontiguousarray(targets, dtype=float)
         if self.groups is None or max_per_group <= 0 or max_per_group >= k:
             return self._query_nearest(targets, k, ub, exclude)
-        out_d, out_i, exact = self._query_by_group(targets, k, max_per_group, ub, exclude)
+        # Rows whose nearest groups may not hold the capped neighbourhood are searched again
+        # among twice as many groups (all groups at the end: then every row is exact).
+        n_groups = len(self._group_trees().per_group) - (exclude is not None)
+        n_near = max(1, min(n_groups, -(-k // max_per_group) + 4))
+        out_d, out_i, exact = self._query_by_group(targets, k, max_per_group, ub, exclude, n_near)
         rows = np.flatnonzero(~exact)
-        if len(rows):
-            rd, ri = self._query_candidates(targets[rows], k, max_per_group, ub, exclude)
+        while len(rows) and n_near < n_groups:
+            n_near = min(n_groups, 2 * n_near)
+            rd, ri, exact = self._query_by_group(
+                targets[rows], k, max_per_group, ub, exclude, n_near
+            )
             out_d[rows] = rd
             out_i[rows] = ri
+            rows = rows[~exact]
         return out_d, out_i
 
     def _members(self, code: int) -> np.ndarray:
@@ -208,19 +216,17 @@ class NeighbourSearch:
         return near, next_box
 
     def _query_by_group(
-        self, targets: np.ndarray, k: int, cap: int, ub: float, exclude: int | None
+        self, targets: np.ndarray, k: int, cap: int, ub: float, exclude: int | None, n_near: int
     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Capped search from the ``cap`` nearest samples of each of the nearest groups.
+        """Capped search from the ``cap`` nearest samples of each of the ``n_near`` nearest groups.
 
         The capped neighbourhood is the k nearest among every group's ``cap`` nearest
         samples. Groups are visited in order of the distance to their bounding box; the result
         of a row is exact when its k-th distance does not exceed the box distance of the first
-        group left out (flagged in the third output; other rows need the slower search).
+        group left out (flagged in the third output; other rows need more groups).
         """
         trees = self._group_trees()
-        n_groups = len(trees.per_group) - (exclude is not None)
         m = len(targets)
-        n_near = max(1, min(n_groups, -(-k // cap) + 4))
         near, next_box = self._nearest_groups(targets, n_near, exclude)
         width = max(k, n_near * cap)
         cand_d = np.full((m, width), np.inf)
