@@ -77,8 +77,12 @@ def _fold_predictions(
     if ok.global_mode and ok.max_distance is None:
         est, var = _dubrule_blocks(ok, values, groups, labels)
         return est, var
-    for g in labels:
-        out = groups == g
+    _, codes = np.unique(groups, return_inverse=True)
+    order = np.argsort(codes, kind="stable")
+    bounds = np.searchsorted(codes[order], np.arange(codes.max() + 2))
+    for c, g in enumerate(np.unique(groups)):
+        out = np.zeros(len(groups), dtype=bool)
+        out[order[bounds[c] : bounds[c + 1]]] = True
         if ok.global_mode:
             fold = OrdinaryKriging(model, **options).fit(coords[~out], values[~out], groups[~out])
             est[out], var[out] = fold.predict(coords[out])

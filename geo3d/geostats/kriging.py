@@ -189,7 +189,7 @@ class OrdinaryKriging:
         self._values_ext = np.vstack([vals2, np.zeros((1, vals2.shape[1]))])
         self.z_mean_ = float(coords[:, 2].mean())
         self._drift_ext = np.append((coords[:, 2] - self.z_mean_) / self.model.range_v, 0.0)
-        self._groups = groups
+        self._labels = None if groups is None else np.unique(groups)
         self.search_ = NeighbourSearch(scaled, groups)
         self._cov_full = None
         if not self.global_mode and n <= _FULL_COV_MAX:
@@ -301,11 +301,10 @@ class OrdinaryKriging:
         estimate, variance
             As :meth:`predict`.
         """
-        fitted = getattr(self, "_groups", None)
-        if fitted is None or self.global_mode:
+        labels = getattr(self, "_labels", None)
+        if labels is None or self.global_mode:
             msg = "predict_without_group needs a moving-neighbourhood fit with group labels"
             raise ModelError(msg)
-        labels = np.unique(fitted)
         code = int(np.searchsorted(labels, np.asarray(group)))
         if code >= len(labels) or labels[code] != group:
             msg = f"group {group!r} is not among the fitted samples' groups"

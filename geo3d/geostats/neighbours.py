@@ -117,7 +117,8 @@ class NeighbourSearch:
         if self.groups is None:
             msg = "a group can only be excluded from a search built with groups"
             raise ValueError(msg)
-        return np.flatnonzero(self.groups[:-1] == code)
+        trees = self._group_trees()
+        return trees.per_group[code][1][:-1]
 
     def _query_nearest(
         self, targets: np.ndarray, k: int, ub: float, exclude: int | None
