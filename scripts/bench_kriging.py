@@ -47,6 +47,15 @@ import numpy as np
 from geo3d.geostats import CovarianceModel, OrdinaryKriging, unconditional_fields
 
 ROOT = Path(__file__).resolve().parent.parent
+#: ``fit_anisotropic`` keyword -> site model option.
+VARIOGRAM_OPTIONS = {
+    "model": "variogram_model",
+    "range_h": "range_h",
+    "range_v": "range_v",
+    "azimuth": "azimuth",
+    "minor_ratio": "minor_ratio",
+    "elevation_tolerance": "elevation_tolerance",
+}
 MODEL = CovarianceModel(
     "exponential", sill=1.0, nugget=0.1, range_h=120.0, range_v=3.0, azimuth=30.0, minor_ratio=0.6
 )
@@ -180,17 +189,8 @@ def demo_samples() -> list[tuple[str, CovarianceModel, np.ndarray, np.ndarray, n
         c = rows[["x", "y", "z_mid"]].to_numpy(float)
         v = rows[column].to_numpy(float)
         g = rows["boring_id"].to_numpy()
-        fit = fit_anisotropic(
-            c,
-            v,
-            g,
-            model=opt.variogram_model,
-            range_h=opt.range_h,
-            range_v=opt.range_v,
-            azimuth=opt.azimuth,
-            minor_ratio=opt.minor_ratio,
-            elevation_tolerance=opt.elevation_tolerance,
-        )
+        settings = {key: getattr(opt, name) for key, name in VARIOGRAM_OPTIONS.items()}
+        fit = fit_anisotropic(c, v, g, **settings)
         out.append((column, fit.model, c, v, g))
     return out
 

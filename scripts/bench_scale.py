@@ -83,22 +83,15 @@ def run_case(n_borings: int, n_cells: int, realizations: int, seed: int) -> dict
     table, borings = make_intervals(n_borings, seed)
     dz = 0.25
     dxy = float(np.sqrt(SIDE * SIDE * DEPTH / dz / n_cells))
+    shared = ("variogram_model", "azimuth", "minor_ratio", "elevation_tolerance", "neighbors")
+    shared += ("max_per_group", "drift", "max_distance", "chunk_size", "scheduler")
     gridder = VoxelModel(
         facies_classes=site.config.facies_classes(),
-        variogram_model=opt.variogram_model,
         range_h=None,
         range_v=None,
-        azimuth=opt.azimuth,
-        minor_ratio=opt.minor_ratio,
-        elevation_tolerance=opt.elevation_tolerance,
-        neighbors=opt.neighbors,
-        max_per_group=opt.max_per_group,
-        drift=opt.drift,
-        max_distance=opt.max_distance,
-        chunk_size=opt.chunk_size,
-        scheduler=opt.scheduler,
         n_realizations=realizations,
         seed=seed,
+        **{name: getattr(opt, name) for name in shared},
     )
     t0 = time.perf_counter()
     result = build_voxel_model(
