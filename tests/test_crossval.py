@@ -101,3 +101,13 @@ def test_one_fit_equals_a_refit_per_fold(options):
     np.testing.assert_allclose(got["estimate"], est, rtol=0, atol=1e-9)
     np.testing.assert_allclose(got["variance"], var, rtol=0, atol=1e-9)
     assert np.isnan(got["estimate"]).sum() == np.isnan(est).sum()
+
+
+def test_predict_without_group_says_what_is_wrong():
+    coords, values, groups = _borings(2, n_borings=4)
+    ok = OrdinaryKriging(TRUTH, neighbors=8).fit(coords, values, groups)
+    with pytest.raises(ModelError, match="not among"):
+        ok.predict_without_group(coords[:3], "B99")
+    no_groups = OrdinaryKriging(TRUTH, neighbors=8).fit(coords, values)
+    with pytest.raises(ModelError, match="group labels"):
+        no_groups.predict_without_group(coords[:3], "B01")
