@@ -246,9 +246,10 @@ class NeighbourSearch:
             d, i = _as_2d(
                 *tree.query(targets[rows], k=kg, distance_upper_bound=ub, workers=workers)
             )
-            cols = slot[:, None] * cap + np.arange(kg)
-            cand_d[rows[:, None], cols] = d
-            cand_i[rows[:, None], cols] = members[i]
+            # Flat positions: one 1-D scatter is much cheaper than a 2-D fancy index.
+            flat_pos = ((rows * width + slot * cap)[:, None] + np.arange(kg)).ravel()
+            cand_d.ravel()[flat_pos] = d.ravel()
+            cand_i.ravel()[flat_pos] = members[i].ravel()
         pick = np.argsort(cand_d, axis=1, kind="stable")[:, :k]
         out_d = np.take_along_axis(cand_d, pick, axis=1)
         out_i = np.take_along_axis(cand_i, pick, axis=1)
