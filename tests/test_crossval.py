@@ -67,3 +67,47 @@ def test_single_group_raises():
     coords, values, _ = _borings(0, n_borings=2)
     with pytest.raises(ModelError, match="2 groups"):
         leave_one_group_out(coords, values, np.zeros(len(values)), model=TRUTH)
+
+
+def _refit_per_fold(coords, values, groups, model, **options):
+    """Reference: a new estimator fitted to the other groups for every fold."""
+    est = np.full(len(values), np.nan)
+    var = np.full(len(values), np.nan)
+    for g in np.unique(groups):
+        out = groups == g
+        ok = OrdinaryKriging(model, **options).fit(coords[~out], values[~out], groups[~out])
+        est[out], var[out] = ok.predict(coords[out])
+    return est, var
+
+
+@pytest.mark.parametrize(
+    "options",
+    [
+        {"neighbors": 16, "max_per_group": 0},
+        {"neighbors": 24, "max_per_group": 6},
+        {"neighbors": 400, "max_per_group": 5},
+        {"neighbors": 20, "max_per_group": 4, "drift": "linear_z"},
+        {"neighbors": 16, "max_per_group": 4, "max_distance": 0.6},
+        {"global_mode": True},
+    ],
+)
+def test_one_fit_equals_a_refit_per_fold(options):
+    # Leave-one-group-out from one fit (search without the left-out boring; the block form of
+    # Dubrule's 1983 formulas in a global neighbourhood) must equal refitting per fold.
+    coords, values, groups = _borings(7, n_borings=12)
+    cv = leave_one_group_out(coords, values, groups, model=TRUTH, **options)
+    est, var = _refit_per_fold(coords, values, groups, TRUTH, **options)
+    got = cv.samples
+    np.testing.assert_allclose(got["estimate"], est, rtol=0, atol=1e-9)
+    np.testing.assert_allclose(got["variance"], var, rtol=0, atol=1e-9)
+    assert np.isnan(got["estimate"]).sum() == np.isnan(est).sum()
+
+
+def test_predict_without_group_says_what_is_wrong():
+    coords, values, groups = _borings(2, n_borings=4)
+    ok = OrdinaryKriging(TRUTH, neighbors=8).fit(coords, values, groups)
+    with pytest.raises(ModelError, match="not among"):
+        ok.predict_without_group(coords[:3], "B99")
+    no_groups = OrdinaryKriging(TRUTH, neighbors=8).fit(coords, values)
+    with pytest.raises(ModelError, match="group labels"):
+        no_groups.predict_without_group(coords[:3], "B01")

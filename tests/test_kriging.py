@@ -231,7 +231,7 @@ def test_capped_search_equals_brute_force(seed, k, cap, n_groups):
         assert got.tolist() == want
     # The slower candidate-filtering search (used when the per-group search is not provably
     # exact) gives the same neighbourhoods.
-    _, idx2 = search._query_candidates(targets, k, cap, np.inf)
+    _, idx2 = search._query_candidates(targets, k, cap, np.inf, None)
     np.testing.assert_array_equal(idx2, idx)
 
 

@@ -189,6 +189,7 @@ class OrdinaryKriging:
         self._values_ext = np.vstack([vals2, np.zeros((1, vals2.shape[1]))])
         self.z_mean_ = float(coords[:, 2].mean())
         self._drift_ext = np.append((coords[:, 2] - self.z_mean_) / self.model.range_v, 0.0)
+        self._labels = None if groups is None else np.unique(groups)
         self.search_ = NeighbourSearch(scaled, groups)
         self._cov_full = None
         if not self.global_mode and n <= _FULL_COV_MAX:
@@ -279,7 +280,43 @@ class OrdinaryKriging:
             return self._predict_global(targets, ts)
         return self._predict_local(targets, ts)
 
-    def _predict_local(self, targets: np.ndarray, ts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    def predict_without_group(
+        self, targets: np.ndarray, group: object
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """Krige at targets from all samples except those of one group (boring).
+
+        Equals fitting a new estimator to the other samples and predicting, but reuses this
+        fit's neighbour structures and sample covariances, so a leave-one-group-out loop costs
+        one fit. Moving neighbourhood only (not ``global_mode``).
+
+        Parameters
+        ----------
+        targets
+            ``(m, 3)`` target coordinates x, y, z (m).
+        group
+            The label of the left-out group, as given to :meth:`fit`.
+
+        Returns
+        -------
+        estimate, variance
+            As :meth:`predict`.
+        """
+        labels = getattr(self, "_labels", None)
+        if labels is None or self.global_mode:
+            msg = "predict_without_group needs a moving-neighbourhood fit with group labels"
+            raise ModelError(msg)
+        code = int(np.searchsorted(labels, np.asarray(group)))
+        if code >= len(labels) or labels[code] != group:
+            msg = f"group {group!r} is not among the fitted samples' groups"
+            raise ModelError(msg)
+        targets = np.asarray(targets, dtype=float)
+        ts = self.model.scaled(targets)
+        est, var = self._predict_local(targets, ts, exclude=code)
+        return (est[:, 0] if self._vector_ else est), var
+
+    def _predict_local(
+        self, targets: np.ndarray, ts: np.ndarray, exclude: int | None = None
+    ) -> tuple[np.ndarray, np.ndarray]:
         n, model = self.n_, self.model
         m = len(ts)
         dist, idx = self.search_.query(
@@ -287,6 +324,7 @@ class OrdinaryKriging:
             int(self.neighbors),
             max_per_group=int(self.max_per_group),
             max_distance=self.max_distance,
+            exclude=exclude,
         )
         k = idx.shape[1]
         # Sort indices so that identical neighbour sets compare equal.

@@ -8,10 +8,26 @@ the dense samples of the nearest boring cannot fill the whole neighbourhood.
 
 from __future__ import annotations
 
+from typing import NamedTuple
+
 import numpy as np
 from scipy.spatial import cKDTree
 
 __all__ = ["NeighbourSearch"]
+
+#: Below this many targets a per-group k-d tree query runs on one thread (starting threads
+#: costs more than the query).
+_THREADED_QUERY = 4096
+
+
+class _GroupTrees(NamedTuple):
+    """Per-group search structures of :class:`NeighbourSearch`."""
+
+    per_group: list[tuple[cKDTree, np.ndarray]]
+    lo: np.ndarray
+    hi: np.ndarray
+    centres: cKDTree
+    radius: float
 
 
 class NeighbourSearch:
@@ -52,6 +68,7 @@ class NeighbourSearch:
         *,
         max_per_group: int = 0,
         max_distance: float | None = None,
+        exclude: int | None = None,
     ) -> tuple[np.ndarray, np.ndarray]:
         """Return distances and indices ``(m, k)`` of the neighbours of each target.
 
@@ -65,97 +82,182 @@ class NeighbourSearch:
             At most this many neighbours from one group; 0 = no cap.
         max_distance
             Neighbours farther than this (scaled distance) are dropped.
+        exclude
+            Code of a group (its rank among the sorted group labels) whose samples are not
+            used: the search then equals a search on the other samples only.
 
         Returns
         -------
         dist, idx
             Sorted by distance per row; missing entries have ``inf`` and ``n``.
         """
-        k = int(min(k, self.n))
+        n_left = self.n if exclude is None else self.n - int(self._members(exclude).size)
+        k = int(max(1, min(k, n_left)))
         ub = np.inf if max_distance is None else float(max_distance)
         targets = np.ascontiguousarray(targets, dtype=float)
-        if max_per_group <= 0 or self.groups is None:
-            dist, idx = self.tree.query(targets, k=k, distance_upper_bound=ub, workers=self.workers)
-            return _as_2d(dist, idx)
-        if max_per_group >= k:
-            dist, idx = self.tree.query(targets, k=k, distance_upper_bound=ub, workers=self.workers)
-            return _as_2d(dist, idx)
-        out_d, out_i, exact = self._query_by_group(targets, k, max_per_group, ub)
+        if self.groups is None or max_per_group <= 0 or max_per_group >= k:
+            return self._query_nearest(targets, k, ub, exclude)
+        # Rows whose nearest groups may not hold the capped neighbourhood are searched again
+        # among twice as many groups (all groups at the end: then every row is exact).
+        n_groups = len(self._group_trees().per_group) - (exclude is not None)
+        n_near = max(1, min(n_groups, -(-k // max_per_group) + 4))
+        out_d, out_i, exact = self._query_by_group(targets, k, max_per_group, ub, exclude, n_near)
         rows = np.flatnonzero(~exact)
-        if len(rows):
-            rd, ri = self._query_candidates(targets[rows], k, max_per_group, ub)
+        while len(rows) and n_near < n_groups:
+            n_near = min(n_groups, 2 * n_near)
+            rd, ri, exact = self._query_by_group(
+                targets[rows], k, max_per_group, ub, exclude, n_near
+            )
             out_d[rows] = rd
             out_i[rows] = ri
+            rows = rows[~exact]
         return out_d, out_i
 
-    def _group_trees(self) -> list[tuple[cKDTree, np.ndarray, np.ndarray, np.ndarray]]:
-        """Per group: its k-d tree, member indices (plus sentinel), bounding box low and high."""
-        # Built in a local list and published in one assignment: chunks run on several
-        # threads, and another thread must never see a half-built list.
+    def _members(self, code: int) -> np.ndarray:
+        if self.groups is None:
+            msg = "a group can only be excluded from a search built with groups"
+            raise ValueError(msg)
+        trees = self._group_trees()
+        return trees.per_group[code][1][:-1]
+
+    def _query_nearest(
+        self, targets: np.ndarray, k: int, ub: float, exclude: int | None
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """K nearest samples (outside group ``exclude``), ties broken by sample index.
+
+        Equal distances are common on regular sample spacings; ordering them by index makes
+        the neighbourhood a function of the samples alone (not of the tree's layout), so a
+        search that leaves a group out equals a search on the other samples.
+        """
+        n_out = 0 if exclude is None else int(self._members(exclude).size)
+        m = len(targets)
+        out_d = np.empty((m, k))
+        out_i = np.empty((m, k), dtype=np.int64)
+        rows = np.arange(m)
+        kc = min(self.n, k + n_out + 2)
+        while len(rows):
+            dist, idx = _as_2d(
+                *self.tree.query(targets[rows], k=kc, distance_upper_bound=ub, workers=self.workers)
+            )
+            if exclude is not None:
+                assert self.groups is not None  # checked by _members
+                drop = self.groups[idx] == exclude
+                dist[drop] = np.inf
+                idx[drop] = self.n
+            order = np.lexsort((idx, dist), axis=1)[:, :k]
+            out_d[rows] = np.take_along_axis(dist, order, axis=1)
+            out_i[rows] = np.take_along_axis(idx, order, axis=1)
+            # A tie at the k-th distance may continue past the candidates: ask for more.
+            last = dist.max(axis=1, where=np.isfinite(dist), initial=-1.0)
+            again = (out_d[rows, -1] >= last) & np.isfinite(out_d[rows, -1]) & (last >= 0)
+            if kc >= self.n:
+                break
+            rows = rows[again]
+            kc = min(self.n, 2 * kc)
+        return out_d, out_i
+
+    def _group_trees(self) -> _GroupTrees:
+        """Per group: its k-d tree and members (plus sentinel); boxes; a tree of their centres."""
+        # Built locally and published in one assignment: chunks run on several threads, and
+        # another thread must never see a half-built structure.
         trees = getattr(self, "_trees", None)
         if trees is None:
             assert self.groups is not None  # only called with groups
             codes = self.groups[:-1]
-            trees = []
-            for g in range(int(codes.max()) + 1):
-                members = np.flatnonzero(codes == g)
+            order = np.argsort(codes, kind="stable")
+            bounds = np.searchsorted(codes[order], np.arange(int(codes.max()) + 2))
+            per_group = []
+            for g in range(len(bounds) - 1):
+                members = order[bounds[g] : bounds[g + 1]]
                 pts = self.points[members]
-                trees.append(
-                    (cKDTree(pts), np.append(members, self.n), pts.min(axis=0), pts.max(axis=0))
-                )
+                per_group.append((cKDTree(pts), np.append(members, self.n)))
+            lo = np.array([self.points[t[1][:-1]].min(axis=0) for t in per_group])
+            hi = np.array([self.points[t[1][:-1]].max(axis=0) for t in per_group])
+            centre = 0.5 * (lo[:, :2] + hi[:, :2])
+            radius = float(np.max(np.hypot(*(0.5 * (hi[:, :2] - lo[:, :2])).T)))
+            trees = _GroupTrees(per_group, lo, hi, cKDTree(centre), radius)
             self._trees = trees
         return trees
 
+    def _nearest_groups(
+        self, targets: np.ndarray, n_near: int, exclude: int | None
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """Find the ``n_near`` groups nearest each target by box distance, and the next distance.
+
+        Candidates come from a k-d tree over the horizontal box centres; a row's candidates
+        are complete when the first distance left out cannot beat the horizontal lower bound
+        (centre distance minus the largest horizontal box radius) of any group not in the
+        list. Incomplete rows are redone with twice as many candidates, so the cost per target
+        does not depend on the number of groups.
+        """
+        trees = self._group_trees()
+        n_groups = len(trees.per_group)
+        m = len(targets)
+        near = np.empty((m, n_near), dtype=np.int64)
+        next_box = np.full(m, np.inf)
+        rows = np.arange(m)
+        n_cand = min(n_groups, 2 * (n_near + 2))
+        while len(rows):
+            hd, cand = _as_2d(*trees.centres.query(targets[rows, :2], k=n_cand))
+            box = _box_distance(targets[rows], trees.lo[cand], trees.hi[cand])
+            if exclude is not None:
+                box[cand == exclude] = np.inf
+            order = np.argsort(box, axis=1, kind="stable")
+            near[rows] = np.take_along_axis(cand, order[:, :n_near], axis=1)
+            if n_cand > n_near:
+                next_box[rows] = np.take_along_axis(box, order[:, n_near : n_near + 1], axis=1)[
+                    :, 0
+                ]
+            if n_cand >= n_groups:
+                break
+            bound = hd[:, -1] - trees.radius
+            done = next_box[rows] <= bound
+            rows = rows[~done]
+            n_cand = min(n_groups, 2 * n_cand)
+        return near, next_box
+
     def _query_by_group(
-        self, targets: np.ndarray, k: int, cap: int, ub: float
+        self, targets: np.ndarray, k: int, cap: int, ub: float, exclude: int | None, n_near: int
     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Capped search from the ``cap`` nearest samples of each of the nearest groups.
+        """Capped search from the ``cap`` nearest samples of each of the ``n_near`` nearest groups.
 
         The capped neighbourhood is the k nearest among every group's ``cap`` nearest
         samples. Groups are visited in order of the distance to their bounding box; the result
         of a row is exact when its k-th distance does not exceed the box distance of the first
-        group left out (flagged in the third output; other rows need the slower search).
+        group left out (flagged in the third output; other rows need more groups).
         """
         trees = self._group_trees()
-        n_groups = len(trees)
         m = len(targets)
-        n_near = min(n_groups, -(-k // cap) + 4)
-        lo = np.array([t[2] for t in trees])
-        hi = np.array([t[3] for t in trees])
-        box = np.zeros((m, n_groups))
-        for a in range(3):
-            gap = np.maximum(lo[None, :, a] - targets[:, a : a + 1], 0.0)
-            gap = np.maximum(gap, targets[:, a : a + 1] - hi[None, :, a])
-            box += gap * gap
-        np.sqrt(box, out=box)
-        order = np.argsort(box, axis=1, kind="stable")
-        near = order[:, :n_near]
+        near, next_box = self._nearest_groups(targets, n_near, exclude)
         width = max(k, n_near * cap)
         cand_d = np.full((m, width), np.inf)
         cand_i = np.full((m, width), self.n, dtype=np.int64)
-        for g, (tree, members, _, _) in enumerate(trees):
-            rows, slot = np.nonzero(near == g)
-            if len(rows) == 0:
+        flat = near.ravel()
+        order = np.argsort(flat, kind="stable")
+        cuts = np.flatnonzero(np.diff(flat[order])) + 1
+        for part in np.split(order, cuts):
+            g = int(flat[part[0]])
+            if g == exclude:
                 continue
+            rows, slot = np.divmod(part, n_near)
+            tree, members = trees.per_group[g]
             kg = min(cap, tree.n)
+            workers = self.workers if len(rows) >= _THREADED_QUERY else 1
             d, i = _as_2d(
-                *tree.query(targets[rows], k=kg, distance_upper_bound=ub, workers=self.workers)
+                *tree.query(targets[rows], k=kg, distance_upper_bound=ub, workers=workers)
             )
-            cols = slot[:, None] * cap + np.arange(kg)
-            cand_d[rows[:, None], cols] = d
-            cand_i[rows[:, None], cols] = members[i]
+            # Flat positions: one 1-D scatter is much cheaper than a 2-D fancy index.
+            flat_pos = ((rows * width + slot * cap)[:, None] + np.arange(kg)).ravel()
+            cand_d.ravel()[flat_pos] = d.ravel()
+            cand_i.ravel()[flat_pos] = members[i].ravel()
         pick = np.argsort(cand_d, axis=1, kind="stable")[:, :k]
         out_d = np.take_along_axis(cand_d, pick, axis=1)
         out_i = np.take_along_axis(cand_i, pick, axis=1)
-        if n_near < n_groups:
-            next_box = np.take_along_axis(box, order[:, n_near : n_near + 1], axis=1)[:, 0]
-            exact = (out_d[:, -1] <= next_box) | (next_box > ub)
-        else:
-            exact = np.ones(m, dtype=bool)
+        exact = (out_d[:, -1] <= next_box) | (next_box > ub)
         return out_d, out_i, exact
 
     def _query_candidates(
-        self, targets: np.ndarray, k: int, cap: int, ub: float
+        self, targets: np.ndarray, k: int, cap: int, ub: float, exclude: int | None
     ) -> tuple[np.ndarray, np.ndarray]:
         """Capped search by filtering growing lists of nearest candidates."""
         max_per_group = cap
@@ -163,7 +265,7 @@ class NeighbourSearch:
         dist, idx = _as_2d(
             *self.tree.query(targets, k=kc, distance_upper_bound=ub, workers=self.workers)
         )
-        out_d, out_i, short = self._cap(dist, idx, k, max_per_group)
+        out_d, out_i, short = self._cap(dist, idx, k, max_per_group, exclude)
         # Rows that did not find k admissible neighbours although their candidate list was full:
         # search again with more candidates.
         redo = short & np.isfinite(dist[:, -1])
@@ -173,7 +275,7 @@ class NeighbourSearch:
             d2, i2 = _as_2d(
                 *self.tree.query(targets[rows], k=kc, distance_upper_bound=ub, workers=self.workers)
             )
-            rd, ri, rshort = self._cap(d2, i2, k, max_per_group)
+            rd, ri, rshort = self._cap(d2, i2, k, max_per_group, exclude)
             out_d[rows] = rd
             out_i[rows] = ri
             redo = np.zeros_like(redo)
@@ -181,7 +283,7 @@ class NeighbourSearch:
         return out_d, out_i
 
     def _cap(
-        self, dist: np.ndarray, idx: np.ndarray, k: int, cap: int
+        self, dist: np.ndarray, idx: np.ndarray, k: int, cap: int, exclude: int | None
     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Keep, per row, the first k candidates with at most ``cap`` from each group.
 
@@ -199,7 +301,7 @@ class NeighbourSearch:
         for j in range(kc):
             col = idx[rows, j]
             g = self.groups[col]
-            ok = (col < self.n) & (taken[rows, g] < cap)
+            ok = (col < self.n) & (taken[rows, g] < cap) & (g != exclude)
             r = rows[ok]
             out_i[r, n_out[r]] = col[ok]
             out_d[r, n_out[r]] = dist[r, j]
@@ -218,3 +320,10 @@ def _as_2d(dist: np.ndarray, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         dist = dist[:, None]
         idx = idx[:, None]
     return dist, idx
+
+
+def _box_distance(targets: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+    """Distance from each target ``(m, 3)`` to each of its boxes ``(m, c, 3)``."""
+    gap = np.maximum(lo - targets[:, None, :], 0.0)
+    gap = np.maximum(gap, targets[:, None, :] - hi)
+    return np.sqrt((gap * gap).sum(axis=2))

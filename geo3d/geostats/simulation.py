@@ -18,6 +18,7 @@ from __future__ import annotations
 import functools
 import logging
 import math
+from collections.abc import Callable
 
 import numpy as np
 from scipy.spatial import cKDTree
@@ -203,6 +204,27 @@ def _nugget_noise(
     return noise_d, noise_t
 
 
+def _by_columns(
+    chunk: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray]],
+    targets: np.ndarray,
+    n_realizations: int,
+    chunk_size: int,
+    scheduler: Scheduler,
+) -> np.ndarray:
+    """Run ``chunk`` on chunks of whole columns; return ``(r, m)`` in the targets' order.
+
+    Targets are sorted by x, y, then z: on a lattice each chunk's unconditional fields are one
+    factorised evaluation over few (x, y) columns and all their levels, and every column's x-y
+    factor is formed once for the whole lattice.
+    """
+    perm = np.lexsort((targets[:, 2], targets[:, 1], targets[:, 0]))
+    parts = _run_chunks(chunk, _chunks(targets[perm], chunk_size), scheduler)
+    out = np.empty((n_realizations, len(targets)))
+    if parts:
+        out[:, perm] = np.concatenate([p[0] for p in parts], axis=1)
+    return out
+
+
 def conditional_simulation(
     coords: np.ndarray,
     values: np.ndarray,
@@ -277,8 +299,7 @@ def conditional_simulation(
         u_t = np.array([srf(t) for srf in srfs]).reshape(r, -1)
         return est[:, 0][None, :] + u_t - est[:, 1:].T, np.empty(0)
 
-    parts = _run_chunks(chunk, _chunks(targets, int(ok.chunk_size)), scheduler)
-    out = np.concatenate([p[0] for p in parts], axis=1) if parts else np.empty((r, 0))
+    out = _by_columns(chunk, targets, r, int(ok.chunk_size), scheduler)
     if noise_t is not None:
         out += noise_t
     log.info("%d conditional realizations at %d targets", r, m)

@@ -44,27 +44,52 @@ _COLUMNS = ["lag", "gamma", "n_pairs"]
 _PAIR_BLOCK = 512
 
 
-def _bin_pairs(dist: np.ndarray, sqdiff: np.ndarray, edges: np.ndarray) -> pd.DataFrame:
-    """Bin pair distances into right-closed bins ``(e_j, e_j+1]``; drop empty bins.
+class _PairBins:
+    """Running sums of pair counts, distances and squared differences per bin.
 
-    Returns a DataFrame ``lag`` (mean pair distance in the bin), ``gamma`` (half the mean squared
-    difference, Matheron's estimator) and ``n_pairs``.
+    Pairs are added block by block and dropped, so memory does not grow with the number of
+    pairs. Bins are right-closed ``(e_j, e_j+1]``; zero distances are skipped.
     """
-    nb = len(edges) - 1
-    j = np.searchsorted(edges, dist, side="left") - 1
-    keep = (j >= 0) & (j < nb) & (dist > 0)
-    j = j[keep]
-    n = np.bincount(j, minlength=nb)
-    sd = np.bincount(j, weights=dist[keep], minlength=nb)
-    sg = np.bincount(j, weights=sqdiff[keep], minlength=nb)
-    filled = n > 0
-    return pd.DataFrame(
-        {
-            "lag": sd[filled] / n[filled],
-            "gamma": 0.5 * sg[filled] / n[filled],
-            "n_pairs": n[filled].astype(np.int64),
-        }
-    )
+
+    def __init__(self, edges: np.ndarray) -> None:
+        self.edges = np.asarray(edges, dtype=float)
+        nb = len(self.edges) - 1
+        self.n = np.zeros(nb, dtype=np.int64)
+        self.sum_d = np.zeros(nb)
+        self.sum_sq = np.zeros(nb)
+
+    def add(self, dist: np.ndarray, sqdiff: np.ndarray) -> None:
+        """Add pairs: their distances and squared value differences."""
+        nb = len(self.n)
+        j = np.searchsorted(self.edges, dist, side="left") - 1
+        keep = (j >= 0) & (j < nb) & (dist > 0)
+        j = j[keep]
+        self.n += np.bincount(j, minlength=nb)
+        self.sum_d += np.bincount(j, weights=dist[keep], minlength=nb)
+        self.sum_sq += np.bincount(j, weights=sqdiff[keep], minlength=nb)
+
+    def table(self) -> pd.DataFrame:
+        """Return ``lag``, ``gamma`` and ``n_pairs`` of the filled bins.
+
+        ``lag`` is the mean pair distance in the bin, ``gamma`` half the mean squared
+        difference (Matheron's estimator).
+        """
+        filled = self.n > 0
+        n = self.n[filled]
+        return pd.DataFrame(
+            {
+                "lag": self.sum_d[filled] / n,
+                "gamma": 0.5 * self.sum_sq[filled] / n,
+                "n_pairs": n.astype(np.int64),
+            }
+        )
+
+
+def _bin_pairs(dist: np.ndarray, sqdiff: np.ndarray, edges: np.ndarray) -> pd.DataFrame:
+    """Bin pair distances into right-closed bins ``(e_j, e_j+1]``; drop empty bins."""
+    bins = _PairBins(edges)
+    bins.add(dist, sqdiff)
+    return bins.table()
 
 
 def _as_arrays(coords, values, groups=None):
@@ -154,22 +179,19 @@ def experimental_vertical(
         msg = f"vertical lag and max_lag must be > 0, got {lag} and {max_lag}"
         raise ModelError(msg)
     coords, values, groups = _as_arrays(coords, values, groups)
-    dists, sqs = [], []
-    for g in pd.unique(groups):
-        sel = groups == g
-        if sel.sum() < 2:
-            continue
-        dists.append(pdist(coords[sel, 2:3]))
-        sqs.append(pdist(values[sel, None], "sqeuclidean"))
-    if not dists:
-        return pd.DataFrame({c: np.array([], dtype=float) for c in _COLUMNS})
     # Bins centred on multiples of the lag: composited intervals sit at a regular spacing, so
     # their elevation differences are multiples of it; on bin edges, the last bit of rounding
     # (the same site in feet or in metres) would decide the bin.
     edges = np.concatenate([[0.0], np.arange(0.5 * lag, max_lag, lag)])
     if edges[-1] < max_lag:
         edges = np.append(edges, max_lag)
-    return _bin_pairs(np.concatenate(dists), np.concatenate(sqs), edges)
+    bins = _PairBins(edges)
+    for g in pd.unique(groups):
+        sel = groups == g
+        if sel.sum() < 2:
+            continue
+        bins.add(pdist(coords[sel, 2:3]), pdist(values[sel, None], "sqeuclidean"))
+    return bins.table()
 
 
 def experimental_horizontal(
@@ -225,7 +247,7 @@ def experimental_horizontal(
     if azimuth is not None:
         a = math.radians(azimuth)
         unit = np.array([math.sin(a), math.cos(a)])
-    dists, sqs = [], []
+    bins = _PairBins(edges)
     n = len(z)
     for a0 in range(0, n, _PAIR_BLOCK):
         a1 = min(n, a0 + _PAIR_BLOCK)
@@ -243,9 +265,8 @@ def experimental_horizontal(
                 cosang = np.abs(dxy @ unit) / d
             sel = cosang >= cos_tol - 1e-12
             d, pi, pj = d[sel], pi[sel], pj[sel]
-        dists.append(d)
-        sqs.append((v[pj] - v[pi]) ** 2)
-    return _bin_pairs(np.concatenate(dists), np.concatenate(sqs), edges)
+        bins.add(d, (v[pj] - v[pi]) ** 2)
+    return bins.table()
 
 
 def _horizontal_edges(
