@@ -146,7 +146,9 @@ def test_volumes_and_export_on_a_layered_model(mini_site, tmp_path):
     assert pyproj.CRS(zones.crs).equals(site.crs)
     headline = headline_volumes(results).set_index("zone")
     assert set(headline.index) == {"site", "Z1"}
-    storage = volumes[(volumes.zone == "Z1") & (volumes.facies == "storage")]
+    storage = volumes[
+        (volumes.zone == "Z1") & (volumes.facies == "storage") & (volumes.band == "all")
+    ]
     assert headline.loc["Z1", "storage_volume_m3"] == storage["bulk_volume_m3"].item()
     assert headline.loc["Z1", "storage_volume_m3_p90"] == storage["bulk_volume_m3_p90"].item()
     assert headline.loc["Z1", "design_volume_m3"] == plans["Z1"].summary["design_volume_m3"]
