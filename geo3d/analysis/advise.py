@@ -47,6 +47,7 @@ import ast
 import logging
 import math
 import re
+import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
@@ -57,9 +58,14 @@ import xarray as xr
 from scipy.linalg import solve_triangular
 from scipy.spatial.distance import cdist
 
-from geo3d.analysis.fields import probability_stack, realization_facies, require_model
+from geo3d.analysis.fields import (
+    plan_map,
+    probability_stack,
+    realization_facies,
+    require_model,
+)
 from geo3d.analysis.volumes import Region, Zones, _regions, region_weights
-from geo3d.errors import GeometryError, ModelError
+from geo3d.errors import Geo3dWarning, GeometryError, ModelError
 from geo3d.geostats.covariance import CovarianceModel
 
 __all__ = [
@@ -580,6 +586,9 @@ class BoringAdvice:
         What was ranked.
     existing
         ``(n, 2)`` x, y of the existing borings.
+    uncertainty
+        Map ``(y, x)`` of the target's indicator variance summed down each column (weighted
+        as the target: where the target is uncertain).
     """
 
     proposed: pd.DataFrame
@@ -590,6 +599,7 @@ class BoringAdvice:
     criterion: str
     rank_zone: str
     existing: np.ndarray = field(default_factory=lambda: np.empty((0, 2)))
+    uncertainty: xr.DataArray | None = None
 
 
 def _band(values: np.ndarray, weights: np.ndarray, share: float = 0.8) -> tuple[float, float]:
@@ -677,6 +687,43 @@ def _thin(data: np.ndarray, max_data: int) -> np.ndarray:
     return data[::step]
 
 
+def _candidates(
+    ds: xr.Dataset,
+    boundary: shapely.Geometry,
+    spacing: float,
+    existing: np.ndarray,
+    min_distance: float,
+    accessible: shapely.Geometry | None,
+    levels: int,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Admissible candidates over saturated model cells, and the points of their borings."""
+    xy = candidate_grid(boundary, spacing, existing=existing, min_distance=min_distance,
+                        accessible=accessible)  # fmt: skip
+    columns = column_points(ds, xy, levels=levels)
+    usable = np.all(np.isfinite(columns), axis=(1, 2))
+    if not usable.any():
+        msg = (
+            "advise: no admissible candidate (inside the boundary and the accessible areas, "
+            f"at least {min_distance:g} m from the borings, over saturated model cells); "
+            "expected a finer spacing, a smaller minimum distance or larger accessible areas"
+        )
+        raise GeometryError(msg)
+    return xy[usable], columns[usable]
+
+
+def _ensure_uncertain(ds: xr.Dataset, cells: TargetCells, zone: str) -> None:
+    """Fall back on the kriging variance alone when the model leaves the target certain."""
+    if np.any(cells.weights[zone] * cells.variance > 0):
+        return
+    warnings.warn(
+        f"advise: the model leaves the {cells.name} target of {zone} without uncertainty (its "
+        "facies probabilities are 0 or 1 in every cell); ranking by the kriging variance alone",
+        Geo3dWarning,
+        stacklevel=3,
+    )
+    cells.variance = ds.voxels.mask.astype(float)
+
+
 def advise_borings(
     ds: xr.Dataset,
     data: np.ndarray,
@@ -731,12 +778,7 @@ def advise_borings(
     Returns
     -------
     BoringAdvice
-
-    References
-    ----------
-    .. [1] Christakos, G. (1992) Random Field Models in Earth Sciences. Academic Press, ch. 10.
-    .. [2] van Groenigen, J.W. (1999) Constrained optimisation of spatial sampling: a
-       geostatistical approach. PhD thesis, Wageningen University.
+        The method and its sources are in the module docstring.
     """
     ds = require_model(ds)
     if int(n_borings) < 1:
@@ -751,18 +793,8 @@ def advise_borings(
     existing = np.asarray(existing, float).reshape(-1, 2)
     if spacing is None:
         spacing = math.sqrt(boundary.area / 400.0)
-    xy = candidate_grid(boundary, spacing, existing=existing, min_distance=min_distance,
-                        accessible=accessible)  # fmt: skip
-    columns = column_points(ds, xy, levels=levels)
-    usable = np.all(np.isfinite(columns), axis=(1, 2))
-    xy, columns = xy[usable], columns[usable]
-    if len(xy) == 0:
-        msg = (
-            "advise: no admissible candidate (inside the boundary and the accessible areas, "
-            f"at least {min_distance:g} m from the borings, over saturated model cells); "
-            "expected a finer spacing, a smaller minimum distance or larger accessible areas"
-        )
-        raise GeometryError(msg)
+    xy, columns = _candidates(ds, boundary, spacing, existing, min_distance, accessible, levels)
+    _ensure_uncertain(ds, cells, rank_zone)
     support = support_points(ds, cells, max_points=max_points)
     design = BoringDesign(covariance, _thin(data, max_data), columns, support,
                           criterion=criterion, rank_zone=rank_zone)  # fmt: skip
@@ -800,5 +832,12 @@ def _advice(
             float(_expected_width(widths[rank], history[0][rank], history[k][rank]))
             for k in proposed["rank"]])  # fmt: skip
     candidates = pd.DataFrame({"x": xy[:, 0], "y": xy[:, 1], "variance_reduction": first})
+    weight = cells.weights[design.support.zones[rank]]
+    uncertainty = plan_map(
+        ds,
+        (weight * cells.variance).sum(axis=0),
+        "target_variance",
+        {"long_name": f"{cells.name} target: weighted indicator variance"},
+    )
     return BoringAdvice(proposed, candidates, zones, cells.name, cells.unit, design.criterion,
-                        design.support.zones[rank], existing)  # fmt: skip
+                        design.support.zones[rank], existing, uncertainty)  # fmt: skip
