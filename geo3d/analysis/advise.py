@@ -143,7 +143,8 @@ class TargetCells:
     facies
         Code of the facies whose indicator the target sums.
     variance
-        Indicator variance ``p (1 - p)`` per cell ``(nz, ny, nx)`` (0 where unknown).
+        Indicator variance ``p (1 - p)`` per cell ``(nz, ny, nx)`` (0 where unknown), with p
+        the facies frequency over the realizations (the ``prob_<facies>`` variable without).
     total
         Name of the combined target (the sum of the zones) in :attr:`weights`.
     """
@@ -175,6 +176,14 @@ def _zone_regions(ds: xr.Dataset, zones: Zones) -> list[Region]:
         logger.info("no treatment zone: the target is the saturated model")
         regions = [Region("site")]
     return regions
+
+
+def _indicator_mean(ds: xr.Dataset, facies: int) -> np.ndarray:
+    """Probability of a facies per cell: frequency over the realizations, else ``prob_``."""
+    sims = realization_facies(ds)
+    if len(sims) >= 2:
+        return np.mean([codes == facies for codes in sims], axis=0)
+    return np.clip(probability_stack(ds)[facies], 0.0, 1.0)
 
 
 def target_cells(
@@ -209,7 +218,7 @@ def target_cells(
         raise ModelError(msg)
     classes = ds.voxels.facies_classes
     facies = classes.storage if target == "storage" else classes.transmissive
-    prob = np.clip(probability_stack(ds)[facies], 0.0, 1.0)
+    prob = _indicator_mean(ds, facies)
     cell_volume = ds.voxels.cell_volume
     mask = ds.voxels.mask
     weights: dict[str, np.ndarray] = {}
@@ -690,15 +699,21 @@ def _thin(data: np.ndarray, max_data: int) -> np.ndarray:
 def _candidates(
     ds: xr.Dataset,
     boundary: shapely.Geometry,
-    spacing: float,
+    spacing: float | None,
     existing: np.ndarray,
     min_distance: float,
     accessible: shapely.Geometry | None,
     levels: int,
+    *,
+    given: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Admissible candidates over saturated model cells, and the points of their borings."""
-    xy = candidate_grid(boundary, spacing, existing=existing, min_distance=min_distance,
-                        accessible=accessible)  # fmt: skip
+    if given is not None:
+        xy = np.asarray(given, float).reshape(-1, 2)
+    else:
+        spacing = math.sqrt(boundary.area / 400.0) if spacing is None else spacing
+        xy = candidate_grid(boundary, spacing, existing=existing, min_distance=min_distance,
+                            accessible=accessible)  # fmt: skip
     columns = column_points(ds, xy, levels=levels)
     usable = np.all(np.isfinite(columns), axis=(1, 2))
     if not usable.any():
@@ -737,6 +752,7 @@ def advise_borings(
     spacing: float | None = None,
     min_distance: float = 0.0,
     accessible: shapely.Geometry | None = None,
+    candidates: np.ndarray | None = None,
     criterion: str = "summed",
     rank_zone: str | None = None,
     design_fraction: float | Mapping[str, float] = 0.2,
@@ -748,10 +764,8 @@ def advise_borings(
 
     Parameters
     ----------
-    ds
-        The VoxelModel Dataset.
-    data
-        ``(n, 3)`` x, y, z of the data the model was conditioned on (interval midpoints).
+    ds, data
+        The VoxelModel Dataset; ``(n, 3)`` x, y, z of its data (interval midpoints).
     existing
         ``(n, 2)`` x, y of the existing borings.
     boundary
@@ -759,11 +773,14 @@ def advise_borings(
     n_borings
         Borings to propose (>= 1).
     covariance
-        Covariance of the field; default the one recorded in ``ds.attrs``.
+        Covariance of the field; default the one in ``ds.attrs``.
     zones, target, design_fraction
         The design target (see :func:`target_cells`).
     spacing
         Candidate grid spacing (m); default about 400 candidates over the boundary.
+    candidates
+        ``(n, 2)`` x, y of given candidate locations, instead of the grid and its
+        constraints (spacing, minimum distance from the existing borings, accessible areas).
     min_distance
         Minimum distance (m) of a proposed boring from existing and other proposed borings.
     accessible
@@ -778,7 +795,7 @@ def advise_borings(
     Returns
     -------
     BoringAdvice
-        The method and its sources are in the module docstring.
+        (Method and sources: the module docstring.)
     """
     ds = require_model(ds)
     if int(n_borings) < 1:
@@ -791,9 +808,8 @@ def advise_borings(
         msg = f"advise: zone {rank_zone!r} is unknown; expected one of {list(cells.weights)}"
         raise GeometryError(msg)
     existing = np.asarray(existing, float).reshape(-1, 2)
-    if spacing is None:
-        spacing = math.sqrt(boundary.area / 400.0)
-    xy, columns = _candidates(ds, boundary, spacing, existing, min_distance, accessible, levels)
+    xy, columns = _candidates(ds, boundary, spacing, existing, min_distance, accessible, levels,
+                              given=candidates)  # fmt: skip
     _ensure_uncertain(ds, cells, rank_zone)
     support = support_points(ds, cells, max_points=max_points)
     design = BoringDesign(covariance, _thin(data, max_data), columns, support,
