@@ -48,7 +48,7 @@ from geo3d.analysis.volumes import zone_volumes
 from geo3d.analysis.water_table import depth_to_water_map, water_table_map
 from geo3d.checks import check_site, report
 from geo3d.checks.resources import estimate_resources
-from geo3d.errors import Geo3dError, Geo3dWarning, GeometryError, ModelError, where
+from geo3d.errors import Geo3dError, Geo3dWarning, GeometryError, ModelError
 from geo3d.facies_first import build_facies_first_model
 from geo3d.geostats.covariance import CovarianceModel
 from geo3d.geostats.variogram import VariogramFit
@@ -57,7 +57,7 @@ from geo3d.io.advice import write_advice
 from geo3d.io.atomic import atomic_file
 from geo3d.io.outdir import safe_output_folder
 from geo3d.io.output_frame import OutputFrame
-from geo3d.io.vector import read_layer
+from geo3d.io.vector import read_area
 from geo3d.logs.process import LogResults, process_logs
 from geo3d.logs.runs import composite_runs
 from geo3d.model import ModelResult, VoxelModel, build_voxel_model
@@ -80,7 +80,6 @@ __all__ = [
     "run_report",
     "headline_volumes",
     "planned_stages",
-    "accessible_area",
     "run_advise",
     "AdviceOptions",
     "advise",
@@ -878,31 +877,6 @@ def _advice_covariance(model: ModelResult) -> CovarianceModel:
     return covariance_from_attrs(model.dataset)
 
 
-def accessible_area(path: str | PathLike, *, crs: Any) -> shapely.Geometry:
-    """Read a polygon layer of accessible areas (GeoJSON or GeoPackage) as one geometry.
-
-    Raises
-    ------
-    GeometryError
-        Missing or unreadable file, a feature that is not a valid polygon.
-    CRSError
-        The layer has no CRS.
-    """
-    file = Path(path)
-    layer = read_layer(file, crs=crs, what="accessible-area")
-    for row, geom in enumerate(layer.geometry, start=1):
-        if geom is None or geom.is_empty or geom.geom_type not in ("Polygon", "MultiPolygon"):
-            kind = "no geometry" if geom is None or geom.is_empty else geom.geom_type
-            msg = f"{where(file, row=row, column='geometry')}: {kind}; expected a polygon"
-            raise GeometryError(msg)
-        if not geom.is_valid:
-            msg = (
-                f"{where(file, row=row, column='geometry')}: invalid polygon; expected a valid one"
-            )
-            raise GeometryError(msg)
-    return shapely.union_all(list(layer.geometry))
-
-
 @dataclass(frozen=True)
 class AdviceOptions:
     """Settings of the boring advice, checked against the site before any modelling.
@@ -968,7 +942,11 @@ class AdviceOptions:
             raise GeometryError(msg)
         spacing = math.sqrt(site.boundary.area / 400.0) if spacing is None else float(spacing)
         distance = spacing if min_distance is None else float(min_distance)
-        area = None if accessible is None else accessible_area(accessible, crs=site.crs)
+        area = (
+            None
+            if accessible is None
+            else read_area(accessible, crs=site.crs, what="accessible-area")
+        )
         existing = site.borings[["x", "y"]].to_numpy(float)
         if not len(candidate_grid(site.boundary, spacing, existing=existing,
                                   min_distance=distance, accessible=area)):  # fmt: skip
