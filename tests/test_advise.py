@@ -227,6 +227,11 @@ def test_advice_tables_and_targets():
     cells = target_cells(ds, zones, "storage")
     assert cells.weights["A"].sum() == pytest.approx(16 * 26 * 3)
     assert cells.weights["all zones"].sum() == pytest.approx(2 * 16 * 26 * 3)
+    # the mean transmissive thickness weights sum to the zone's thickness, 3 m, and the combined
+    # target is the area-weighted mean of the two equal zones (construction)
+    thick = target_cells(ds, zones, "transmissive")
+    assert thick.weights["A"].sum() == pytest.approx(3.0)
+    assert thick.weights["all zones"].sum() == pytest.approx(3.0)
 
 
 def test_candidates_columns_and_errors():

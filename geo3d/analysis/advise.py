@@ -222,14 +222,15 @@ def target_cells(
     cell_volume = ds.voxels.cell_volume
     mask = ds.voxels.mask
     weights: dict[str, np.ndarray] = {}
+    areas: dict[str, float] = {}
     for region in _zone_regions(ds, zones):
         weight, colfrac, _ = region_weights(ds, region)
         if region.geometry is None and "saturated" in ds:
             weight = weight * ds["saturated"].values.astype(bool)
         w = weight * cell_volume
+        areas[region.name] = float((colfrac * mask.any(axis=0)).sum() * ds.voxels.cell_area)
         if target == "transmissive":
-            area = float((colfrac * mask.any(axis=0)).sum() * ds.voxels.cell_area)
-            w = w / area if area > 0 else w * 0.0
+            w = w / areas[region.name] if areas[region.name] > 0 else w * 0.0
         elif target == "injection":
             f = (
                 design_fraction.get(region.name, 0.2)
@@ -238,11 +239,13 @@ def target_cells(
             )
             w = w * float(f) * float(classes.effective_porosity[facies])
         weights[region.name] = w
+    total = next(iter(weights))
     if len(weights) > 1:
-        weights = {"all zones": sum(weights.values()), **weights}  # type: ignore[dict-item]
-        total = "all zones"
-    else:
-        total = next(iter(weights))
+        # volumes add up over the zones; the mean thickness of all zones is area-weighted
+        share = {z: areas[z] / sum(areas.values()) if target == "transmissive" else 1.0
+                 for z in weights}  # fmt: skip
+        combined = sum(weights[z] * share[z] for z in weights)
+        weights, total = {"all zones": np.asarray(combined), **weights}, "all zones"
     unit = "m" if target == "transmissive" else "m3"
     variance = np.where(mask, prob * (1.0 - prob), 0.0)
     return TargetCells(target, unit, weights, int(facies), variance, total)
