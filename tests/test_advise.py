@@ -240,6 +240,8 @@ def test_candidates_columns_and_errors():
     assert grid.tolist() == [[7.5, 2.5], [2.5, 7.5], [7.5, 7.5]]
     with pytest.raises(GeometryError, match="spacing"):
         candidate_grid(shapely.box(0, 0, 10, 10), 0.0)
+    with pytest.raises(GeometryError, match=r"at most 1500 .* at least 2.58 m"):
+        candidate_grid(shapely.box(0, 0, 100, 100), 1.0)  # 10000 candidates: sqrt(10000/1500)
     ds = _voxel_model()
     points = column_points(ds, np.array([[10.9, 3.1]]), levels=4)
     # nearest column x = 11, y = 3; saturated cells z = 0.25 .. 4.75 (construction)

@@ -89,6 +89,8 @@ TARGETS = ("storage", "transmissive", "injection")
 CRITERIA = ("summed", "block")
 #: z of the standard normal at 90 % (P10-P90 of a Gaussian spans 2 z90 standard deviations).
 Z90 = 1.2815515655446004
+#: Most candidates ranked at once (memory: support points x candidates x levels doubles).
+MAX_CANDIDATES = 1500
 #: Relative jitter on the diagonal of the data covariance (keeps the Cholesky factor stable).
 _JITTER = 1e-9
 #: Floor of the normalised kriging variance used to scale a cell's variance.
@@ -258,6 +260,7 @@ def candidate_grid(
     existing: np.ndarray | None = None,
     min_distance: float = 0.0,
     accessible: shapely.Geometry | None = None,
+    max_candidates: int = MAX_CANDIDATES,
 ) -> np.ndarray:
     """Candidate boring locations: a square grid inside the site boundary.
 
@@ -273,6 +276,9 @@ def candidate_grid(
         Candidates closer than this (m) to an existing boring are left out.
     accessible
         Polygon(s) of the accessible areas; candidates outside are left out.
+    max_candidates
+        More admissible candidates than this is an error (the design holds a matrix of
+        support points by candidate points).
 
     Returns
     -------
@@ -301,6 +307,14 @@ def candidate_grid(
     keep = shapely.contains_xy(area, xy[:, 0], xy[:, 1])
     if existing is not None and len(existing) and min_distance > 0:
         keep &= cdist(xy, np.asarray(existing, float)[:, :2]).min(axis=1) >= min_distance
+    n = int(keep.sum())
+    if n > max_candidates:
+        msg = (
+            f"advise: {n} candidates at {spacing:g} m spacing; at most {max_candidates} are "
+            f"ranked at once (memory); expected a spacing of at least "
+            f"{spacing * math.sqrt(n / max_candidates):.3g} m or an accessible-area layer"
+        )
+        raise GeometryError(msg)
     return xy[keep]
 
 
@@ -761,7 +775,7 @@ def advise_borings(
     design_fraction: float | Mapping[str, float] = 0.2,
     levels: int = 12,
     max_points: int = 1500,
-    max_data: int = 3000,
+    max_data: int = 2000,
 ) -> BoringAdvice:
     """Rank candidate locations and choose ``n_borings`` new borings greedily.
 
