@@ -120,9 +120,14 @@ def advice_map_figure(
     return fig
 
 
+def _number(value: float) -> str:
+    """Format coordinates and large figures to 0.1, small ones to 3 significant digits."""
+    return f"{value:,.1f}" if abs(value) >= 1000 else f"{value:.3g}"
+
+
 def _table_html(table: pd.DataFrame) -> str:
-    return table.to_html(index=False, float_format=lambda v: f"{v:,.3g}", border=0,
-                         classes="advice", na_rep="-")  # fmt: skip
+    return table.to_html(index=False, float_format=_number, border=0, classes="advice",
+                         na_rep="-")  # fmt: skip
 
 
 def advice_html(
@@ -135,7 +140,9 @@ def advice_html(
 ) -> str:
     """Return a self-contained HTML page: the map and the tables of the advice."""
     label = _TARGET_LABEL.get(advice.target, advice.target)
-    proposed = to_output_units(proposed_table(advice), frame=frame)
+    proposed = to_output_units(proposed_table(advice), frame=frame).drop(
+        columns=["target", "zone", "criterion"]
+    )
     zones = to_output_units(zone_table(advice), frame=frame)
     crit = (
         "kriging variance summed over the target's cells"
