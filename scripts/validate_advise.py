@@ -147,6 +147,8 @@ def main() -> None:
             start = time.perf_counter()
             row = trial(seed, Path(scratch), args)
             rows.append(row)
+            if args.csv is not None:  # after every trial, so that a stopped run keeps its rows
+                pd.DataFrame(rows).to_csv(args.csv, index=False)
             print(f"seed {seed}: {row['n_borings']} borings, {row['n_held']} held out; width "
                   f"{row['width_before']:.1f} m3 -> advised {row['width_advised']:.1f} "
                   f"({row['advised_boring']}), random {row['width_random']:.1f}, largest "
@@ -155,8 +157,6 @@ def main() -> None:
                   f"{row['error_maxvar']:.1f} m3; advise {row['advise_s']:.1f} s, trial "
                   f"{time.perf_counter() - start:.0f} s", flush=True)  # fmt: skip
     table = pd.DataFrame(rows)
-    if args.csv is not None:
-        table.to_csv(args.csv, index=False)
     for name in ("advised", "random", "maxvar"):
         narrowing = 1 - table[f"width_{name}"] / table["width_before"]
         print(f"{name}: median narrowing {narrowing.median():.3f}, mean {narrowing.mean():.3f}; "
