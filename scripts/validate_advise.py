@@ -157,8 +157,10 @@ def main() -> None:
                   f"{row['error_maxvar']:.1f} m3; advise {row['advise_s']:.1f} s, trial "
                   f"{time.perf_counter() - start:.0f} s", flush=True)  # fmt: skip
     table = pd.DataFrame(rows)
+    banded = table[table["width_before"] > 0]  # a zero band cannot narrow
+    print(f"{len(banded)} of {len(table)} trials have a non-zero band before the new boring")
     for name in ("advised", "random", "maxvar"):
-        narrowing = 1 - table[f"width_{name}"] / table["width_before"]
+        narrowing = 1 - banded[f"width_{name}"] / banded["width_before"]
         print(f"{name}: median narrowing {narrowing.median():.3f}, mean {narrowing.mean():.3f}; "
               f"median |error| {table[f'error_{name}'].median():.1f} m3")  # fmt: skip
     print(f"advised_beats_random: {_beats(table, 'random'):.3f} advised_beats_maxvar: "
