@@ -26,7 +26,6 @@ from pathlib import Path
 from types import MappingProxyType
 from typing import Any, Literal
 
-import pyproj
 from pydantic import (
     BaseModel,
     ConfigDict,
@@ -40,7 +39,7 @@ from pydantic_core import ErrorDetails
 
 from geo3d.errors import CRSError, SiteFileError, SiteValidationError, UnitError, where
 from geo3d.facies import DEFAULT_CLASSES, FaciesClass, FaciesClasses
-from geo3d.units import check_unit, length_unit_of, to_internal
+from geo3d.units import check_unit, length_unit_of, read_crs, to_internal
 
 __all__ = [
     "SiteConfig",
@@ -387,7 +386,7 @@ class FaciesSection(_Section):
         "thresholds", description="thresholds | mixture (Gaussian mixture on log10 K and EC)."
     )
     min_thickness: float = Field(
-        0.3, ge=0, description="Thinner runs are merged into their neighbours, in [units] length."
+        0.1, ge=0, description="Thinner runs are merged into their neighbours, in [units] length."
     )
     classes: list[FaciesClassConfig] = Field(
         default_factory=_default_classes,
@@ -488,6 +487,13 @@ class SimulationSection(_Section):
 
     realizations: int = Field(20, ge=0, description="Number of realizations (0 = none).")
     seed: int = Field(20261202, description="Random seed.")
+    engine: Literal["gaussian", "facies"] = Field(
+        "gaussian",
+        description=(
+            "gaussian: kriging and Gaussian simulation of log10 K, facies by thresholds; "
+            "facies: facies simulated first, then log10 K within each facies."
+        ),
+    )
 
 
 class TreatmentSection(_Section):
@@ -532,11 +538,7 @@ class OutputSection(_Section):
     def _crs(cls, value: str) -> str:
         if not value.strip():
             return ""
-        try:
-            crs = pyproj.CRS.from_user_input(value)
-        except pyproj.exceptions.CRSError as exc:
-            msg = f"cannot read CRS {value[:60]!r} ({exc}); expected EPSG:nnnn or WKT"
-            raise ValueError(msg) from None
+        crs = read_crs(value)
         if not crs.is_projected:
             msg = f"{crs.name!r} is not a projected CRS; expected one in metres or feet"
             raise ValueError(msg)
@@ -1040,6 +1042,8 @@ class ModelOptions:
         Conditional simulations of log10 K (``[simulation] realizations``).
     seed
         Seed of the simulations.
+    engine
+        ``'gaussian'`` or ``'facies'`` (``[simulation] engine``).
     """
 
     cell_size: tuple[float, float, float]
@@ -1059,6 +1063,7 @@ class ModelOptions:
     scheduler: str
     n_realizations: int
     seed: int
+    engine: str = "gaussian"
 
 
 @dataclass(frozen=True)
@@ -1105,6 +1110,7 @@ def _model_options(config: SiteConfig) -> ModelOptions:
         scheduler=kriging.scheduler or "threads",
         n_realizations=config.simulation.realizations,
         seed=config.simulation.seed,
+        engine=config.simulation.engine,
     )
 
 

@@ -42,19 +42,21 @@ import numpy as np
 import pandas as pd
 import shapely
 import xarray as xr
+from scipy.ndimage import gaussian_filter1d
 
 from geo3d.ec_facies import EcFaciesClassifier
 from geo3d.errors import Geo3dWarning, ModelError
 from geo3d.facies import FaciesClasses
 from geo3d.geostats.censored import censored_expectation, fit_censored_normal
+from geo3d.geostats.facies_crossval import FaciesCrossValidation, facies_cross_validation
 from geo3d.geostats.facies_simulation import fit_facies_model, simulate_facies
 from geo3d.geostats.kriging import OrdinaryKriging
 from geo3d.geostats.transition import bootstrap_borings
 from geo3d.geostats.variogram import fit_anisotropic
-from geo3d.grid import build_mask, ground_surface, make_grid
+from geo3d.grid import site_grid
 from geo3d.model import ModelResult
 
-__all__ = ["build_facies_first_model"]
+__all__ = ["build_facies_first_model", "data_facies_draws"]
 
 logger = logging.getLogger(__name__)
 
@@ -63,25 +65,10 @@ _MIN_FOR_VARIOGRAM = 30
 
 
 def _grid(table, boundary, borings, crs, cell_size, dem, base, padding) -> xr.Dataset:
-    dx, dy, dz = (float(v) for v in cell_size)
     if base is None or (isinstance(base, str) and base == "auto"):
         base = float((table["z_mid"] - 0.5 * (table["bottom"] - table["top"]).abs()).min())
-    base = float(base)
-    columns = make_grid(boundary, cell_size=(dx, dy, dz), top=base + dz, base=base, crs=crs,
-                        padding=padding)  # fmt: skip
-    ground = ground_surface(columns["x"].values, columns["y"].values, borings=borings, dem=dem)
-    top = float(np.nanmax(ground))
-    if top <= base:
-        msg = f"model: the ground ({top:.2f} m) is not above the base ({base:.2f} m)"
-        raise ModelError(msg)
-    ds = make_grid(boundary, cell_size=(dx, dy, dz), top=top, base=base, crs=crs, padding=padding)
-    ds["ground_elev"] = (("y", "x"), ground)
-    ds["mask"] = build_mask(ds, boundary, ground=ground, base=base)
-    if not ds["mask"].values.any():
-        msg = "model: no cell lies inside the boundary, below the ground and above the base"
-        raise ModelError(msg)
-    ds.attrs["base"] = base
-    return ds
+    return site_grid(boundary, cell_size=tuple(float(v) for v in cell_size), base=float(base),
+                     crs=crs, padding=padding, borings=borings, dem=dem)  # fmt: skip
 
 
 def _saturated(ds: xr.Dataset, water_table: Any) -> np.ndarray:
@@ -109,23 +96,121 @@ def _unsaturated_draws(table: pd.DataFrame, n_classes: int) -> tuple[np.ndarray,
     return unknown, classifier.predict_proba(ec[unknown])
 
 
+def _run_ids(table: pd.DataFrame) -> np.ndarray:
+    """Index of the facies run (consecutive intervals of one boring and facies) of each row."""
+    boring = table["boring_id"].to_numpy()
+    code = table["facies_code"].to_numpy(int)
+    new = np.r_[True, (boring[1:] != boring[:-1]) | (code[1:] != code[:-1])]
+    return np.cumsum(new) - 1
+
+
+#: Step (log10 units) of the grid on which the interval posteriors are computed, and the
+#: smoothing of the empirical prior.
+_POSTERIOR_STEP = 0.02
+_PRIOR_SMOOTHING = 0.05
+
+
+def _run_posteriors(values: np.ndarray, runs: np.ndarray, scatter: float) -> tuple[np.ndarray, ...]:
+    """Posterior weights of the true log10 K of each run on a grid (empirical Bayes).
+
+    Returns ``(grid, weights)``: ``weights[r]`` is proportional to ``f(t) * phi((m_r - t) / s)``
+    on ``grid``, with ``f`` the smoothed histogram of the exact interval values (the prior),
+    ``m_r`` the run's mean value and ``s`` the scatter.
+    """
+    n_runs = int(runs.max()) + 1
+    means = np.bincount(runs, weights=values, minlength=n_runs) / np.maximum(
+        np.bincount(runs, minlength=n_runs), 1
+    )
+    pad = 4.0 * scatter + 4.0 * _PRIOR_SMOOTHING
+    grid = np.arange(values.min() - pad, values.max() + pad + _POSTERIOR_STEP, _POSTERIOR_STEP)
+    prior = np.histogram(values, bins=np.r_[grid - _POSTERIOR_STEP / 2, grid[-1] + 0.01])[0]
+    prior = gaussian_filter1d(prior.astype(float), _PRIOR_SMOOTHING / _POSTERIOR_STEP)
+    if scatter <= 0:
+        weights = np.zeros((n_runs, grid.size))
+        weights[np.arange(n_runs), np.abs(grid[None, :] - means[:, None]).argmin(axis=1)] = 1.0
+        return grid, weights
+    weights = prior[None, :] * np.exp(-0.5 * ((means[:, None] - grid[None, :]) / scatter) ** 2)
+    total = weights.sum(axis=1, keepdims=True)
+    return grid, np.where(total > 0, weights / np.where(total > 0, total, 1.0), 0.0)
+
+
+def data_facies_draws(
+    table: pd.DataFrame,
+    facies: FaciesClasses,
+    *,
+    n_realizations: int,
+    error: tuple[float, float],
+    rng: np.random.Generator,
+) -> np.ndarray:
+    """Facies of the conditioning intervals, redrawn per realization from their K error.
+
+    The log-derived log10 K of an interval is uncertain (:meth:`geo3d.logs.calibration.
+    Calibration.log10_k_error`): a site-wide offset ``N(0, offset_sd)`` shared by every interval
+    and a scatter ``N(0, scatter_sd)`` shared by the intervals of one facies run.  The true
+    value of a run given its measured mean ``m`` follows Bayes' theorem with the distribution of
+    all measured values as the prior (empirical Bayes): ``p(t | m) ~ f(t) phi((m - t) / s)``,
+    so that a run near a class threshold on the flank of a dense mode is pulled towards the
+    mode rather than spread evenly across the threshold.  Each realization draws the offset,
+    moves the class thresholds by it and draws each run's facies from its posterior class
+    probabilities.  Censored intervals (K at or beyond a bound) and unclassified ones keep
+    their code.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(n_realizations, n_intervals)`` facies codes.
+
+    References
+    ----------
+    .. [1] Carroll, R.J., Ruppert, D., Stefanski, L.A., Crainiceanu, C.M. (2006) Measurement
+       Error in Nonlinear Models, 2nd ed. Chapman & Hall/CRC, ch. 8 (Bayesian treatment of
+       a covariate measured with error).
+    .. [2] Efron, B. (2010) Large-Scale Inference. Cambridge University Press, ch. 1
+       (empirical Bayes: the prior estimated from the ensemble of measurements).
+    """
+    codes = np.tile(table["facies_code"].to_numpy(int), (n_realizations, 1))
+    offset_sd, scatter_sd = (float(v) for v in error)
+    if offset_sd <= 0 and scatter_sd <= 0:
+        return codes
+    censored = table.get("k_censored", pd.Series("", index=table.index)).fillna("")
+    values = table["log10_k"].to_numpy(float)
+    exact = np.flatnonzero((codes[0] >= 0) & np.isfinite(values) & (censored.to_numpy() == ""))
+    if exact.size == 0:
+        return codes
+    runs = np.unique(_run_ids(table)[exact], return_inverse=True)[1]
+    grid, weights = _run_posteriors(values[exact], runs, scatter_sd)
+    n_classes = len(facies.names)
+    for r in range(n_realizations):
+        onehot = np.eye(n_classes)[facies.classify(grid + rng.normal(0.0, offset_sd))]
+        prob = weights @ onehot
+        u = rng.random(prob.shape[0])[:, None]
+        drawn = np.minimum((np.cumsum(prob, axis=1) < u).sum(axis=1), n_classes - 1)
+        codes[r, exact] = drawn[runs]
+    return codes
+
+
 def _facies_realizations(
     table: pd.DataFrame,
     ds: xr.Dataset,
-    n_classes: int,
+    facies: FaciesClasses,
     *,
     n_realizations: int,
     seed: int,
     bootstrap: bool,
     neighbors: int,
+    data_error: tuple[float, float],
 ) -> np.ndarray:
+    n_classes = len(facies.names)
     mask = ds["mask"].values
     targets = ds.voxels.centres()
     dz = ds.voxels.cell_size[2]
     z_edges = np.arange(float(ds["z"].values.min()) - dz / 2, float(ds["z"].values.max()) + dz, dz)
     unknown, probs = _unsaturated_draws(table, n_classes)
     rng = np.random.default_rng(np.random.SeedSequence([seed, 1]))
-    codes = np.tile(table["facies_code"].to_numpy(int), (n_realizations, 1))
+    draws = np.random.default_rng(np.random.SeedSequence([seed, 3]))
+    codes = data_facies_draws(
+        table, facies, n_realizations=n_realizations, error=data_error, rng=draws
+    )
     for r in range(n_realizations):
         u = rng.random(unknown.size)[:, None]
         codes[r, unknown] = np.minimum((np.cumsum(probs, axis=1) < u).sum(axis=1), n_classes - 1)
@@ -261,6 +346,7 @@ def build_facies_first_model(
     seed: int = 0,
     bootstrap: bool = True,
     neighbors: int = 12,
+    data_error: tuple[float, float] = (0.0, 0.0),
     progress: Callable[..., None] | None = None,
 ) -> ModelResult:
     """Build the voxel model facies first (see the module notes for the steps).
@@ -268,7 +354,9 @@ def build_facies_first_model(
     Parameters are those of :func:`geo3d.model.build_voxel_model` (``intervals`` with
     ``facies_code`` and, where censored, ``k_censored``), plus ``bootstrap`` (each realization
     fits its indicator model to a bootstrap resample of the borings) and ``neighbors``
-    (conditioning values per cell of the facies simulation).
+    (conditioning values per cell of the facies simulation) and ``data_error``, the
+    ``(offset, scatter)`` standard deviations of the intervals' log10 K, from which each
+    realization redraws the facies of the conditioning intervals (:func:`data_facies_draws`).
 
     Returns
     -------
@@ -290,8 +378,9 @@ def build_facies_first_model(
     mask = ds["mask"].values
     saturated = _saturated(ds, water_table)
     v_opts, k_opts = _settings(variogram, kriging)
-    sims = _facies_realizations(table, ds, n_classes, n_realizations=n_realizations, seed=seed,
-                                bootstrap=bootstrap, neighbors=neighbors)  # fmt: skip
+    sims = _facies_realizations(table, ds, facies, n_realizations=n_realizations, seed=seed,
+                                bootstrap=bootstrap, neighbors=neighbors,
+                                data_error=data_error)  # fmt: skip
     if progress is not None:
         progress(0.6, "facies simulation")
     dims = ("z", "y", "x")
@@ -314,12 +403,31 @@ def build_facies_first_model(
     )  # fmt: skip
     ds.attrs.update(facies.attrs())
     ds.attrs.update(n_realizations=n_realizations, seed=int(seed), engine="facies first")
+    ds.attrs["data_error_log10"] = [float(v) for v in data_error]
     ds.attrs["saturated_source"] = "water table" if water_table is not None else "none given"
     ds.attrs["metadata"] = (
         f"Generated by geo3d.facies_first.build_facies_first_model: sequential indicator "
         f"simulation of {n_classes} facies ({n_realizations} realizations, seed {seed}, "
-        f"bootstrap {bootstrap}), log10 K kriged within facies; {len(table)} intervals"
+        f"bootstrap {bootstrap}, interval log10 K error offset {data_error[0]:.2f} scatter "
+        f"{data_error[1]:.2f}), log10 K kriged within facies; {len(table)} intervals"
     )
-    timings = {"total": time.perf_counter() - start}
+    cv_start = time.perf_counter()
+    crossval = _cross_validation(table, ds, facies, neighbors)
+    timings = {"facies_crossval": time.perf_counter() - cv_start}
+    timings["total"] = time.perf_counter() - start
     logger.info("facies-first model built in %.1f s", timings["total"])
-    return ModelResult(ds, {}, {}, timings)
+    return ModelResult(ds, {}, {}, timings, facies_crossval=crossval)
+
+
+def _cross_validation(
+    table: pd.DataFrame, ds: xr.Dataset, facies: FaciesClasses, neighbors: int
+) -> FaciesCrossValidation | None:
+    """Leave-one-boring-out facies cross-validation on the intervals classified from K."""
+    dz = ds.voxels.cell_size[2]
+    z = ds["z"].values
+    z_edges = np.arange(float(z.min()) - dz / 2, float(z.max()) + dz, dz)
+    try:
+        return facies_cross_validation(table, facies.names, z_edges=z_edges, neighbors=neighbors)
+    except ModelError as exc:
+        warnings.warn(f"facies cross-validation not run: {exc}", Geo3dWarning, stacklevel=3)
+        return None

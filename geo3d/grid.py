@@ -132,8 +132,8 @@ def make_grid(
     Returns
     -------
     xarray.Dataset
-        Coordinates ``z``, ``y``, ``x`` at cell centres, ascending; attributes ``crs`` (WKT) and
-        ``cell_size``.  No data variables yet.
+        Coordinates ``z``, ``y``, ``x`` at cell centres, ascending; attributes ``crs`` (WKT),
+        ``cell_size`` and ``boundary_wkt`` (the site boundary).  No data variables yet.
     """
     x, y = _plan_axes(boundary, cell_size, padding)
     dx, dy, dz = _cell_size(cell_size)
@@ -149,6 +149,7 @@ def make_grid(
     ds["z"].attrs.update(units="m", long_name="elevation of cell centre", positive="up")
     ds.attrs["crs"] = _crs_wkt(crs)
     ds.attrs["cell_size"] = [dx, dy, dz]
+    ds.attrs["boundary_wkt"] = _check_polygon(boundary).wkt
     logger.debug("grid of %d x %d x %d cells", nz, ny, nx)
     return ds
 

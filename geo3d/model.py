@@ -28,6 +28,7 @@ from scipy.special import ndtr, ndtri
 from geo3d.errors import Geo3dWarning, ModelError
 from geo3d.facies import FaciesClasses
 from geo3d.geostats.crossval import CrossValidation, leave_one_group_out
+from geo3d.geostats.facies_crossval import FaciesCrossValidation
 from geo3d.geostats.kriging import OrdinaryKriging
 from geo3d.geostats.simulation import conditional_simulation
 from geo3d.geostats.variogram import VariogramFit, fit_anisotropic
@@ -184,12 +185,17 @@ class ModelResult:
         (leave one boring out); empty when not run.
     timings
         Step -> wall-clock seconds.
+    facies_crossval
+        Leave-one-boring-out facies predictions and scores
+        (:class:`geo3d.geostats.facies_crossval.FaciesCrossValidation`), from the facies-first
+        engine; None otherwise.
     """
 
     dataset: xr.Dataset
     variograms: dict[str, VariogramFit] = field(default_factory=dict)
     crossval: dict[str, CrossValidation] = field(default_factory=dict)
     timings: dict[str, float] = field(default_factory=dict)
+    facies_crossval: FaciesCrossValidation | None = None
 
 
 @dataclass(frozen=True)

@@ -42,6 +42,7 @@ from geo3d.analysis.advise import (
     candidate_grid,
     covariance_from_attrs,
 )
+from geo3d.analysis.facies_maps import facies_column_maps
 from geo3d.analysis.injection import InjectionPlan, injection_plan
 from geo3d.analysis.thickness import thickness_maps
 from geo3d.analysis.volumes import zone_volumes
@@ -151,7 +152,7 @@ def run_model(
     *,
     n_realizations: int | None = None,
     progress: ProgressCallback | None = None,
-    engine: str = "gaussian",
+    engine: str | None = None,
 ) -> ModelResult:
     """Build the voxel model (kriging, cross-validation, simulations) from the intervals.
 
@@ -166,7 +167,8 @@ def run_model(
     progress
         Progress callback (see :data:`ProgressCallback`).
     engine
-        ``"gaussian"``: kriging and Gaussian simulations of log10 K, facies by thresholds
+        Overrides ``[simulation] engine``. ``"gaussian"``: kriging and Gaussian simulations
+        of log10 K, facies by thresholds
         (:func:`geo3d.model.build_voxel_model`); ``"facies"``: facies first, composited within
         facies runs, then log10 K within each facies
         (:func:`geo3d.facies_first.build_facies_first_model`).
@@ -175,10 +177,11 @@ def run_model(
     -------
     geo3d.model.ModelResult
     """
+    options = site.config.model_options()
+    engine = options.engine if engine is None else engine
     if engine not in ("gaussian", "facies"):
         msg = f"model engine {engine!r} is unknown; expected 'gaussian' or 'facies'"
         raise ModelError(msg)
-    options = site.config.model_options()
     gridder = VoxelModel(
         facies_classes=logs.facies_classes,
         variogram_model=options.variogram_model,
@@ -252,6 +255,7 @@ def _facies_first(
         },
         n_realizations=options.n_realizations if n_realizations is None else n_realizations,
         seed=options.seed,
+        data_error=logs.calibration.log10_k_error(),
         progress=callback,
     )
 
@@ -779,6 +783,7 @@ def _compute(
             results.maps, results.volumes, results.injection = run_volumes(
                 site, results.logs, results.model
             )
+            results.facies_maps = facies_column_maps(results.model.dataset)
 
 
 def _run_summary(

@@ -37,6 +37,9 @@ class RunResults:
         Result of the model stage.
     maps
         2D maps on the model's ``(y, x)`` grid: thickness maps, water table, depth to water.
+    facies_maps
+        Column summaries of each hydrofacies on the same grid, shown by the report
+        (:func:`geo3d.analysis.facies_maps.facies_column_maps`).
     volumes
         Volumes per zone, depth band and facies (:func:`geo3d.analysis.volumes.zone_volumes`).
     injection
@@ -56,6 +59,7 @@ class RunResults:
     logs: LogResults | None = None
     model: ModelResult | None = None
     maps: dict[str, xr.DataArray] = field(default_factory=dict)
+    facies_maps: dict[str, xr.DataArray] = field(default_factory=dict)
     volumes: pd.DataFrame | None = None
     injection: dict[str, InjectionPlan] = field(default_factory=dict)
     log_figures: dict[str, bytes] = field(default_factory=dict)

@@ -19,8 +19,9 @@ from functools import lru_cache
 
 import numpy as np
 import pint
+import pyproj
 
-from geo3d.errors import UnitError
+from geo3d.errors import CRSError, UnitError
 
 __all__ = [
     "INTERNAL",
@@ -31,6 +32,7 @@ __all__ = [
     "factor",
     "check_unit",
     "length_unit_of",
+    "read_crs",
 ]
 
 #: Internal unit of each quantity.
@@ -144,6 +146,33 @@ def length_unit_of(metres: float) -> str | None:
         if abs(factor(unit, "length") - metres) <= 1e-9 * metres:
             return unit
     return None
+
+
+def read_crs(text: object, *, place: str = "") -> pyproj.CRS:
+    """Read a CRS given as text (``"EPSG:nnnn"``, WKT) or as anything pyproj takes.
+
+    Parameters
+    ----------
+    text
+        The CRS as given.
+    place
+        Where it was given, the start of the error message (none when empty).
+
+    Returns
+    -------
+    pyproj.CRS
+
+    Raises
+    ------
+    CRSError
+        When pyproj cannot read it.
+    """
+    try:
+        return pyproj.CRS.from_user_input(text)
+    except pyproj.exceptions.CRSError as exc:
+        prefix = f"{place}: " if place else ""
+        msg = f"{prefix}cannot read CRS {str(text)[:60]!r} ({exc}); expected EPSG:nnnn or WKT"
+        raise CRSError(msg) from None
 
 
 def check_unit(unit: str, quantity: str) -> str:

@@ -140,3 +140,23 @@ def test_residuals_carry_the_physics_only_screen_mean():
         )
         expected = np.mean(10 ** (a_phys + np.log10(samples.loc[inside, "q_over_p"])))
         assert row["k_physics"] == pytest.approx(expected, rel=1e-9)
+
+
+def test_log10_k_error_from_slug_test_residuals():
+    # residuals +-0.2 about a level fitted with the slope held (one coefficient): s^2 =
+    # sum(r^2) / (n - 1) = 4 * 0.04 / 3, offset s / sqrt(4) (Draper & Smith 1998, sec. 1.4)
+    from geo3d.logs.calibration import Calibration
+
+    residuals = [{"log10_residual": r} for r in (0.2, -0.2, 0.2, -0.2)]
+    cal = Calibration("slug_tests", -1.0, 1.0, n_tests=4, residuals=residuals, slope_fixed=True)
+    offset, scatter = cal.log10_k_error()
+    assert scatter == pytest.approx(np.sqrt(0.16 / 3))
+    assert offset == pytest.approx(np.sqrt(0.16 / 3) / 2)
+
+
+def test_log10_k_error_falls_back_to_physics_without_enough_tests():
+    from geo3d.logs.calibration import PHYSICS_ERROR, Calibration
+
+    residuals = [{"log10_residual": 0.1}, {"log10_residual": -0.1}]
+    cal = Calibration("slug_tests", -1.0, 0.9, n_tests=2, residuals=residuals)
+    assert cal.log10_k_error() == PHYSICS_ERROR

@@ -87,3 +87,81 @@ def test_log10_k_within_facies_uses_the_censored_expectation(model):
     # the values stay at their bound, never above it
     wet_clay = model["saturated"].values & (model["prob_storage"].values == 1.0)
     assert (model["log10_k"].values[wet_clay] <= -7.5 + 1e-9).all()
+
+
+def _run_table(values, boring="A") -> pd.DataFrame:
+    codes = DEFAULT_CLASSES.classify(np.asarray(values, float)).astype(int)
+    return pd.DataFrame(
+        {"boring_id": boring, "log10_k": values, "facies_code": codes, "k_censored": ""}
+    )
+
+
+def test_data_facies_draws_follow_the_normal_normal_posterior():
+    # prior of the values N(-6, 0.5) (3000 intervals, each its own run); one run measured at
+    # -6.8 with scatter 0.3: the posterior is normal with mean (0.25 * -6.8 + 0.09 * -6) / 0.34
+    # = -6.588 and sd sqrt(0.25 * 0.09 / 0.34) = 0.2572 (conjugate normal model, Gelman et al.
+    # 2013, Bayesian Data Analysis, sec. 2.5), so P(true < -7) = Phi(-1.602) = 0.0546
+    from geo3d.facies_first import data_facies_draws
+
+    rng = np.random.default_rng(3)
+    values = np.r_[rng.normal(-6.0, 0.5, 3000), -6.8]
+    table = _run_table(values)
+    table["boring_id"] = [f"B{i}" for i in range(len(table))]
+    codes = data_facies_draws(
+        table, DEFAULT_CLASSES, n_realizations=3000, error=(0.0, 0.3), rng=rng
+    )
+    assert (codes[:, -1] == 0).mean() == pytest.approx(0.0546, abs=0.012)
+
+
+def test_a_run_far_from_a_threshold_never_flips():
+    from geo3d.facies_first import data_facies_draws
+
+    table = pd.concat([_run_table([-6.9]), _run_table([-4.0], boring="B")], ignore_index=True)
+    codes = data_facies_draws(
+        table, DEFAULT_CLASSES, n_realizations=500, error=(0.0, 0.2),
+        rng=np.random.default_rng(5),
+    )  # fmt: skip
+    assert (codes[:, 1] == 2).all()  # two units above the -5 threshold
+
+
+def test_data_facies_draws_keep_censored_and_unclassified_intervals_and_share_the_offset():
+    from geo3d.facies_first import data_facies_draws
+
+    table = _run_table([-6.95, -6.95, -7.5, np.nan])
+    table.loc[2, "k_censored"] = "upper"
+    table["boring_id"] = ["A", "B", "C", "D"]
+    codes = data_facies_draws(
+        table, DEFAULT_CLASSES, n_realizations=500, error=(0.3, 0.0),
+        rng=np.random.default_rng(2),
+    )  # fmt: skip
+    assert (codes[:, 2] == 0).all() and (codes[:, 3] == -1).all()
+    # no scatter: the two equal values move together with the site-wide offset
+    assert (codes[:, 0] == codes[:, 1]).all()
+    assert 0.3 < (codes[:, 0] == 0).mean() < 0.7
+
+
+def test_no_error_keeps_the_logged_facies():
+    from geo3d.facies_first import data_facies_draws
+
+    table = _run_table([-6.9, -5.1, -4.0])
+    codes = data_facies_draws(
+        table, DEFAULT_CLASSES, n_realizations=3, error=(0.0, 0.0), rng=np.random.default_rng(0)
+    )
+    assert (codes == table["facies_code"].to_numpy()).all()
+
+
+def test_model_carries_the_facies_cross_validation():
+    table = _intervals()
+    borings = table.groupby("boring_id").agg(x=("x", "first"), y=("y", "first")).reset_index()
+    borings["ground_elev"] = 10.0
+    result = build_facies_first_model(
+        table, boundary=shapely.box(0, 0, 50, 40), borings=borings, crs="EPSG:32631",
+        cell_size=(5.0, 5.0, 0.5), facies_classes=list(DEFAULT_CLASSES),
+        water_table=_FlatWater(), n_realizations=2, seed=1, data_error=(0.1, 0.1),
+    )  # fmt: skip
+    cv = result.facies_crossval
+    assert cv is not None
+    # sand over clay, the same at every boring: each boring is predicted from the others
+    assert cv.accuracy() == 1.0
+    assert cv.brier_skill() > 0.9
+    assert result.dataset.attrs["data_error_log10"] == [0.1, 0.1]

@@ -28,6 +28,7 @@ from hypothesis import strategies as st
 from shapely import affinity
 from shapely.geometry import Polygon, box
 
+from geo3d.analysis.facies_maps import facies_column_maps
 from geo3d.config import config_from_dict
 from geo3d.errors import Geo3dWarning
 from geo3d.facies import DEFAULT_CLASSES
@@ -146,7 +147,11 @@ def voxel_model() -> xr.Dataset:
     codes = np.where(mask, _codes(lk), -1).astype(np.int8)
     ds = xr.Dataset(
         coords={"z": z, "y": y, "x": x},
-        attrs={"crs": pyproj.CRS("EPSG:32631").to_wkt(), "cell_size": (dx, dx, dz)},
+        attrs={
+            "crs": pyproj.CRS("EPSG:32631").to_wkt(),
+            "cell_size": (dx, dx, dz),
+            **DEFAULT_CLASSES.attrs(),
+        },
     )
     ds["mask"] = (("z", "y", "x"), mask)
     ds["log10_k"] = (("z", "y", "x"), np.where(mask, lk, np.nan))
@@ -362,6 +367,7 @@ def make_results(*, with_model: bool = True, with_slug_tests: bool = True) -> Ru
     }
     results.maps["transmissive_thickness_p10"] = 0.8 * results.maps["transmissive_thickness"]
     results.maps["transmissive_thickness_p90"] = 1.2 * results.maps["transmissive_thickness"]
+    results.facies_maps = facies_column_maps(ds)
     results.volumes = pd.DataFrame(
         {
             "zone": ["Zone A", "Zone A"],
@@ -750,20 +756,6 @@ def test_projected_intervals_keep_nearby_borings_only():
     dp02 = near[near.boring_id == "DP-02"]
     assert dp02["distance"].iloc[0] == pytest.approx(8.0)
     assert (dp02["z_top"] - dp02["z_bottom"]).to_numpy() == pytest.approx(0.25)
-
-
-def test_derived_thickness_is_cell_count_times_height():
-    from geo3d.report.html import _Context, _derived_maps
-
-    results = make_results()
-    ctx = _Context.from_results(results)
-    maps = _derived_maps(ctx)
-    ds = results.model.dataset
-    # thickness = number of storage cells in the column x 0.5 m cell height (definition)
-    column = ds["facies_code"].isel(x=3, y=4).values
-    assert float(maps["thickness_storage"].isel(x=3, y=4)) == pytest.approx(
-        0.5 * np.count_nonzero(column == 0)
-    )
 
 
 @given(st.floats(allow_nan=False, allow_infinity=False, min_value=-1e12, max_value=1e12))

@@ -49,6 +49,32 @@ def small_volumes(small_site):
     return truth_volumes(small_site)
 
 
+def uniform_log(
+    probe: ProbeSettings,
+    log10_k: float,
+    ec: float,
+    *,
+    total_depth: float,
+    depth_to_water: float,
+    p_atm: float,
+    seed: int = 0,
+) -> pd.DataFrame:
+    """Injection log of a uniform soil pushed in 1 cm steps one metre past ``total_depth``."""
+    depth = np.arange(0.0, total_depth + 1.0, 0.01)
+    return injection_log(
+        depth,
+        np.full(depth.size, log10_k),
+        np.full(depth.size, ec),
+        total_depth=total_depth,
+        depth_to_water=depth_to_water,
+        p_atm=p_atm,
+        skin=1.0,
+        unsaturated_factor=0.5,
+        probe=probe,
+        rng=np.random.default_rng(seed),
+    )
+
+
 def test_shape_factor_matches_hvorslev_worked_value():
     # REFERENCES.md (V): cylinder L = 0.30 m, D = 0.05 m gives F = 0.756470 m (Hvorslev 1951)
     assert cylinder_shape_factor(0.30, 0.05) == pytest.approx(0.756470, abs=5e-7)
@@ -62,19 +88,7 @@ def test_height_fraction_of_partly_covered_cells():
 def test_injection_log_inverts_to_the_true_k_in_uniform_soil():
     # Hvorslev (1951) steady injection: K = Q gamma_w / (F P_net) must return the true K
     probe = ProbeSettings(sensor_noise=1e-9, resolution=0.02)
-    depth = np.arange(0.0, 6.0, 0.01)
-    log = injection_log(
-        depth,
-        np.full(depth.size, -5.0),
-        np.full(depth.size, 20.0),
-        total_depth=5.0,
-        depth_to_water=2.0,
-        p_atm=101.325,
-        skin=1.0,
-        unsaturated_factor=0.5,
-        probe=probe,
-        rng=np.random.default_rng(0),
-    )
+    log = uniform_log(probe, -5.0, 20.0, total_depth=5.0, depth_to_water=2.0, p_atm=101.325)
     below = log[(log["depth"] > 2.5)]
     p_net = below["pressure"] - 101.325 - GAMMA_W * (below["depth"] - 2.0)
     k = below["flow"] * GAMMA_W / (probe.shape_factor * p_net)
@@ -86,19 +100,7 @@ def test_injection_log_inverts_to_the_true_k_in_uniform_soil():
 
 def test_tight_soil_holds_the_pressure_under_the_limit_and_cuts_the_flow():
     probe = ProbeSettings(sensor_noise=1e-9, pressure_limit=1000.0)
-    depth = np.arange(0.0, 4.0, 0.01)
-    log = injection_log(
-        depth,
-        np.full(depth.size, -9.0),
-        np.full(depth.size, 100.0),
-        total_depth=3.0,
-        depth_to_water=1.0,
-        p_atm=100.0,
-        skin=1.0,
-        unsaturated_factor=0.5,
-        probe=probe,
-        rng=np.random.default_rng(1),
-    )
+    log = uniform_log(probe, -9.0, 100.0, total_depth=3.0, depth_to_water=1.0, p_atm=100.0, seed=1)
     on = log[log["depth"] > 0.1]
     assert (on["pressure"] <= 1000.0).all()
     assert (on["pressure"] >= 0.95 * 1000.0 - 1e-6).all()

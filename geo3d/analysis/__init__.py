@@ -6,6 +6,7 @@ model's attributes (``ds.voxels.facies_classes``).
 """
 
 from geo3d.analysis.advise import BoringAdvice, advise_borings
+from geo3d.analysis.facies_maps import facies_column_maps
 from geo3d.analysis.injection import InjectionPlan, injection_plan, triangular_layout
 from geo3d.analysis.thickness import thickness_maps
 from geo3d.analysis.volumes import StoredMassInputs, zone_volumes
@@ -21,6 +22,7 @@ __all__ = [
     "advise_borings",
     "InjectionPlan",
     "depth_to_water_map",
+    "facies_column_maps",
     "water_table_gradient",
     "StoredMassInputs",
     "injection_plan",

@@ -49,6 +49,7 @@ __all__ = [
     "region_weights",
     "interface_area",
     "zone_volumes",
+    "WATER_BANDS",
 ]
 
 logger = logging.getLogger(__name__)
@@ -494,6 +495,54 @@ def _total_row(
     return row
 
 
+def _plan_area_corrected(
+    ds: xr.Dataset, region: Region, weight: np.ndarray, colfrac: np.ndarray
+) -> tuple[np.ndarray, float]:
+    """Scale a region's cell weights to its exact plan area inside the site boundary.
+
+    A model column belongs to the model when its centre lies inside the site boundary, so the
+    columns cover the boundary only to within half a cell along its edge, and a zone drawn to
+    the boundary loses (or gains) that sliver.  When the Dataset records the boundary
+    (``boundary_wkt``), the weights are multiplied by ``exact area / covered area``: the
+    region's facies shares in the covered columns stand for the sliver (a ratio estimator,
+    Cochran 1977, sec. 6.2).
+
+    Returns
+    -------
+    weight, area_m2
+        The (scaled) weights and the plan area of the region inside the model.
+
+    References
+    ----------
+    .. [1] Cochran, W.G. (1977) Sampling Techniques, 3rd ed. Wiley.
+    """
+    covered = float((colfrac * ds.voxels.mask.any(axis=0)).sum() * ds.voxels.cell_area)
+    wkt = ds.attrs.get("boundary_wkt")
+    if not wkt or covered <= 0:
+        return weight, covered
+    boundary = shapely.from_wkt(str(wkt))
+    plan = boundary if region.geometry is None else shapely.intersection(region.geometry, boundary)
+    exact = float(plan.area)
+    if exact <= 0:
+        return weight, covered
+    return weight * (exact / covered), exact
+
+
+#: Band labels of the parts of a region below and above the water table.
+WATER_BANDS = ("saturated", "unsaturated")
+
+
+def _water_parts(ds: xr.Dataset) -> list[tuple[str, np.ndarray]]:
+    """``(band, cells)`` for the saturated and unsaturated parts; none if all is saturated."""
+    if "saturated" not in ds:
+        return []
+    mask = ds.voxels.mask
+    saturated = ds["saturated"].values.astype(bool) & mask
+    if saturated.sum() == mask.sum():
+        return []
+    return [(WATER_BANDS[0], saturated), (WATER_BANDS[1], mask & ~saturated)]
+
+
 def zone_volumes(
     ds: xr.Dataset,
     zones: Zones = None,
@@ -523,7 +572,9 @@ def zone_volumes(
     -------
     pandas.DataFrame
         One row per region and facies (plus ``facies='all'``; ``'unclassified'`` for model
-        cells with no estimate, when any), columns ``zone``, ``band``, ``facies``,
+        cells with no estimate, when any), and the same per region for its parts below and
+        above the water table (``band`` ``'saturated'`` and ``'unsaturated'``; facies there
+        come from EC in a facies-first model), columns ``zone``, ``band``, ``facies``,
         ``area_m2`` (plan area of the region inside the model), ``bulk_volume_m3``,
         ``pore_volume_m3``, ``effective_pore_volume_m3`` (expected values from the facies
         probabilities), the same with ``_most_likely`` (from the facies code) and with
@@ -539,11 +590,11 @@ def zone_volumes(
     ds = require_model(ds)
     fields = _Fields.of(ds)
     storage = None if mass is None else _Storage.of(mass, fields.classes)
-    mask = ds.voxels.mask
+    water_parts = _water_parts(ds)
     rows = []
     for region in _regions(zones, bands, include_site):
         weight, colfrac, _ = region_weights(ds, region)
-        area = float((colfrac * mask.any(axis=0)).sum() * ds.voxels.cell_area)
+        weight, area = _plan_area_corrected(ds, region, weight, colfrac)
         base = {"zone": region.name, "band": region.band, "area_m2": area}
         bulk = fields.bulk(weight)
         rows += _facies_rows(base, fields, bulk, storage)
@@ -558,6 +609,13 @@ def zone_volumes(
                 )
             )
         rows.append(_total_row(base, fields, bulk, weight))
+        for band, part in water_parts if region.band == "all" else []:
+            part_weight = weight * part
+            if part_weight.sum() > 0:
+                part_base = dict(base, band=band)
+                part_bulk = fields.bulk(part_weight)
+                rows += _facies_rows(part_base, fields, part_bulk, storage)
+                rows.append(_total_row(part_base, fields, part_bulk, part_weight))
     table_out = pd.DataFrame(rows)
     first = ["zone", "band", "facies", "area_m2"]
     return table_out[first + [c for c in table_out.columns if c not in first]]

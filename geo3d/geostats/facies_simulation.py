@@ -44,6 +44,7 @@ from geo3d.geostats.transition import facies_runs, fit_markov_chain, vertical_pr
 
 __all__ = [
     "FaciesModel",
+    "facies_probabilities",
     "fit_facies_model",
     "lateral_lengths",
     "simulate_facies",
@@ -190,7 +191,7 @@ def _batches(n: int, first: int) -> list[slice]:
     return out
 
 
-def _probabilities(
+def facies_probabilities(
     model: FaciesModel,
     targets: np.ndarray,
     known_xyz: np.ndarray,
@@ -255,7 +256,7 @@ def _one_realization(
                 chunk = batch[c0 : c0 + _CHUNK]
                 _, nb = tree.query(targets[chunk] * scale, k=k)
                 nb = nb.reshape(len(chunk), k)
-                prob = _probabilities(model, targets[chunk], known_xyz, known_codes, nb)
+                prob = facies_probabilities(model, targets[chunk], known_xyz, known_codes, nb)
                 codes[chunk] = _draw(prob, rng)
         known_xyz = np.vstack([known_xyz, targets[batch]])
         known_codes = np.concatenate([known_codes, codes[batch]])

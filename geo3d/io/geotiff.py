@@ -30,6 +30,7 @@ from rasterio.transform import Affine
 
 from geo3d.errors import CRSError, GeometryError
 from geo3d.io.output_frame import OutputFrame
+from geo3d.units import read_crs
 
 __all__ = ["axis_spacing", "map_transform", "write_geotiff", "write_maps"]
 
@@ -115,11 +116,7 @@ def _crs_of(da: xr.DataArray, crs) -> pyproj.CRS:
     if value is None:
         msg = f"map '{da.name}' has no CRS; pass crs= or set attrs['crs']"
         raise CRSError(msg)
-    try:
-        return pyproj.CRS.from_user_input(value)
-    except pyproj.exceptions.CRSError as exc:
-        msg = f"map '{da.name}': invalid CRS {str(value)[:60]!r} ({exc})"
-        raise CRSError(msg) from None
+    return read_crs(value, place=f"map '{da.name}'")
 
 
 def write_geotiff(

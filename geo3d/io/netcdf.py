@@ -29,6 +29,7 @@ import xarray as xr
 
 from geo3d.errors import CRSError
 from geo3d.io.output_frame import OutputFrame
+from geo3d.units import read_crs
 
 __all__ = ["VARIABLE_ATTRS", "to_cf", "write_netcdf"]
 
@@ -150,11 +151,7 @@ def to_cf(
     if value is None:
         msg = "voxel model has no CRS; pass crs= or set attrs['crs']"
         raise CRSError(msg)
-    try:
-        site_crs = pyproj.CRS.from_user_input(value)
-    except pyproj.exceptions.CRSError as exc:
-        msg = f"voxel model: invalid CRS {str(value)[:60]!r} ({exc})"
-        raise CRSError(msg) from None
+    site_crs = read_crs(value, place="voxel model")
     names = _facies_names(ds, facies_names)
     out = ds.copy()
     out.attrs = {k: _plain_attr(v) for k, v in ds.attrs.items() if k != "crs"}

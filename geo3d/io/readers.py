@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import difflib
 import logging
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from os import PathLike
 from pathlib import Path
 
@@ -131,9 +131,8 @@ def read_table(
         frame.attrs["first_line"] = 1
     else:
         frame = _read_csv_text(file, required, delimiter, skip_rows, error)
-    frame.columns = [str(c).strip() for c in frame.columns]
-    missing = [c for c in required if c not in frame.columns]
-    if missing:
+
+    def missing_columns(missing: list[str]) -> str:
         parts = []
         for name in missing:
             close = difflib.get_close_matches(
@@ -141,16 +140,35 @@ def read_table(
             )
             hint = f" (found {close[0]!r}: misspelled?)" if close else ""
             parts.append(f"{name!r}{hint}")
-        msg = (
+        return (
             f"{where(file, line=skip_rows + 1)}: missing column{'s' if len(missing) > 1 else ''} "
             f"{', '.join(parts)}; expected columns {', '.join(required)}"
             + (f" [, {', '.join(optional)}]" if optional else "")
             + f"; found {', '.join(map(str, frame.columns)) or 'none'}"
         )
-        raise error(msg)
+
+    empty = f"{file}: the table has a header but no data rows; expected at least one row"
+    return _checked_table(frame, required, missing_columns, empty, error)
+
+
+def _checked_table(
+    frame: pd.DataFrame,
+    required: Sequence[str],
+    missing_columns: Callable[[list[str]], str],
+    empty: str,
+    error: type[Exception],
+) -> pd.DataFrame:
+    """Strip the column names, then refuse a table without a required column or without rows.
+
+    ``missing_columns`` words the error from the missing names; ``empty`` is the error of a
+    table without rows.
+    """
+    frame.columns = [str(c).strip() for c in frame.columns]
+    missing = [c for c in required if c not in frame.columns]
+    if missing:
+        raise error(missing_columns(missing))
     if frame.empty:
-        msg = f"{file}: the table has a header but no data rows; expected at least one row"
-        raise error(msg)
+        raise error(empty)
     return frame
 
 
@@ -248,20 +266,18 @@ def _borings_layer(file: Path, crs: pyproj.CRS | None) -> pd.DataFrame:
         layer["x"] = layer.geometry.x
         layer["y"] = layer.geometry.y
     frame = pd.DataFrame(layer.drop(columns=layer.geometry.name, errors="ignore"))
-    frame.columns = [str(c).strip() for c in frame.columns]
     frame.attrs["first_line"] = 1
-    missing = [c for c in ("boring_id", "x", "y", "ground_elev") if c not in frame.columns]
-    if missing:
-        msg = (
+
+    def missing_columns(missing: list[str]) -> str:
+        return (
             f"{file}: missing column {', '.join(map(repr, missing))}; expected attributes "
             f"boring_id, ground_elev and point geometry (or x, y); found "
             f"{', '.join(frame.columns)}"
         )
-        raise TableFormatError(msg)
-    if frame.empty:
-        msg = f"{file}: the layer has no features; expected at least one boring"
-        raise TableFormatError(msg)
-    return frame
+
+    empty = f"{file}: the layer has no features; expected at least one boring"
+    required = ("boring_id", "x", "y", "ground_elev")
+    return _checked_table(frame, required, missing_columns, empty, TableFormatError)
 
 
 def read_borings(

@@ -21,7 +21,7 @@ from shapely.geometry import MultiPolygon, Polygon
 from shapely.ops import unary_union
 
 from geo3d.errors import CRSError, Geo3dWarning, GeometryError, where
-from geo3d.units import factor
+from geo3d.units import factor, read_crs
 
 __all__ = [
     "parse_crs",
@@ -99,11 +99,7 @@ def parse_crs(
     if not str(text).strip():
         msg = f'{place}: no CRS given; expected an EPSG code ("EPSG:nnnn") or a WKT string'
         raise CRSError(msg)
-    try:
-        crs = pyproj.CRS.from_user_input(text)
-    except pyproj.exceptions.CRSError as exc:
-        msg = f"{place}: cannot read CRS {str(text)[:60]!r} ({exc}); expected EPSG:nnnn or WKT"
-        raise CRSError(msg) from None
+    crs = read_crs(text, place=place)
     if not crs.is_projected:
         msg = (
             f"{place}: {crs.name!r} is not a projected CRS (its coordinates are angles); "

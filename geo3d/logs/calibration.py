@@ -27,11 +27,18 @@ import numpy as np
 import pandas as pd
 from scipy.optimize import curve_fit
 from scipy.special import logsumexp
+from scipy.stats import t as student_t
 
 from geo3d.errors import Geo3dWarning
 from geo3d.logs.hydraulic import GAMMA_W
 
-__all__ = ["Calibration", "physics_coefficients", "calibrate", "screen_samples"]
+__all__ = [
+    "Calibration",
+    "PHYSICS_ERROR",
+    "physics_coefficients",
+    "calibrate",
+    "screen_samples",
+]
 
 logger = logging.getLogger(__name__)
 
@@ -99,6 +106,46 @@ class Calibration:
     def as_dict(self) -> dict:
         """Plain dict for JSON output."""
         return asdict(self)
+
+    def log10_k_error(self) -> tuple[float, float]:
+        """Return the error ``(offset, scatter)`` of the log-derived log10 K (log10 m/s).
+
+        ``offset`` is the error of the site-wide level, shared by every sample: the standard
+        error of the mean slug-test residual, ``s / sqrt(n)``.  ``scatter`` is the error of one
+        value about that level: the residual standard deviation ``s`` of the slug tests about
+        the calibration (``n - p`` degrees of freedom, ``p`` fitted coefficients).  Without a
+        fit (physics alone, or fewer than ``p + 1`` tests) both take the values
+        :data:`PHYSICS_ERROR` (from memory: injection-logging K estimates from a nominal shape
+        factor typically lie within a factor of about 3 of slug-test K, and scatter by about a
+        factor of 2 about that level).
+
+        Returns
+        -------
+        tuple of float
+            ``(offset_sd, scatter_sd)`` in log10 units.
+
+        References
+        ----------
+        .. [1] Dietrich et al. (2008), comparison of injection-logging and slug-test K.
+        .. [2] Draper, N.R., Smith, H. (1998) Applied Regression Analysis, 3rd ed. Wiley,
+           sec. 1.4 (residual variance, standard error of the mean response).
+
+        Examples
+        --------
+        >>> Calibration("physics", 0.0, 1.0).log10_k_error() == PHYSICS_ERROR
+        True
+        """
+        residuals = np.array([r["log10_residual"] for r in self.residuals], dtype=float)
+        n_fitted = 1 if self.slope_fixed else 2
+        if self.method != "slug_tests" or residuals.size <= n_fitted:
+            return PHYSICS_ERROR
+        scatter = float(np.sqrt(np.sum(residuals**2) / (residuals.size - n_fitted)))
+        return scatter / float(np.sqrt(residuals.size)), scatter
+
+
+#: ``(offset, scatter)`` standard deviations of log10 K estimated from physics alone (from
+#: memory; see :meth:`Calibration.log10_k_error`).
+PHYSICS_ERROR: tuple[float, float] = (0.5, 0.3)
 
 
 def screen_samples(
@@ -204,8 +251,9 @@ def calibrate(
         Slug tests whose screen holds fewer usable samples are left out (with a warning).
     slope
         ``"free"`` fits ``a`` and ``b``; ``"fixed"`` holds ``b = 1`` (physics) and fits ``a``;
-        ``"auto"`` keeps a fitted ``b`` only when it differs from 1 by more than two standard
-        errors (a t-test at about 95 %): a few slug tests rarely determine the slope.
+        ``"auto"`` keeps a fitted ``b`` only when it differs from 1 significantly (a two-sided
+        t-test at 95 % with ``n - 2`` degrees of freedom): a few slug tests rarely determine
+        the slope.
 
     Returns
     -------
@@ -312,6 +360,15 @@ def _physics(
     )
 
 
+def _slope_test(n_tests: int) -> float:
+    """Two-sided 95 % Student t quantile for a slope fitted to ``n_tests`` tests (n - 2 dof).
+
+    With few tests the slope's standard error is itself uncertain; the normal quantile (about
+    2) would keep a slope that only noise bent (Draper & Smith 1998, sec. 3.1).
+    """
+    return float(student_t.ppf(0.975, max(n_tests - 2, 1)))
+
+
 def _fit(
     groups: list[np.ndarray],
     observed: np.ndarray,
@@ -337,7 +394,7 @@ def _fit(
             if np.all(np.isfinite(cov)):
                 se = np.sqrt(np.diag(cov))
     fixed = slope == "fixed" or len(groups) < 3 or not np.isfinite(se[1])
-    if slope == "auto" and not fixed and abs(b - 1.0) <= 2.0 * se[1]:
+    if slope == "auto" and not fixed and abs(b - 1.0) <= _slope_test(len(groups)) * se[1]:
         fixed = True
     if fixed:
         offsets = observed - _screen_prediction(groups, 0.0, 1.0)

@@ -1116,6 +1116,51 @@ def section_figure(
     return fig
 
 
+def probability_section_figure(
+    section: xr.Dataset,
+    *,
+    line: SectionLine,
+    facies_names: Sequence[str],
+    water_table: np.ndarray | None = None,
+    distance_unit: str = "m",
+    elevation_unit: str = "m",
+) -> Figure | None:
+    """One panel per facies: its probability (share of the realizations) along a section.
+
+    Parameters
+    ----------
+    section
+        Output of :func:`sample_section` with ``prob_<facies>`` variables.
+    line, facies_names, water_table, distance_unit, elevation_unit
+        As in :func:`section_figure`.
+
+    Returns
+    -------
+    matplotlib.figure.Figure or None
+        None when the section holds no probability.
+    """
+    names = [n for n in facies_names if f"prob_{n}" in section]
+    if not names:
+        return None
+    fig = new_figure(9.0, 2.4 * len(names) + 0.6)
+    axes = np.atleast_1d(fig.subplots(len(names), 1, sharex=True))
+    distance = section["distance"].values
+    d_edges, z_edges = _edges(distance), _edges(section["z"].values)
+    for name, ax in zip(names, axes, strict=True):
+        values = np.ma.masked_invalid(section[f"prob_{name}"].values)
+        mesh = ax.pcolormesh(d_edges, z_edges, values, cmap="cividis", vmin=0.0, vmax=1.0)
+        fig.colorbar(mesh, ax=ax, label="probability", shrink=0.9)
+        ax.set_title(f"probability of {name}, section {line.name}-{line.name}'", fontsize=9)
+        if water_table is not None:
+            ax.plot(distance, water_table, color=OKABE_ITO["sky_blue"], linewidth=1.4,
+                    linestyle="--")  # fmt: skip
+        ax.set_ylabel(f"elevation ({elevation_unit})")
+        ax.tick_params(labelsize=7)
+        _frame_section(ax, line.name, d_edges, z_edges)
+    axes[-1].set_xlabel(f"distance along the section ({distance_unit})")
+    return fig
+
+
 def vertical_exaggeration(fig: Figure, ax, *, horizontal: float, vertical: float) -> float:
     """Ratio of vertical to horizontal scale of an axes as drawn.
 

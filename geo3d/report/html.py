@@ -300,6 +300,7 @@ class _Context:
     crs_label: str
     frame: OutputFrame
     maps: dict[str, xr.DataArray] = field(default_factory=dict)
+    facies_maps: dict[str, xr.DataArray] = field(default_factory=dict)
     sections: list = field(default_factory=list)
     log_figures: Mapping[str, bytes] = field(default_factory=dict)
 
@@ -314,11 +315,14 @@ class _Context:
         # everything drawn or tabled is shown in the output CRS and units
         frame = OutputFrame.from_site(site)
         zones = site.zones
-        maps = {
-            str(k): frame.grid(v)
-            for k, v in results.maps.items()
-            if isinstance(v, xr.DataArray) and {"y", "x"} <= set(v.dims)
-        }
+        maps, facies_maps = (
+            {
+                str(k): frame.grid(v)
+                for k, v in given.items()
+                if isinstance(v, xr.DataArray) and {"y", "x"} <= set(v.dims)
+            }
+            for given in (results.maps, results.facies_maps)
+        )
         ctx = cls(
             results=results,
             site=site,
@@ -332,6 +336,7 @@ class _Context:
             crs_label=frame.label,
             frame=frame,
             maps=maps,
+            facies_maps=facies_maps,
         )
         dataset, borings = ctx.dataset, ctx.borings
         bounds = None
@@ -663,12 +668,22 @@ def _model_curves(model: CovarianceModel, max_v: float, max_h: float) -> tuple[A
     return vertical, horizontal
 
 
+#: Units of the kriged variables, as the report labels them.
+_VARIABLE_UNITS = {"log10_k": "log10 m/s", "ec": "mS/m"}
+
+
+def _variance_unit(variable: str) -> str:
+    """Return the unit of the semivariance of a kriged variable."""
+    if variable in _VARIABLE_UNITS:
+        return f"({_VARIABLE_UNITS[variable]})\u00b2"
+    return "normal score\u00b2" if "normal_score" in variable else "units\u00b2"
+
+
 def _section_variograms(ctx: _Context) -> str:
     fits = {} if ctx.model is None else ctx.model.variograms
     if not fits:
         return _note("No variograms are available (no 3D model was built).")
     parts, rows = [], []
-    units = {"log10_k": "(log10 m/s)\u00b2", "ec": "(mS/m)\u00b2"}
     lag = ctx.length_unit
     for variable, fit in fits.items():
         vertical, horizontal, model = fit.vertical, fit.horizontal, fit.model
@@ -694,9 +709,7 @@ def _section_variograms(ctx: _Context) -> str:
             vertical_model=_curve_shown(ctx, v_curve),
             horizontal_model={k: _curve_shown(ctx, c) for k, c in h_curves.items()},
             variable=variable,
-            units=units.get(
-                variable, "normal score\u00b2" if "normal_score" in variable else "units\u00b2"
-            ),
+            units=_variance_unit(variable),
             lag_unit=lag,
         )
         parts.append(
@@ -725,12 +738,40 @@ def _curve_shown(ctx: _Context, curve: tuple[np.ndarray, np.ndarray]) -> tuple[A
     return ctx.length(np.asarray(lags, dtype=float)), gamma
 
 
+def _facies_crossval(ctx: _Context) -> str:
+    """Confusion matrix and Brier scores of the leave-one-boring-out facies predictions."""
+    cv = None if ctx.model is None else ctx.model.facies_crossval
+    if cv is None or not len(cv.predictions):
+        return ""
+    confusion = cv.confusion().reset_index()
+    scores = pd.DataFrame(
+        {
+            "intervals": [len(cv.predictions)],
+            "accuracy (most probable facies)": [cv.accuracy()],
+            "Brier score": [cv.brier()],
+            "Brier score of the proportions alone": [cv.brier_reference()],
+            "Brier skill score": [cv.brier_skill()],
+        }
+    )
+    return (
+        "<h3>Facies, one boring left out at a time</h3>"
+        + _table(scores, caption="Facies predicted for each boring from the other borings")
+        + _table(
+            confusion,
+            caption="Intervals by observed facies (rows) and most probable predicted facies "
+            "(columns). The Brier score is the mean squared error of the predicted "
+            "probabilities (0 is perfect); the skill score compares it with predicting the "
+            "site proportions everywhere (1 is perfect, 0 no better than the proportions).",
+        )
+    )
+
+
 def _section_crossval(ctx: _Context) -> str:
     results = {} if ctx.model is None else ctx.model.crossval
+    facies = _facies_crossval(ctx)
     if not results:
-        return _note("No cross-validation is available.")
+        return facies or _note("No cross-validation is available.")
     parts, rows = [], []
-    units = {"log10_k": "log10 m/s", "ec": "mS/m"}
     for variable, cv in results.items():
         summary = cv.summary
         rows.append(
@@ -745,7 +786,9 @@ def _section_crossval(ctx: _Context) -> str:
         )
         samples = cv.samples
         if len(samples) and {"observed", "estimate"} <= set(samples):
-            fig = fg.crossval_figure(samples, variable=variable, units=units.get(variable, ""))
+            fig = fg.crossval_figure(
+                samples, variable=variable, units=_VARIABLE_UNITS.get(variable, "")
+            )
             parts.append(
                 _figure(
                     fig,
@@ -757,24 +800,7 @@ def _section_crossval(ctx: _Context) -> str:
                 )
             )
     parts.insert(0, _table(pd.DataFrame(rows), caption="Leave-one-boring-out statistics"))
-    return "".join(parts)
-
-
-def _derived_maps(ctx: _Context) -> dict[str, xr.DataArray]:
-    """Thickness and probability maps computed from the voxel model when none are given."""
-    ds = ctx.dataset
-    out: dict[str, xr.DataArray] = {}
-    if ds is None or "facies_code" not in ds:
-        return out
-    dz = float(np.abs(np.diff(ds["z"].values[:2]))[0]) if ds.sizes["z"] > 1 else 1.0
-    inside = ds["mask"].any("z") if "mask" in ds else xr.ones_like(ds["facies_code"].isel(z=0))
-    for code, name in enumerate(ctx.facies_names):
-        thickness = (ds["facies_code"] == code).sum("z") * dz
-        out[f"thickness_{name}"] = thickness.where(inside)
-        prob = f"prob_{name}"
-        if prob in ds:
-            out[f"mean_prob_{name}"] = ds[prob].mean("z", skipna=True).where(inside)
-    return out
+    return "".join(parts) + facies
 
 
 #: Main maps: key, label, units ("length" = the output length unit).
@@ -796,7 +822,7 @@ def _section_maps(ctx: _Context) -> str:
     given = {
         k: v for k, v in ctx.maps.items() if set(v.dims) == {"y", "x"} and not _is_water_map(k)
     }
-    derived = _derived_maps(ctx)
+    derived = ctx.facies_maps
     if not any("thick" in k for k in given):
         given.update({k: v for k, v in derived.items() if k.startswith("thickness_")})
     if not any("prob" in k for k in given):
@@ -873,7 +899,8 @@ def _section_sections(ctx: _Context) -> str:
     surface = None if ctx.logs is None else ctx.logs.water_table
     intervals = ctx.intervals_shown
     for line in ctx.sections:
-        section = fg.sample_section(ds, line, variables=("facies_code", "log10_k", "mask"))
+        probs = tuple(f"prob_{n}" for n in ctx.facies_names)
+        section = fg.sample_section(ds, line, variables=("facies_code", "log10_k", "mask", *probs))
         projected = None
         max_offset = max(2.0 * dx, 0.05 * line.length)
         if intervals is not None and len(intervals) and {"x", "y", "z_mid"} <= set(intervals):
@@ -921,7 +948,26 @@ def _section_sections(ctx: _Context) -> str:
                 f"{exaggeration:.0f}\u00d7.",
             )
         )
+        parts.append(_probability_section(ctx, section, line, water))
     return "".join(parts)
+
+
+def _probability_section(ctx: _Context, section: xr.Dataset, line: Any, water: Any) -> str:
+    fig = fg.probability_section_figure(
+        section, line=line, facies_names=ctx.facies_names, water_table=water,
+        distance_unit=ctx.coord_unit, elevation_unit=ctx.length_unit,
+    )  # fmt: skip
+    if fig is None:
+        return ""
+    return _figure(
+        fig,
+        name=f"section-prob-{line.name}",
+        alt=f"Facies probabilities along section {line.name}-{line.name}'",
+        caption=f"Section {line.name}-{line.name}': probability of each hydrofacies, the share "
+        "of the realizations that put it in the cell (1 = every realization). Cells far "
+        "from the borings and near contacts are the uncertain ones; above the water table the "
+        "facies of a facies-first model come from EC.",
+    )
 
 
 def _section_view3d(ctx: _Context) -> str:

@@ -119,7 +119,6 @@ interval = {m(0.15)}
 
 [facies]
 method = "thresholds"
-min_thickness = {m(0.3)}
 
 [grid]
 cell_size = [{m(cell)}, {m(cell)}, {m(0.25)}]

@@ -311,123 +311,93 @@ _D = "dissipation.csv"
 _S = "slug_tests.csv"
 _T = "site.toml"
 
+
+def refused(name: str, mutate: Callable[[Path], None], place: str, *texts: str) -> Case:
+    """A case refused with a message naming ``place``, a line or row, a column, and ``texts``."""
+    return Case(name, mutate, E, texts, place)
+
+
+def unlocated(name: str, mutate: Callable[[Path], None], place: str, *texts: str) -> Case:
+    """A case refused with a message naming ``place`` and ``texts`` but no line or column."""
+    return Case(name, mutate, E, texts, place, located=False)
+
+
+def warned(name: str, mutate: Callable[[Path], None], *texts: str) -> Case:
+    """A case accepted with a warning that names ``texts``."""
+    return Case(name, mutate, W, texts)
+
+
 CASES: list[Case] = [
     # ---- coordinates and layout
-    Case("degrees-with-boundary", _degrees, E, ("[coordinates-geographic]",), _B),
-    Case(
-        "degrees-without-boundary",
-        both(_degrees, _no_boundary),
-        E,
-        ("[coordinates-geographic]",),
-        _B,
+    refused("degrees-with-boundary", _degrees, _B, "[coordinates-geographic]"),
+    refused(
+        "degrees-without-boundary", both(_degrees, _no_boundary), _B, "[coordinates-geographic]"
     ),
-    Case("xy-swapped", _swap_xy, E, ("[xy-swapped]",), _B),
-    Case("xy-swapped-without-boundary", both(_swap_xy, _no_boundary), E, ("[xy-swapped]",), _B),
-    Case("southern-hemisphere-y", moved(B1=(500010.0, -5000010.0)), E, ("[outside-crs-area]",), _B),
-    Case(
-        "wrong-utm-zone",
-        setting("site", "crs", '"EPSG:32617"'),
-        E,
-        ("[borings-outside-boundary]",),
-        _B,
-        located=False,
+    refused("xy-swapped", _swap_xy, _B, "[xy-swapped]"),
+    refused("xy-swapped-without-boundary", both(_swap_xy, _no_boundary), _B, "[xy-swapped]"),
+    refused("southern-hemisphere-y", moved(B1=(500010.0, -5000010.0)), _B, "[outside-crs-area]"),
+    unlocated(
+        "wrong-utm-zone", setting("site", "crs", '"EPSG:32617"'), _B, "[borings-outside-boundary]"
     ),
-    Case(
+    unlocated(
         "boring-far-outside-boundary",
         moved(B3=(500030.0, 5009070.0)),
-        E,
-        ("[borings-outside-boundary]",),
         _B,
-        located=False,
+        "[borings-outside-boundary]",
     ),
-    Case(
-        "boring-just-outside-boundary",
-        moved(B3=(500030.0, 5000095.0)),
-        W,
-        ("outside the site boundary",),
+    warned(
+        "boring-just-outside-boundary", moved(B3=(500030.0, 5000095.0)), "outside the site boundary"
     ),
-    Case("infinite-x", replace(_B, "B2,500060.0", "B2,inf"), E, ("[non-finite-number]",), _B),
-    Case("nan-ground-elev", replace(_B, ",50.5,", ",nan,"), E, ("ground_elev",), _B),
-    Case("ground-elev-in-feet", replace(_B, ",49.8,", ",163.39,"), E, ("[ground-elev-units]",), _B),
-    Case("ground-elev-outlier", replace(_B, ",49.8,", ",120.0,"), W, ("[ground-elev-outlier]",)),
-    Case("single-boring", only_borings("B1"), E, ("[too-few-borings]",), _B, located=False),
-    Case("two-borings", only_borings("B1", "B2"), E, ("[too-few-borings]",), _B, located=False),
-    Case(
-        "collinear-borings",
-        moved(B3=(500035.0, 5000015.0)),
-        E,
-        ("[collinear-borings]",),
-        _B,
-        located=False,
-    ),
-    Case(
+    refused("infinite-x", replace(_B, "B2,500060.0", "B2,inf"), _B, "[non-finite-number]"),
+    refused("nan-ground-elev", replace(_B, ",50.5,", ",nan,"), _B, "ground_elev"),
+    refused("ground-elev-in-feet", replace(_B, ",49.8,", ",163.39,"), _B, "[ground-elev-units]"),
+    warned("ground-elev-outlier", replace(_B, ",49.8,", ",120.0,"), "[ground-elev-outlier]"),
+    unlocated("single-boring", only_borings("B1"), _B, "[too-few-borings]"),
+    unlocated("two-borings", only_borings("B1", "B2"), _B, "[too-few-borings]"),
+    unlocated("collinear-borings", moved(B3=(500035.0, 5000015.0)), _B, "[collinear-borings]"),
+    unlocated(
         "coincident-borings",
         moved(B2=(500010.0, 5000010.0), B3=(500010.0, 5000010.0)),
-        E,
-        ("[coincident-borings]",),
         _B,
-        located=False,
+        "[coincident-borings]",
     ),
     # ---- zones
-    Case(
+    unlocated(
         "zone-outside-site",
         zones(_square(501000, 5001000, 501050, 5001050)),
-        E,
-        ("[zone-outside-site]",),
         "zones.geojson",
-        located=False,
+        "[zone-outside-site]",
     ),
-    Case(
+    warned(
         "zone-barely-overlaps",
         zones(_square(500085, 5000085, 500185, 5000185)),
-        W,
-        ("[zone-barely-overlaps]",),
+        "[zone-barely-overlaps]",
     ),
-    Case(
+    unlocated(
         "zone-in-another-utm-zone",
         zones(_square(500000, 5000000, 500050, 5000050), epsg=32632),
-        E,
-        ("[zone-outside-site]", "not the site CRS"),
         "zones.geojson",
-        located=False,
+        "[zone-outside-site]",
+        "not the site CRS",
     ),
-    Case("zone-in-wgs84", zones_in_wgs84, W, ("[zones-crs]",)),
+    warned("zone-in-wgs84", zones_in_wgs84, "[zones-crs]"),
     # ---- units
-    Case("lengths-declared-ft-data-m", setting("units", "length", '"ft"'), E, ("[",), ""),
-    Case(
-        "flow-declared-l-per-min",
-        setting("units", "flow", '"L/min"'),
-        E,
-        ("[flow-units]",),
-        "B1.csv",
-        located=False,
+    refused("lengths-declared-ft-data-m", setting("units", "length", '"ft"'), "", "["),
+    unlocated(
+        "flow-declared-l-per-min", setting("units", "flow", '"L/min"'), "B1.csv", "[flow-units]"
     ),
-    Case(
-        "flow-declared-l-per-s",
-        setting("units", "flow", '"L/s"'),
-        E,
-        ("[flow-units]",),
-        "B1.csv",
-        located=False,
+    unlocated("flow-declared-l-per-s", setting("units", "flow", '"L/s"'), "B1.csv", "[flow-units]"),
+    warned(
+        "flow-in-l-per-min-declared-ml", log_column("B2", "flow", _scaled(0.001)), "[flow-units]"
     ),
-    Case(
-        "flow-in-l-per-min-declared-ml",
-        log_column("B2", "flow", _scaled(0.001)),
-        W,
-        ("[flow-units]",),
-    ),
-    Case(
+    unlocated(
         "pressure-declared-psi-data-kpa",
         setting("units", "pressure", '"psi"'),
-        E,
-        ("[units-hydrostatic]",),
         _D,
-        located=False,
+        "[units-hydrostatic]",
     ),
-    Case(
-        "one-log-in-feet", log_column("B1", "depth", _scaled(1 / 0.3048)), W, ("[log-depth-units]",)
-    ),
-    Case(
+    warned("one-log-in-feet", log_column("B1", "depth", _scaled(1 / 0.3048)), "[log-depth-units]"),
+    warned(
         "log-deeper-than-direct-push",
         both(
             *(log_column(b, "depth", _scaled(1.0, 70.0)) for b in MINI_BORINGS),
@@ -438,471 +408,270 @@ CASES: list[Case] = [
             replace(_S, "B3,1.75,2.75", "B3,71.75,72.75"),
             replace("zones.geojson", '"bottom": 2.5', '"bottom": 73'),
         ),
-        W,
-        ("[deep-log]",),
+        "[deep-log]",
     ),
     # ---- log values
-    Case(
-        "zero-flow-throughout",
-        log_column("B2", "flow", _all("0")),
-        E,
-        ("[zero-flow]",),
-        "B2.csv",
-        located=False,
-    ),
-    Case(
+    unlocated("zero-flow-throughout", log_column("B2", "flow", _all("0")), "B2.csv", "[zero-flow]"),
+    unlocated(
         "constant-pressure",
         log_column("B2", "pressure", _all("150.0")),
-        E,
-        ("[constant-pressure]",),
         "B2.csv",
-        located=False,
+        "[constant-pressure]",
     ),
-    Case(
+    refused(
         "infinite-pressure",
         log_column("B2", "pressure", _at(4, "inf")),
-        E,
-        ("[non-finite-number]",),
         "B2.csv",
+        "[non-finite-number]",
     ),
-    Case("negative-ec", log_column("B3", "ec", _at(2, "-5.0")), E, ("[negative-ec]",), "B3.csv"),
-    Case("constant-ec", log_column("B3", "ec", _all("25.0")), W, ("[constant-ec]",)),
-    Case(
-        "null-marker-ec", log_column("B3", "ec", _at(6, "-9999")), E, ("[null-marker]",), "B3.csv"
-    ),
-    Case(
+    refused("negative-ec", log_column("B3", "ec", _at(2, "-5.0")), "B3.csv", "[negative-ec]"),
+    warned("constant-ec", log_column("B3", "ec", _all("25.0")), "[constant-ec]"),
+    refused("null-marker-ec", log_column("B3", "ec", _at(6, "-9999")), "B3.csv", "[null-marker]"),
+    refused(
         "null-marker-pressure-gauge",
         both(
             setting("units", "pressure_reference", '"gauge"'),
             log_column("B1", "pressure", _scaled(1.0, -101.325)),
             log_column("B1", "pressure", _at(6, "-999.25")),
         ),
-        E,
-        ("[null-marker]",),
         "B1.csv",
+        "[null-marker]",
     ),
-    Case(
+    refused(
         "gauge-negative-pressure",
         both(
             setting("units", "pressure_reference", '"gauge"'),
             log_column("B2", "pressure", _scaled(1.0, -300.0)),
         ),
-        E,
-        ("[negative-pressure]",),
         "B2.csv",
+        "[negative-pressure]",
     ),
-    Case(
-        "truncated-last-line-fields",
-        fixed_format_log("B3", drop_fields=1, cut=2),
-        E,
-        ("line",),
-        "B3.csv",
-        located=False,
+    unlocated(
+        "truncated-last-line-fields", fixed_format_log("B3", drop_fields=1, cut=2), "B3.csv", "line"
     ),
-    Case("truncated-last-number", fixed_format_log("B3", cut=2), W, ("[truncated-number]",)),
-    Case(
+    warned("truncated-last-number", fixed_format_log("B3", cut=2), "[truncated-number]"),
+    unlocated(
         "las-null-differs",
         las_log(
             "B3",
             null="-999.25",
             value=lambda i, r: [r[0], r[1], r[2], -9999.0, r[4]] if i == 4 else r,
         ),
-        E,
-        ("[null-marker]", "NULL -999.25"),
         "B3.las",
-        located=False,
+        "[null-marker]",
+        "NULL -999.25",
     ),
-    Case(
+    unlocated(
         "las-null-missing",
         las_log(
             "B3", null=None, value=lambda i, r: [r[0], r[1], r[2], -999.25, r[4]] if i == 4 else r
         ),
-        E,
-        ("[null-marker]",),
         "B3.las",
-        located=False,
+        "[null-marker]",
     ),
     Case("las-valid", las_log("B3"), "ok", ("Site is valid",)),
     # ---- dissipation and slug tests
-    Case(
+    refused(
         "dissipation-one-reading",
         add_dissipation(_dissipation_test("B3", 2.0, [140.0])),
-        E,
-        ("[dissipation-too-short]",),
         _D,
+        "[dissipation-too-short]",
     ),
-    Case(
+    refused(
         "dissipation-two-readings",
         add_dissipation(_dissipation_test("B3", 2.0, [140.0, 130.0])),
-        E,
-        ("[dissipation-too-short]",),
         _D,
+        "[dissipation-too-short]",
     ),
-    Case(
+    refused(
         "dissipation-rising",
         add_dissipation(_dissipation_test("B3", 2.0, [110.0, 115.0, 120.0, 126.0])),
-        E,
-        ("[dissipation-rising]",),
         _D,
+        "[dissipation-rising]",
     ),
-    Case(
-        "dissipation-below-log",
-        sub(_D, r"^B1,2\.5,", "B1,4.5,"),
-        E,
-        ("[dissipation-below-log]",),
-        _D,
+    refused(
+        "dissipation-below-log", sub(_D, r"^B1,2\.5,", "B1,4.5,"), _D, "[dissipation-below-log]"
     ),
-    Case(
-        "slug-outside-log", replace(_S, "B1,2.0,2.5", "B1,5.0,6.0"), E, ("[slug-outside-log]",), _S
-    ),
-    Case(
+    refused("slug-outside-log", replace(_S, "B1,2.0,2.5", "B1,5.0,6.0"), _S, "[slug-outside-log]"),
+    warned(
         "slug-partly-outside-log",
         replace(_S, "B1,2.0,2.5", "B1,2.5,3.6"),
-        W,
-        ("[slug-partly-outside-log]",),
+        "[slug-partly-outside-log]",
     ),
     # ---- settings and resources
-    Case(
-        "neighbors-1",
-        setting("kriging", "neighbors", "1"),
-        E,
-        ("[setting-kriging]", "neighbors"),
-        _T,
-        located=False,
+    unlocated(
+        "neighbors-1", setting("kriging", "neighbors", "1"), _T, "[setting-kriging]", "neighbors"
     ),
-    Case(
-        "neighbors-2",
-        setting("kriging", "neighbors", "2"),
-        E,
-        ("[setting-kriging]",),
-        _T,
-        located=False,
-    ),
-    Case(
+    unlocated("neighbors-2", setting("kriging", "neighbors", "2"), _T, "[setting-kriging]"),
+    unlocated(
         "nan-cell-size",
         setting("grid", "cell_size", "[nan, 2.0, 0.25]"),
-        E,
-        ("[setting-non-finite]", "cell_size"),
         _T,
-        located=False,
+        "[setting-non-finite]",
+        "cell_size",
     ),
-    Case(
-        "inf-padding",
-        setting("grid", "padding", "inf"),
-        E,
-        ("[setting-non-finite]",),
-        _T,
-        located=False,
+    unlocated("inf-padding", setting("grid", "padding", "inf"), _T, "[setting-non-finite]"),
+    unlocated(
+        "absurd-cell-size", setting("grid", "cell_size", "[0.001, 0.001, 0.001]"), _T, "[resources-"
     ),
-    Case(
-        "absurd-cell-size",
-        setting("grid", "cell_size", "[0.001, 0.001, 0.001]"),
-        E,
-        ("[resources-",),
-        _T,
-        located=False,
-    ),
-    Case(
+    unlocated(
         "million-realizations",
         setting("simulation", "realizations", "1000000"),
-        E,
-        ("[resources-memory]", "realizations"),
         _T,
-        located=False,
+        "[resources-memory]",
+        "realizations",
     ),
-    Case(
+    unlocated(
         "max-cells-limit",
         setting("limits", "max_cells", "1000"),
-        E,
-        ("[resources-cells]", "max_cells"),
         _T,
-        located=False,
+        "[resources-cells]",
+        "max_cells",
     ),
-    Case(
+    unlocated(
         "max-memory-limit",
         setting("limits", "max_memory", "0.001"),
-        E,
-        ("[resources-memory]", "max_memory"),
         _T,
-        located=False,
+        "[resources-memory]",
+        "max_memory",
     ),
-    Case("long-run-warning", setting("limits", "warn_time", "0.001"), W, ("[resources-time]",)),
-    Case(
+    warned("long-run-warning", setting("limits", "warn_time", "0.001"), "[resources-time]"),
+    unlocated(
         "scheduler-unreachable",
         setting("kriging", "scheduler", '"tcp://127.0.0.1:1"'),
-        E,
-        ("[setting-scheduler]", "[kriging] scheduler"),
         _T,
-        located=False,
+        "[setting-scheduler]",
+        "[kriging] scheduler",
     ),
-    Case(
+    unlocated(
         "scheduler-malformed",
         setting("kriging", "scheduler", '"not an address"'),
-        E,
-        ("[setting-scheduler]",),
         _T,
-        located=False,
+        "[setting-scheduler]",
     ),
     # ---- malformed files (refused by the readers)
-    Case("no-site-toml", delete("site.toml"), E, ("site.toml",), "site.toml", located=False),
-    Case(
-        "site-toml-syntax",
-        write(_T, "[site\nname = 1\n"),
-        E,
-        ("site.toml",),
-        "site.toml",
-        located=False,
-    ),
-    Case(
+    unlocated("no-site-toml", delete("site.toml"), "site.toml", "site.toml"),
+    unlocated("site-toml-syntax", write(_T, "[site\nname = 1\n"), "site.toml", "site.toml"),
+    unlocated(
         "site-toml-unknown-key",
         setting("grid", "cell_sise", "[2.0, 2.0, 0.25]"),
-        E,
-        ("cell_sise",),
         "site.toml",
-        located=False,
+        "cell_sise",
     ),
-    Case(
-        "site-geographic-crs",
-        setting("site", "crs", '"EPSG:4326"'),
-        E,
-        ("crs",),
-        "site.toml",
-        located=False,
+    unlocated("site-geographic-crs", setting("site", "crs", '"EPSG:4326"'), "site.toml", "crs"),
+    unlocated("site-crs-nonsense", setting("site", "crs", '"EPSG:999999"'), "site.toml", "crs"),
+    unlocated(
+        "unknown-length-unit", setting("units", "length", '"furlong"'), "site.toml", "furlong"
     ),
-    Case(
-        "site-crs-nonsense",
-        setting("site", "crs", '"EPSG:999999"'),
-        E,
-        ("crs",),
-        "site.toml",
-        located=False,
-    ),
-    Case(
-        "unknown-length-unit",
-        setting("units", "length", '"furlong"'),
-        E,
-        ("furlong",),
-        "site.toml",
-        located=False,
-    ),
-    Case(
+    unlocated(
         "negative-cell-size",
         setting("grid", "cell_size", "[-2.0, 2.0, 0.25]"),
-        E,
-        ("cell_size",),
         "site.toml",
-        located=False,
+        "cell_size",
     ),
-    Case(
-        "neighbors-zero",
-        setting("kriging", "neighbors", "0"),
-        E,
-        ("neighbors",),
-        "site.toml",
-        located=False,
-    ),
-    Case(
+    unlocated("neighbors-zero", setting("kriging", "neighbors", "0"), "site.toml", "neighbors"),
+    unlocated(
         "realizations-negative",
         setting("simulation", "realizations", "-1"),
-        E,
-        ("realizations",),
         "site.toml",
-        located=False,
+        "realizations",
     ),
-    Case("borings-missing", delete(_B), E, ("borings.csv",), _B, located=False),
-    Case("borings-empty", write(_B, ""), E, ("borings.csv",), _B, located=False),
-    Case(
-        "borings-header-only",
-        write(_B, "boring_id,x,y,ground_elev\n"),
-        E,
-        ("borings.csv",),
-        _B,
-        located=False,
+    unlocated("borings-missing", delete(_B), _B, "borings.csv"),
+    unlocated("borings-empty", write(_B, ""), _B, "borings.csv"),
+    unlocated("borings-header-only", write(_B, "boring_id,x,y,ground_elev\n"), _B, "borings.csv"),
+    unlocated("borings-missing-column", write(_B, "boring_id,x,y\nB1,1,2\n"), _B, "ground_elev"),
+    refused("borings-text-in-x", replace(_B, "B2,500060.0", "B2,east"), _B, "line 3, column 'x'"),
+    unlocated("borings-duplicate-id", replace(_B, "B3,", "B2,"), _B, "B2"),
+    unlocated("borings-semicolons", sub(_B, ",", ";"), _B, "borings.csv"),
+    unlocated("borings-binary", write(_B, "\x00\x01\x02garbage\xff"), _B, "borings.csv"),
+    unlocated(
+        "log-missing-column", write("logs/B3.csv", "depth,pressure\n1,2\n"), "B3.csv", "B3.csv"
     ),
-    Case(
-        "borings-missing-column",
-        write(_B, "boring_id,x,y\nB1,1,2\n"),
-        E,
-        ("ground_elev",),
-        _B,
-        located=False,
-    ),
-    Case(
-        "borings-text-in-x", replace(_B, "B2,500060.0", "B2,east"), E, ("line 3, column 'x'",), _B
-    ),
-    Case("borings-duplicate-id", replace(_B, "B3,", "B2,"), E, ("B2",), _B, located=False),
-    Case("borings-semicolons", sub(_B, ",", ";"), E, ("borings.csv",), _B, located=False),
-    Case(
-        "borings-binary",
-        write(_B, "\x00\x01\x02garbage\xff"),
-        E,
-        ("borings.csv",),
-        _B,
-        located=False,
-    ),
-    Case(
-        "log-missing-column",
-        write("logs/B3.csv", "depth,pressure\n1,2\n"),
-        E,
-        ("B3.csv",),
-        "B3.csv",
-        located=False,
-    ),
-    Case(
+    refused(
         "log-text-in-pressure",
         log_column("B2", "pressure", _at(3, "high")),
-        E,
-        ("column 'pressure'",),
         "B2.csv",
+        "column 'pressure'",
     ),
-    Case("log-negative-depth", log_column("B2", "depth", _at(0, "-0.5")), E, ("depth",), "B2.csv"),
-    Case(
-        "log-depth-not-increasing",
-        log_column("B2", "depth", _at(3, "0.6")),
-        E,
-        ("increas",),
-        "B2.csv",
+    refused("log-negative-depth", log_column("B2", "depth", _at(0, "-0.5")), "B2.csv", "depth"),
+    refused(
+        "log-depth-not-increasing", log_column("B2", "depth", _at(3, "0.6")), "B2.csv", "increas"
     ),
-    Case("log-negative-flow", log_column("B2", "flow", _at(3, "-3")), E, ("flow",), "B2.csv"),
-    Case("log-empty-file", write("logs/B2.csv", ""), E, ("B2.csv",), "B2.csv", located=False),
-    Case(
-        "log-of-unknown-boring",
-        write("logs/B9.csv", SHORT_LOG),
-        E,
-        ("B9",),
-        "B9.csv",
-        located=False,
+    refused("log-negative-flow", log_column("B2", "flow", _at(3, "-3")), "B2.csv", "flow"),
+    unlocated("log-empty-file", write("logs/B2.csv", ""), "B2.csv", "B2.csv"),
+    unlocated("log-of-unknown-boring", write("logs/B9.csv", SHORT_LOG), "B9.csv", "B9"),
+    unlocated("boring-without-log", delete("logs/B3.csv"), _B, "B3"),
+    unlocated(
+        "logs-glob-matches-nothing", setting("files", "logs", '"nologs/*.csv"'), "", "nologs"
     ),
-    Case("boring-without-log", delete("logs/B3.csv"), E, ("B3",), _B, located=False),
-    Case(
-        "logs-glob-matches-nothing",
-        setting("files", "logs", '"nologs/*.csv"'),
-        E,
-        ("nologs",),
-        "",
-        located=False,
-    ),
-    Case(
+    unlocated(
         "las-unreadable",
         both(las_log("B3"), write("logs/B3.las", "~Version\nnot a las file\n~A\n1 2\n")),
-        E,
-        ("B3.las",),
         "B3.las",
-        located=False,
+        "B3.las",
     ),
-    Case(
+    unlocated(
         "las-missing-curve",
         both(las_log("B3"), sub("logs/B3.las", r"^ EC\.mS/m : ec\n", "")),
-        E,
-        ("B3.las",),
         "B3.las",
-        located=False,
+        "B3.las",
     ),
-    Case(
+    unlocated(
         "las-version-3",
         both(las_log("B3"), replace("logs/B3.las", "VERS.   2.0", "VERS.   3.0")),
-        E,
-        ("B3.las",),
         "B3.las",
-        located=False,
+        "B3.las",
     ),
-    Case(
-        "same-boring-twice",
-        both(las_log("B3"), write("logs/B3.csv", SHORT_LOG)),
-        E,
-        ("B3",),
-        "B3",
-        located=False,
+    unlocated(
+        "same-boring-twice", both(las_log("B3"), write("logs/B3.csv", SHORT_LOG)), "B3", "B3"
     ),
-    Case(
+    refused(
         "pressure-below-atmospheric",
         log_column("B1", "pressure", _scaled(1.0, -100.0)),
-        E,
-        ("below atmospheric",),
         "B1.csv",
+        "below atmospheric",
     ),
-    Case(
+    unlocated(
         "dissipation-missing-column",
         write(_D, "boring_id,depth,pressure\nB1,2.5,100\n"),
-        E,
-        ("time_s",),
         _D,
-        located=False,
+        "time_s",
     ),
-    Case(
-        "dissipation-text",
-        sub(_D, r"^(B1,2\.5,30\.0,)[0-9.]+", r"\1abc"),
-        E,
-        ("column 'pressure'",),
-        _D,
+    refused(
+        "dissipation-text", sub(_D, r"^(B1,2\.5,30\.0,)[0-9.]+", r"\1abc"), _D, "column 'pressure'"
     ),
-    Case(
-        "dissipation-time-decreasing",
-        sub(_D, r"^B1,2\.5,60\.0,", "B1,2.5,10.0,"),
-        E,
-        ("time_s",),
-        _D,
+    refused(
+        "dissipation-time-decreasing", sub(_D, r"^B1,2\.5,60\.0,", "B1,2.5,10.0,"), _D, "time_s"
     ),
-    Case(
+    unlocated(
         "dissipation-unknown-boring",
         add_dissipation(_dissipation_test("B7", 2.0, [140.0, 130.0, 125.0])),
-        E,
-        ("B7",),
         _D,
-        located=False,
+        "B7",
     ),
-    Case("dissipation-file-missing", delete(_D), E, ("dissipation",), "", located=False),
-    Case(
-        "slug-top-below-bottom", replace(_S, "B1,2.0,2.5", "B1,2.5,2.0"), E, ("bottom_depth",), _S
-    ),
-    Case("slug-zero-k", replace(_S, "1.5e-5", "0"), E, ("column 'k'",), _S),
-    Case("slug-unknown-boring", replace(_S, "B3,1.75", "B8,1.75"), E, ("B8",), _S, located=False),
-    Case(
+    unlocated("dissipation-file-missing", delete(_D), "", "dissipation"),
+    refused("slug-top-below-bottom", replace(_S, "B1,2.0,2.5", "B1,2.5,2.0"), _S, "bottom_depth"),
+    refused("slug-zero-k", replace(_S, "1.5e-5", "0"), _S, "column 'k'"),
+    unlocated("slug-unknown-boring", replace(_S, "B3,1.75", "B8,1.75"), _S, "B8"),
+    unlocated(
         "sensor-check-unknown-boring",
         replace("sensor_checks.csv", "B2,ec", "B9,ec"),
-        E,
-        ("B9",),
         "sensor_checks.csv",
-        located=False,
+        "B9",
     ),
-    Case(
-        "boundary-missing",
-        delete("boundary.geojson"),
-        E,
-        ("boundary",),
-        "boundary.geojson",
-        located=False,
-    ),
-    Case(
-        "boundary-empty",
-        write("boundary.geojson", ""),
-        E,
-        ("boundary",),
-        "boundary.geojson",
-        located=False,
-    ),
-    Case(
+    unlocated("boundary-missing", delete("boundary.geojson"), "boundary.geojson", "boundary"),
+    unlocated("boundary-empty", write("boundary.geojson", ""), "boundary.geojson", "boundary"),
+    unlocated(
         "boundary-no-features",
         write("boundary.geojson", '{"type": "FeatureCollection", "features": []}'),
-        E,
-        ("boundary",),
         "boundary.geojson",
-        located=False,
+        "boundary",
     ),
-    Case(
-        "zones-bad-json",
-        write("zones.geojson", "{not json"),
-        E,
-        ("zones",),
-        "zones.geojson",
-        located=False,
-    ),
-    Case(
+    unlocated("zones-bad-json", write("zones.geojson", "{not json"), "zones.geojson", "zones"),
+    unlocated(
         "zones-bottom-above-top",
         replace("zones.geojson", '"bottom": 2.5', '"bottom": 0.5'),
-        E,
-        ("zones.geojson",),
         "zones.geojson",
-        located=False,
+        "zones.geojson",
     ),
 ]
