@@ -177,11 +177,11 @@ def run_model(
     -------
     geo3d.model.ModelResult
     """
-    options = site.config.model_options()
-    engine = options.engine if engine is None else engine
-    if engine not in ("gaussian", "facies"):
+    if engine not in (None, "gaussian", "facies"):
         msg = f"model engine {engine!r} is unknown; expected 'gaussian' or 'facies'"
         raise ModelError(msg)
+    options = site.config.model_options()
+    engine = options.engine if engine is None else engine
     gridder = VoxelModel(
         facies_classes=logs.facies_classes,
         variogram_model=options.variogram_model,

@@ -62,11 +62,38 @@ def test_harness_runs_the_whole_job_on_a_small_site(tmp_path):
     assert len(zones) > 0 and set(zones["part"]) == {"all"}
     assert np.isfinite(zones["estimate_m3"]).all()
     assert 0.0 <= summary["coverage"] <= 1.0
-    # expected volumes of a zone add up to the zone's volume in the model, which differs from
-    # the truth only by the ground and the cell discretisation: within 15 % here
+    # expected volumes of a zone add up to the zone's volume in the model, scaled to the zone's
+    # exact plan area inside the boundary: they differ from the truth only where the zone meets
+    # the ground or the base (the cell discretisation there): within 2 % here
     truth_total = zones.groupby("zone")["truth_m3"].sum()
     model_total = zones.groupby("zone")["estimate_m3"].sum()
-    np.testing.assert_allclose(model_total, truth_total, rtol=0.15)
+    np.testing.assert_allclose(model_total, truth_total, rtol=0.02)
+
+
+#: Seeds of the two-site check: the first two after the 20-site benchmark (seeds 1-20).
+_TWO_SITES = (21, 22)
+
+
+@pytest.fixture(scope="module")
+def two_sites(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("two_sites")
+    return summarize([run_site(seed, folder, engine="facies") for seed in _TWO_SITES])
+
+
+def test_two_sites_zone_volume_error_meets_the_target(two_sites):
+    # target: median absolute error of the zone-facies volumes (classes >= 5 % of the zone)
+    # of 20 % or less, and saturated site volumes per facies within 10 %
+    assert two_sites["n_scored"] >= 6
+    assert two_sites["median_abs_error"] <= 0.20
+    assert all(error <= 0.10 for error in two_sites["saturated_site_error"].values())
+
+
+def test_two_sites_coverage_floor(two_sites):
+    # The target is 70-90 % of the zone-facies volumes inside P10-P90; on these two sites the
+    # facies-first engine reaches 20 % (clay laminae thinner than the probe resolves are
+    # missed; see the README). This floor guards against a regression only; the target is
+    # measured by scripts/validate.py over 20 sites.
+    assert two_sites["coverage"] >= 0.15
 
 
 def test_unknown_engine_is_refused(tmp_path):
