@@ -591,3 +591,129 @@ def demo(out_dir: Path, overwrite: bool, realizations: int | None, no_progress: 
         no_progress=no_progress,
         title="Demo run complete.",
     )
+
+
+@main.command()
+@click.argument("site", type=SITE_PATH)
+@_out_options()
+@click.option(
+    "--borings",
+    "n_borings",
+    type=click.IntRange(min=1, max=50),
+    default=3,
+    show_default=True,
+    help="Number of borings to propose.",
+)
+@click.option(
+    "--target",
+    type=click.Choice(["storage", "transmissive", "injection"]),
+    default="storage",
+    show_default=True,
+    help="Design figure whose band the borings should narrow: storage-material volume, mean "
+    "transmissive thickness or design injection volume of the treatment zones.",
+)
+@click.option("--zone", default=None, help="Rank for this treatment zone only (default: all).")
+@click.option(
+    "--spacing",
+    type=click.FloatRange(min=0, min_open=True),
+    default=None,
+    help="Candidate grid spacing, in the site's length unit (default: about 400 candidates).",
+)
+@click.option(
+    "--min-distance",
+    type=click.FloatRange(min=0),
+    default=None,
+    help="Minimum distance from existing and proposed borings, in the site's length "
+    "unit (default: the spacing).",
+)
+@click.option(
+    "--accessible",
+    type=click.Path(exists=True, dir_okay=False, path_type=Path),
+    default=None,
+    help="Polygon layer (GeoJSON/GeoPackage) of the accessible areas.",
+)
+@click.option(
+    "--criterion",
+    type=click.Choice(["summed", "block"]),
+    default="summed",
+    show_default=True,
+    help="Rank by the kriging variance summed over the target's "
+    "cells, or by the variance of the target itself.",
+)
+@handle_errors
+def advise(
+    site: Path,
+    out_dir: Path,
+    overwrite: bool,
+    realizations: int | None,
+    no_progress: bool,
+    n_borings: int,
+    target: str,
+    zone: str | None,
+    spacing: float | None,
+    min_distance: float | None,
+    accessible: Path | None,
+    criterion: str,
+) -> None:
+    """Propose where to push the next borings of SITE and write the advice into OUT.
+
+    Builds the model, then ranks candidate locations on a grid inside the site boundary (and
+    the accessible areas) by how much one more full-depth boring would reduce the kriging
+    variance of the chosen design target, and chooses N borings one after the other. Writes
+    proposed_borings.csv, advice_candidates.csv, advice_zones.csv, advice.gpkg,
+    advice_map.png and advice.html.
+    """
+    from geo3d.config import load_config
+    from geo3d.pipeline import advise as advise_site
+    from geo3d.units import to_internal
+
+    unit = load_config(site).units.length
+    lengths = {
+        name: None if value is None else float(to_internal(value, unit, "length"))
+        for name, value in (("spacing", spacing), ("min_distance", min_distance))
+    }
+    with (
+        _terminate_as_interrupt(),
+        _StageProgress(["check", "logs", "model", "advise"], enabled=not no_progress) as bar,
+    ):
+        result = advise_site(
+            site,
+            out_dir,
+            overwrite=overwrite,
+            progress=bar,
+            n_realizations=realizations,
+            n_borings=n_borings,
+            target=target,
+            zone=zone,
+            accessible=accessible,
+            criterion=criterion,
+            **lengths,
+        )
+    _advice_summary(result)
+
+
+def _advice_summary(result) -> None:
+    """Print the proposed borings and where the outputs are."""
+    from rich.table import Table
+
+    out = console()
+    out.print("[bold green]Advice complete.[/bold green]")
+    out.print(f"Outputs in [bold]{result.out_dir.resolve()}[/bold]", highlight=False)
+    advice = result.advice
+    table = Table(
+        title=f"Proposed borings ({advice.target} of {advice.rank_zone}, internal CRS, m)",
+        title_justify="left",
+    )
+    for column in ("rank", "x", "y", "P10-P90 before", "after", "driver zone"):
+        table.add_column(column, justify="right")
+    for row in advice.proposed.itertuples(index=False):
+        table.add_row(
+            str(row.rank),
+            f"{row.x:.1f}",
+            f"{row.y:.1f}",
+            f"{row.p10_p90_before:,.4g}",
+            f"{row.p10_p90_after:,.4g}",
+            str(row.driver_zone),
+        )
+    out.print(table)
+    out.print(f"advise stage: {result.timings.get('advise', float('nan')):.1f} s", markup=False)

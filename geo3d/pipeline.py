@@ -16,11 +16,13 @@ from __future__ import annotations
 
 import contextlib
 import logging
+import math
 import os
 import platform
 import time
 import warnings
 from collections.abc import Callable, Iterator, Sequence
+from dataclasses import dataclass
 from datetime import UTC, datetime
 from os import PathLike
 from pathlib import Path
@@ -28,9 +30,18 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+import shapely
 import xarray as xr
 
 from geo3d import __version__
+from geo3d.analysis.advise import (
+    CRITERIA,
+    TARGETS,
+    BoringAdvice,
+    advise_borings,
+    candidate_grid,
+    covariance_from_attrs,
+)
 from geo3d.analysis.facies_maps import facies_column_maps
 from geo3d.analysis.injection import InjectionPlan, injection_plan
 from geo3d.analysis.thickness import thickness_maps
@@ -38,17 +49,21 @@ from geo3d.analysis.volumes import zone_volumes
 from geo3d.analysis.water_table import depth_to_water_map, water_table_map
 from geo3d.checks import check_site, report
 from geo3d.checks.resources import estimate_resources
-from geo3d.errors import Geo3dError, Geo3dWarning, ModelError
+from geo3d.errors import Geo3dError, Geo3dWarning, GeometryError, ModelError
 from geo3d.facies_first import build_facies_first_model
+from geo3d.geostats.covariance import CovarianceModel
 from geo3d.geostats.variogram import VariogramFit
 from geo3d.io import geotiff, gpkg, netcdf, tables, vtk
+from geo3d.io.advice import write_advice
 from geo3d.io.atomic import atomic_file
 from geo3d.io.outdir import safe_output_folder
 from geo3d.io.output_frame import OutputFrame
+from geo3d.io.vector import read_area
 from geo3d.logs.process import LogResults, process_logs
 from geo3d.logs.runs import composite_runs
 from geo3d.model import ModelResult, VoxelModel, build_voxel_model
 from geo3d.report import write_report
+from geo3d.report.advice import advice_html, advice_map_png
 from geo3d.report.log_figure import log_figure_pngs
 from geo3d.results import RunResults
 from geo3d.site import Site, read_site
@@ -66,6 +81,10 @@ __all__ = [
     "run_report",
     "headline_volumes",
     "planned_stages",
+    "run_advise",
+    "AdviceOptions",
+    "advise",
+    "AdviceRun",
 ]
 
 logger = logging.getLogger(__name__)
@@ -850,3 +869,209 @@ def _check_model(model: ModelResult) -> None:
             Geo3dWarning,
             stacklevel=2,
         )
+
+
+# --------------------------------------------------------------------------- boring advice
+
+
+def _advice_covariance(model: ModelResult) -> CovarianceModel:
+    """Return the covariance the realizations follow (normal-score fit, log10 K, attrs)."""
+    for key in ("log10_k_normal_score", "log10_k"):
+        if key in model.variograms:
+            return model.variograms[key].model
+    return covariance_from_attrs(model.dataset)
+
+
+@dataclass(frozen=True)
+class AdviceOptions:
+    """Settings of the boring advice, checked against the site before any modelling.
+
+    Attributes
+    ----------
+    n_borings
+        Borings to propose.
+    target
+        ``storage`` (default), ``transmissive`` or ``injection``.
+    zone
+        Rank for this treatment zone only; None = all zones together.
+    spacing
+        Candidate grid spacing, m.
+    min_distance
+        Minimum distance, m, from the existing and the other proposed borings.
+    accessible
+        The accessible areas (internal CRS), or None.
+    criterion
+        ``summed`` (cell kriging variance summed over the target) or ``block``.
+    """
+
+    n_borings: int
+    target: str
+    zone: str | None
+    spacing: float
+    min_distance: float
+    accessible: shapely.Geometry | None
+    criterion: str
+
+    @classmethod
+    def for_site(
+        cls,
+        site: Site,
+        *,
+        n_borings: int = 3,
+        target: str = "storage",
+        zone: str | None = None,
+        spacing: float | None = None,
+        min_distance: float | None = None,
+        accessible: str | PathLike | None = None,
+        criterion: str = "summed",
+    ) -> AdviceOptions:
+        """Check the settings against a site; defaults: about 400 candidates, distance = spacing.
+
+        Raises
+        ------
+        GeometryError
+            Unknown zone, unreadable accessible-area layer, or no admissible candidate.
+        ModelError
+            Unknown target or criterion, fewer than one boring.
+        """
+        if target not in TARGETS or criterion not in CRITERIA or n_borings < 1:
+            msg = (
+                f"advise: got target {target!r}, criterion {criterion!r}, {n_borings} borings; "
+                f"expected a target in {TARGETS}, a criterion in {CRITERIA} and >= 1 boring"
+            )
+            raise ModelError(msg)
+        names = [str(n) for n in site.zones["name"]] if len(site.zones) else ["site"]
+        if zone is not None and zone not in names:
+            msg = f"advise: zone {zone!r} is not a treatment zone of the site; expected one of "
+            msg += str(names)
+            raise GeometryError(msg)
+        spacing = math.sqrt(site.boundary.area / 400.0) if spacing is None else float(spacing)
+        distance = spacing if min_distance is None else float(min_distance)
+        area = (
+            None
+            if accessible is None
+            else read_area(accessible, crs=site.crs, what="accessible-area")
+        )
+        existing = site.borings[["x", "y"]].to_numpy(float)
+        if not len(candidate_grid(site.boundary, spacing, existing=existing,
+                                  min_distance=distance, accessible=area)):  # fmt: skip
+            msg = (
+                f"advise: no admissible candidate at {spacing:g} m spacing, at least "
+                f"{distance:g} m from the borings, inside the boundary"
+                + ("" if area is None else " and the accessible areas")
+                + "; expected a finer spacing or a smaller minimum distance"
+            )
+            raise GeometryError(msg)
+        return cls(n_borings, target, zone, spacing, distance, area, criterion)
+
+
+def run_advise(
+    site: Site, logs: LogResults, model: ModelResult, options: AdviceOptions
+) -> BoringAdvice:
+    """Propose the next borings (see :func:`geo3d.analysis.advise.advise_borings`).
+
+    Parameters
+    ----------
+    site, logs, model
+        A site and the results of :func:`run_logs` and :func:`run_model`.
+    options
+        The advice settings (:meth:`AdviceOptions.for_site`).
+    """
+    intervals = logs.intervals
+    finite = np.isfinite(intervals["log10_k"].to_numpy(float))
+    data = intervals.loc[finite, ["x", "y", "z_mid"]].to_numpy(float)
+    zones = site.zones if site.zones is not None and len(site.zones) else None
+    default = site.config.volume_options().design_fraction
+    fractions = {}
+    for row in [] if zones is None else zones.itertuples(index=False):
+        fractions[str(row.name)] = _zone_value(row, "design_fraction", default)
+    return advise_borings(
+        model.dataset,
+        data,
+        site.borings[["x", "y"]].to_numpy(float),
+        site.boundary,
+        n_borings=options.n_borings,
+        covariance=_advice_covariance(model),
+        zones=zones,
+        target=options.target,
+        spacing=options.spacing,
+        min_distance=options.min_distance,
+        accessible=options.accessible,
+        criterion=options.criterion,
+        rank_zone=options.zone,
+        design_fraction=fractions or default,
+    )
+
+
+@dataclass
+class AdviceRun:
+    """What :func:`advise` wrote: the advice, the folder, its files and the time per stage."""
+
+    advice: BoringAdvice
+    out_dir: Path
+    outputs: list[Path]
+    timings: dict[str, float]
+
+
+def _write_advice_outputs(site: Site, advice: BoringAdvice, staging: Path, seconds: float):
+    frame = OutputFrame.from_site(site)
+    written = write_advice(advice, staging, crs=site.crs, frame=frame)
+    zones = site.zones if site.zones is not None and len(site.zones) else None
+    png = advice_map_png(advice, boundary=site.boundary, zones=zones, frame=frame)
+    with atomic_file(staging / "advice_map.png") as tmp:
+        tmp.write_bytes(png)
+    page = advice_html(advice, png, site_name=str(site.name), frame=frame, seconds=seconds)
+    with atomic_file(staging / "advice.html") as tmp:
+        tmp.write_text(page, encoding="utf-8")
+    return [*written, staging / "advice_map.png", staging / "advice.html"]
+
+
+def advise(
+    site_path: str | PathLike,
+    out_dir: str | PathLike,
+    *,
+    overwrite: bool = False,
+    progress: bool | ProgressCallback = False,
+    n_realizations: int | None = None,
+    **options: Any,
+) -> AdviceRun:
+    """Build the model of a site and write the proposed next borings into ``out_dir``.
+
+    Checks the site and ``options`` (:meth:`AdviceOptions.for_site`: bad settings stop the run
+    before any modelling), runs the logs and model stages, then :func:`run_advise`, and
+    writes ``proposed_borings.csv``, ``advice_candidates.csv``, ``advice_zones.csv``,
+    ``advice.gpkg`` (layers ``proposed_borings``, ``advice_candidates``), ``advice_map.png``,
+    ``advice.html``, ``run.log`` and ``run.json``, all at once when the whole job succeeded
+    (the output-folder rules of :func:`run`).
+    """
+    callback = _progress_callback(progress)
+    final = Path(out_dir)
+    timings: dict[str, float] = {}
+    timer = _Timer(timings, callback)
+    total_start = time.perf_counter()
+    with (
+        safe_output_folder(final, site_path=site_path, overwrite=overwrite) as staging,
+        _run_log(staging / "run.log"),
+    ):
+        with timer.stage("check"):
+            site = run_check(site_path, n_realizations=n_realizations, stages=("model",))
+            settings = AdviceOptions.for_site(site, **options)
+        results = RunResults(site=site, timings=timings)
+        _compute(results, ["logs", "model"], timer, n_realizations=n_realizations,
+                 progress=callback)  # fmt: skip
+        assert results.logs is not None and results.model is not None
+        with timer.stage("advise"):
+            advice = run_advise(site, results.logs, results.model, settings)
+        written = _write_advice_outputs(site, advice, staging, timings["advise"])
+        timings["total"] = time.perf_counter() - total_start
+        outputs = sorted(set(_relative(written, staging)))
+        summary = {
+            "geo3d_version": __version__,
+            "site": str(site.name),
+            "site_path": str(Path(site_path).resolve()),
+            "timings_s": {k: round(v, 3) for k, v in timings.items()},
+            "outputs": [str(p) for p in outputs],
+            "proposed": advice.proposed,
+        }
+        tables.write_json(summary, staging / "run.json")
+    return AdviceRun(advice, final, [*outputs, Path("run.json"), Path("run.log")], timings)

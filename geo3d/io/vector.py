@@ -28,6 +28,7 @@ __all__ = [
     "metric_crs",
     "read_layer",
     "read_boundary",
+    "read_area",
     "read_zones",
     "ZONE_COLUMNS",
 ]
@@ -228,6 +229,20 @@ def read_boundary(path: str | PathLike, *, crs: pyproj.CRS) -> Polygon:
             raise GeometryError(msg)
         merged = merged.geoms[0]
     return merged
+
+
+def read_area(path: str | PathLike, *, crs: pyproj.CRS, what: str) -> Polygon | MultiPolygon:
+    """Read a layer of polygons (such as accessible areas) as one geometry, their union.
+
+    Raises
+    ------
+    GeometryError
+        Missing or unreadable file, or a feature that is not a valid polygon.
+    CRSError
+        The layer has no CRS.
+    """
+    file = Path(path)
+    return unary_union(_polygons(read_layer(file, crs=crs, what=what), path=file, what=what))
 
 
 def _zone_number(
