@@ -758,6 +758,7 @@ scheduler = ""                    # "" = local threads; or a dask.distributed ad
 [simulation]
 realizations = 20
 seed = 20261202
+engine = "gaussian"               # gaussian | facies (facies simulated first, K within facies)
 
 [treatment]
 design_fraction = 0.2             # default when a zone gives none (common practice)
