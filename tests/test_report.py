@@ -32,10 +32,12 @@ from geo3d.analysis.facies_maps import facies_column_maps
 from geo3d.config import config_from_dict
 from geo3d.errors import Geo3dWarning
 from geo3d.facies import DEFAULT_CLASSES
+from geo3d.geostats.facies_crossval import FaciesCrossValidation
 from geo3d.logs.calibration import Calibration
 from geo3d.logs.hydraulic import shape_factor
 from geo3d.logs.process import LogResults
 from geo3d.logs.water_level import WaterTableSurface
+from geo3d.model import ModelResult
 from geo3d.report import build_report, write_report
 from geo3d.report import figures as fg
 from geo3d.report.html import SECTION_TITLES, _fmt
@@ -355,10 +357,23 @@ def make_results(*, with_model: bool = True, with_slug_tests: bool = True) -> Ru
     if not with_model:
         return results
     ds = voxel_model()
-    results.model = SimpleNamespace(
-        dataset=ds,
+    results.model = ModelResult(
+        ds,
         variograms={"log10_k": variogram_fit()},
         crossval={"log10_k": crossval(intervals)},
+        facies_crossval=FaciesCrossValidation(
+            ("storage", "transitional", "transmissive"),
+            pd.DataFrame(
+                {
+                    "boring_id": ["B1", "B1", "B2", "B2"],
+                    "z_mid": [1.0, 2.0, 1.0, 2.0],
+                    "observed": [0, 2, 0, 1],
+                    "p_storage": [0.8, 0.1, 0.6, 0.2],
+                    "p_transitional": [0.1, 0.1, 0.2, 0.3],
+                    "p_transmissive": [0.1, 0.8, 0.2, 0.5],
+                }
+            ),
+        ),
     )
     dz = 0.5
     results.maps = {
@@ -568,6 +583,9 @@ def test_report_tables_carry_the_numbers(full_report):
     ):
         assert column in text
     assert "2,700" in text  # P90 transmissive volume of the synthetic zone, formatted
+    # facies cross-validation: 3 of 4 intervals predicted right (most probable facies); Brier
+    # score by hand: (0.06 + 0.06 + 0.24 + 0.78) / 4 = 0.285
+    assert "Brier skill score" in text and "<td>0.75</td>" in text and "<td>0.285</td>" in text
     # injection: 3 points share the 3-4 m interval, 1 + 1.5 + 1.2 = 3.7 m3 (sum by hand)
     assert "<td>3.70</td>" in text
 
@@ -666,7 +684,7 @@ def test_failing_section_becomes_a_note_and_a_warning():
             raise RuntimeError("variogram table unreadable")
 
     results = make_results(with_model=False)
-    results.model = SimpleNamespace(dataset=None, variograms={"log10_k": Broken()}, crossval={})
+    results.model = ModelResult(None, variograms={"log10_k": Broken()}, crossval={})
     ctx = _Context.from_results(results)
     with pytest.warns(Geo3dWarning, match="Variograms"):
         html_text = _render_section(ctx, "variograms")
