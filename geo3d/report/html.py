@@ -743,7 +743,8 @@ def _facies_crossval(ctx: _Context) -> str:
     cv = None if ctx.model is None else ctx.model.facies_crossval
     if cv is None or not len(cv.predictions):
         return ""
-    confusion = cv.confusion().reset_index()
+    confusion = cv.confusion().rename_axis(columns=None).reset_index()
+    confusion = confusion.rename(columns={"observed": "observed \u2193 predicted \u2192"})
     scores = pd.DataFrame(
         {
             "intervals": [len(cv.predictions)],
